@@ -1,0 +1,296 @@
+"""Raster input and output: the only module that opens GeoTIFF files.
+
+A :class:`Grid` carries everything a stage needs to know about the DEM grid:
+shape, affine transform, CRS, cell size in metres and the valid mask. Every
+product is written on that grid, tiled and compressed, float32 with a nodata
+value, a band description, units and the screening caution in its metadata.
+Writes go to a temporary name beside the target and are renamed when
+complete, so a reader never sees half a file.
+"""
+
+from __future__ import annotations
+
+import logging
+import os
+import warnings
+from dataclasses import dataclass
+from pathlib import Path
+
+import numpy as np
+import rasterio
+from rasterio.errors import RasterioIOError
+from rasterio.crs import CRS
+from rasterio.transform import Affine
+
+from .errors import InputWarning, RasterError
+
+log = logging.getLogger(__name__)
+
+NODATA = np.float32(-9999.0)
+"""Nodata value written in float32 products (NaN inside the package)."""
+
+CODE_NODATA = 0
+"""Nodata value of uint8 class bands (class 0 means 'no data')."""
+
+_FOOT = 0.3048
+_US_SURVEY_FOOT = 1200.0 / 3937.0
+
+
+@dataclass(frozen=True)
+class Grid:
+    """The DEM grid: geometry, CRS and valid mask.
+
+    Attributes
+    ----------
+    shape : tuple of int
+        (rows, cols).
+    transform : affine.Affine
+        Pixel-to-map transform of the DEM (north-up, not rotated).
+    crs : rasterio.crs.CRS
+        Projected CRS of the DEM.
+    dx_m, dy_m : float
+        Cell width and height in metres (positive).
+    valid : numpy.ndarray of bool
+        Cells with data. Everything outside it is nodata in every product.
+    path : pathlib.Path
+        The file the grid was read from.
+    linear_unit_m : float
+        Size of the CRS linear unit in metres (1 for metre CRSs).
+    """
+
+    shape: tuple
+    transform: Affine
+    crs: CRS
+    dx_m: float
+    dy_m: float
+    valid: np.ndarray
+    path: Path
+    linear_unit_m: float = 1.0
+
+    @property
+    def cell_area_m2(self) -> float:
+        """Plan area of one cell, m^2."""
+        return self.dx_m * self.dy_m
+
+
+def _linear_unit_in_metres(crs: CRS, path: Path) -> float:
+    """Size in metres of the CRS linear unit; refuse geographic or unitless CRSs."""
+    if crs is None:
+        raise RasterError(f"{path.name}: CRS: the raster has no coordinate reference system; "
+                          "assign its projected CRS (in metres or feet) before the run")
+    if crs.is_geographic:
+        raise RasterError(f"{path.name}: CRS: {crs.to_string()} is geographic (degrees); reproject "
+                          "the DEM to a projected CRS in metres (for example the local UTM zone)")
+    if not crs.is_projected:
+        raise RasterError(f"{path.name}: CRS: {crs.to_string()} is not a projected CRS; "
+                          "reproject the DEM to a projected CRS in metres")
+    try:
+        name, factor = crs.linear_units_factor
+    except Exception:  # rasterio raises CRSError for CRSs without linear units
+        raise RasterError(f"{path.name}: CRS: its linear unit is unknown; use a projected CRS "
+                          "in metres or feet") from None
+    if not factor or not np.isfinite(factor) or factor <= 0:
+        raise RasterError(f"{path.name}: CRS: linear unit {name!r} has no size in metres")
+    return float(factor)
+
+
+def read_dem(path, *, vertical_unit_m: float | None = None) -> tuple[np.ndarray, Grid]:
+    """Read a DEM GeoTIFF into float32 metres with NaN as nodata.
+
+    Parameters
+    ----------
+    path : str or os.PathLike
+        Single-band raster in a projected CRS (metre or foot linear unit).
+    vertical_unit_m : float, optional
+        Size of the elevation unit in metres. Default: the CRS linear unit
+        (a DEM in a foot CRS is taken to hold elevations in the same feet).
+
+    Returns
+    -------
+    z : numpy.ndarray of float32, shape (rows, cols)
+        Elevations in metres; NaN where nodata.
+    grid : Grid
+
+    Raises
+    ------
+    RasterError
+        Missing or unreadable file, geographic or missing CRS, rotated or
+        sheared transform, grid smaller than 3x3, or no valid cell.
+    """
+    path = Path(path)
+    if not path.is_file():
+        raise RasterError(f"{path}: DEM file not found")
+    try:
+        with rasterio.open(path) as src:
+            if src.count < 1:
+                raise RasterError(f"{path.name}: holds no raster band")
+            if src.count > 1:
+                log.info("%s has %d bands; band 1 is used as the DEM", path.name, src.count)
+            unit = _linear_unit_in_metres(src.crs, path)
+            t = src.transform
+            if t.b != 0 or t.d != 0:
+                raise RasterError(f"{path.name}: transform: the grid is rotated or sheared; "
+                                  "resample it to a north-up grid first")
+            if t.a <= 0 or t.e >= 0:
+                raise RasterError(f"{path.name}: transform: the grid is not north-up (pixel size "
+                                  f"{t.a:g}, {t.e:g}); write it north-up (positive x step, negative y step)")
+            if src.height < 3 or src.width < 3:
+                raise RasterError(f"{path.name}: grid is {src.height}x{src.width} cells; at least 3x3 is needed")
+            band = src.read(1, masked=True)
+            crs, transform = src.crs, src.transform
+    except RasterioIOError as exc:
+        raise RasterError(f"{path.name}: cannot be read as a raster ({_short(exc)})") from None
+    z = np.ma.filled(band.astype(np.float32), np.nan)
+    z[~np.isfinite(z)] = np.nan
+    valid = np.isfinite(z)
+    if not valid.any():
+        raise RasterError(f"{path.name}: every cell is nodata; nothing to compute")
+    vunit = unit if vertical_unit_m is None else float(vertical_unit_m)
+    if vunit != 1.0:
+        z *= np.float32(vunit)
+    if abs(unit - 1.0) > 1e-12:
+        log.info("%s: linear unit is %.6g m; cell sizes converted to metres", path.name, unit)
+    grid = Grid(shape=z.shape, transform=transform, crs=crs, dx_m=abs(transform.a) * unit,
+                dy_m=abs(transform.e) * unit, valid=valid, path=path, linear_unit_m=unit)
+    return z, grid
+
+
+def read_codes(path, grid: Grid, *, name: str) -> np.ndarray:
+    """Read an integer code raster (e.g. soil units) that must lie on the DEM grid.
+
+    Parameters
+    ----------
+    path : path-like
+        Single-band integer raster.
+    grid : Grid
+        The DEM grid it must match (shape, transform, CRS).
+    name : str
+        What the raster is, for messages (e.g. ``"soil map"``).
+
+    Returns
+    -------
+    codes : numpy.ndarray of int64
+        Codes; ``-1`` where the raster is nodata.
+    has_code : numpy.ndarray of bool
+        True where the raster holds a code.
+
+    Raises
+    ------
+    RasterError
+        Unreadable, another grid or CRS, non-integer values.
+    """
+    path = Path(path)
+    try:
+        with rasterio.open(path) as src:
+            if (src.height, src.width) != grid.shape:
+                raise RasterError(f"{path.name}: {name} grid is {src.height}x{src.width} but the DEM "
+                                  f"{grid.path.name} is {grid.shape[0]}x{grid.shape[1]}; put both on one grid")
+            if not np.allclose(tuple(src.transform)[:6], tuple(grid.transform)[:6], rtol=0,
+                               atol=1e-6 * max(abs(grid.transform.a), 1e-9)):
+                raise RasterError(f"{path.name}: {name} transform differs from the DEM "
+                                  f"{grid.path.name}; put both on one grid")
+            if src.crs is None or src.crs != grid.crs:
+                raise RasterError(f"{path.name}: {name} CRS differs from the DEM {grid.path.name}; "
+                                  "put both on one grid and CRS")
+            band = src.read(1, masked=True)
+    except RasterioIOError as exc:
+        raise RasterError(f"{path.name}: cannot be read as a raster ({_short(exc)})") from None
+    data = np.ma.filled(band.astype(np.float64), np.nan)
+    finite = np.isfinite(data)
+    if np.any(finite & (data != np.round(data))):
+        raise RasterError(f"{path.name}: {name} holds non-integer values; it must hold unit codes")
+    codes = np.where(finite, data, -1).astype(np.int64)
+    return codes, finite
+
+
+def _short(exc) -> str:
+    text = str(exc).strip().splitlines()[0] if str(exc).strip() else type(exc).__name__
+    return text if len(text) < 160 else text[:157] + "..."
+
+
+def write_raster(path, array, grid: Grid, *, description: str, units: str, caution: str,
+                 tags: dict | None = None) -> Path:
+    """Write one product band on the DEM grid, atomically.
+
+    float arrays are written as float32 with nodata :data:`NODATA` (NaN and
+    cells outside ``grid.valid`` become nodata); uint8 arrays (class codes)
+    are written as uint8 with nodata :data:`CODE_NODATA`.
+
+    Parameters
+    ----------
+    path : path-like
+        Target ``.tif``; the folder must exist.
+    array : numpy.ndarray, shape ``grid.shape``
+    grid : Grid
+    description, units, caution : str
+        Band description, units tag (e.g. ``"degrees"``, ``"m"``, ``"1"``) and
+        the screening caution stored in the dataset metadata.
+    tags : dict, optional
+        Extra dataset metadata.
+
+    Returns
+    -------
+    pathlib.Path
+        The written file.
+
+    Raises
+    ------
+    ValueError
+        Shape mismatch (rasterio would otherwise resample silently).
+    """
+    path = Path(path)
+    array = np.asarray(array)
+    if array.shape != tuple(grid.shape):
+        raise ValueError(f"{path.name}: array shape {array.shape} does not match grid {grid.shape}")
+    if array.dtype == np.uint8:
+        data = np.where(grid.valid, array, CODE_NODATA).astype(np.uint8)
+        dtype, nodata, predictor = "uint8", CODE_NODATA, 2
+    else:
+        data = np.asarray(array, dtype=np.float32)
+        data = np.where(grid.valid & np.isfinite(data), data, NODATA).astype(np.float32)
+        dtype, nodata, predictor = "float32", float(NODATA), 3
+    profile = {
+        "driver": "GTiff", "height": grid.shape[0], "width": grid.shape[1], "count": 1,
+        "dtype": dtype, "crs": grid.crs, "transform": grid.transform, "nodata": nodata,
+        "tiled": True, "blockxsize": 256, "blockysize": 256, "compress": "deflate",
+        "predictor": predictor, "BIGTIFF": "IF_SAFER",
+    }
+    tmp = path.with_name(f".{path.name}.partial")
+    try:
+        with warnings.catch_warnings():
+            # GDAL warns when the tile is larger than a small raster; harmless.
+            warnings.simplefilter("ignore", rasterio.errors.NotGeoreferencedWarning)
+            with rasterio.open(tmp, "w", **profile) as dst:
+                if dst.shape != data.shape:
+                    raise ValueError(f"{path.name}: writer shape {dst.shape} != data {data.shape}")
+                dst.write(data, 1)
+                dst.set_band_description(1, description)
+                dst.update_tags(1, units=units)
+                dst.update_tags(CAUTION=caution, units=units, **(tags or {}))
+        os.replace(tmp, path)
+    finally:
+        if tmp.exists():
+            tmp.unlink()
+    return path
+
+
+def read_back(path) -> tuple[np.ndarray, dict]:
+    """Read band 1 of a product as float with NaN for nodata, and its tags.
+
+    A convenience for tests and notebooks.
+    """
+    with rasterio.open(path) as src:
+        band = src.read(1, masked=True)
+        tags = src.tags()
+        tags.update({f"band_{k}": v for k, v in src.tags(1).items()})
+        tags["description"] = src.descriptions[0]
+    return np.ma.filled(band.astype(np.float64), np.nan), tags
+
+
+def warn_unusual_cells(grid: Grid) -> None:
+    """Warn when cells are far from square (routing accuracy drops)."""
+    ratio = max(grid.dx_m, grid.dy_m) / min(grid.dx_m, grid.dy_m)
+    if ratio > 3:
+        warnings.warn(f"{grid.path.name}: cells are {grid.dx_m:g} x {grid.dy_m:g} m (aspect {ratio:.1f}); "
+                      "flow routing on strongly rectangular cells is less accurate", InputWarning,
+                      stacklevel=2)

@@ -1,0 +1,1 @@
+"""What the user reads: cautions, maps and the HTML report."""
