@@ -86,8 +86,8 @@ class _Stages:
         self.progress = progress
 
     @contextmanager
-    def stage(self, name: str):
-        if self.progress is not None:
+    def stage(self, name: str, *, show: bool = True):
+        if show and self.progress is not None:
             self.progress(name)
         log.info("stage %s: start", name)
         start = time.perf_counter()
@@ -191,7 +191,7 @@ def run(scenario: Scenario, *, progress=None) -> RunResult:
     """
     stages = _Stages(progress)
     started = _dt.datetime.now(_dt.timezone.utc)
-    with stages.stage("read inputs"):
+    with stages.stage("read inputs", show=False):  # silent: bad input must print one line only
         inputs = read_inputs(scenario)
     z, grid = inputs.z, inputs.grid
     out = scenario.output
