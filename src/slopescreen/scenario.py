@@ -60,7 +60,6 @@ class SoilUnit:
     root_cohesion_kpa: Any
     friction_deg: Any
     unit_weight_kn_m3: Any
-    saturated_unit_weight_kn_m3: Any
     conductivity_m_per_day: Any
     diffusivity_m2_per_s: Any
 
@@ -294,7 +293,6 @@ SOIL_PROPERTIES = {
     "root_cohesion_kpa": (0.0, 500.0, False, None, None, False, 0.0),
     "friction_deg": (0.0, 60.0, True, None, None, True, None),
     "unit_weight_kn_m3": (10.0, 25.0, False, 14.0, 23.0, True, None),
-    "saturated_unit_weight_kn_m3": (10.0, 25.0, False, 14.0, 23.0, False, None),
     "conductivity_m_per_day": (0.0, 1.0e4, True, None, None, True, None),
     "diffusivity_m2_per_s": (0.0, 1.0, True, None, None, False, None),
 }
@@ -392,8 +390,6 @@ def _parse_soil_unit(table, ctx: Ctx, code: int) -> SoilUnit:
             values[key] = P.fixed(default)
         else:
             values[key] = None
-    if values["saturated_unit_weight_kn_m3"] is None:
-        values["saturated_unit_weight_kn_m3"] = values["unit_weight_kn_m3"]
     return SoilUnit(code=code, label=label, **values)
 
 
