@@ -83,3 +83,71 @@ def test_output_may_not_be_an_input(folder):
 def test_slugify():
     assert slugify("Forecast storm (8 h)") == "forecast-storm-8-h"
     assert slugify("***") == "case"
+
+
+SOIL = """
+[soil.units.1]
+depth_m = {depth}
+cohesion_kpa = 1.0
+friction_deg = 34.0
+unit_weight_kn_m3 = {gamma}
+conductivity_m_per_day = 2.0
+[[rain]]
+name = "wet"
+steady_mm_per_day = 50
+"""
+
+
+def soil(depth="1.0", gamma="18.0"):
+    return BASE + "[soil]" + SOIL.format(depth=depth, gamma=gamma)
+
+
+def test_soil_distributions_parsed(folder):
+    s = load(folder, soil(depth="{ lognormal = [1.2, 0.3] }"))
+    unit = s.soil.units[1]
+    assert unit.depth_m.kind == "lognormal"
+    assert unit.depth_m.central() == pytest.approx(1.2)  # median of a lognormal
+    assert unit.root_cohesion_kpa.central() == 0.0  # default basal root cohesion
+    assert unit.label == "unit 1"
+
+
+@pytest.mark.parametrize("depth, fragment", [
+    ("{ lognormal = [0.0, 0.3] }", "median must be > 0"),
+    ("{ normal = [1.0, -0.1] }", "standard deviation"),
+    ("{ gamma = [1.0, 2.0] }", "unknown distribution"),
+    ("{ uniform = [1.0] }", "two numbers"),
+    ("{ uniform = [2.0, 1.0] }", "greater than high"),
+    ("0.0", "must be >"),
+    ('"deep"', "expected a number"),
+])
+def test_bad_distributions(folder, depth, fragment):
+    expect_error(folder, soil(depth=depth), "soil.units.1.depth_m", fragment)
+
+
+def test_unusual_unit_weight_warns(folder):
+    from slopescreen.errors import InputWarning
+
+    with pytest.warns(InputWarning, match="unit_weight_kn_m3"):
+        load(folder, soil(gamma="24.0"))
+    expect_error(folder, soil(gamma="30.0"), "unit_weight_kn_m3")
+
+
+def test_storm_needs_diffusivity(folder):
+    text = soil() + '[[rain]]\nname = "storm"\nstorm_mm_per_h = 10\nduration_h = 4\nwater_table_depth_m = 1\n'
+    expect_error(folder, text, "diffusivity_m2_per_s", "storm")
+
+
+def test_rain_needs_soil(folder):
+    expect_error(folder, BASE + '[[rain]]\nname = "r"\nsteady_mm_per_day = 5\n', "soil")
+
+
+def test_duplicate_rain_names(folder):
+    text = soil() + '[[rain]]\nname = "wet"\nsteady_mm_per_day = 5\n'
+    expect_error(folder, text, "rain[1].name", "twice")
+
+
+def test_several_units_need_a_map(folder):
+    text = soil().replace("[[rain]]", "[soil.units.2]\ndepth_m = 1.0\ncohesion_kpa = 1.0\n"
+                          "friction_deg = 30.0\nunit_weight_kn_m3 = 18.0\n"
+                          "conductivity_m_per_day = 1.0\n[[rain]]")
+    expect_error(folder, text, "soil.map", "2 soil units")

@@ -79,6 +79,22 @@ def valley_dem(rows=400, cols=560, cell_m=4.0, seed=20261201):
     return z.astype(np.float32)
 
 
+def soil_units_map(z, cell_m=4.0):
+    """Soil-unit codes of the demo: 1 colluvium in hollows and on the lower slopes,
+    2 thin residual soil on the upper slopes and spurs.
+
+    A cell is colluvium when it lies below the valley's mid-height or in a
+    hollow (smoothed curvature is concave).
+    """
+    from scipy import ndimage
+
+    smooth = ndimage.gaussian_filter(z.astype(np.float64), 4.0)
+    curvature = ndimage.laplace(smooth) / cell_m**2
+    low = z < np.percentile(z, 45)
+    hollow = curvature > 0.002
+    return np.where(low | hollow, 1, 2).astype(np.uint8)
+
+
 def write_demo_inputs(folder) -> Path:
     """Write the demo DEM and scenario into ``folder``; return the scenario path."""
     folder = Path(folder)
@@ -94,6 +110,10 @@ def write_demo_inputs(folder) -> Path:
     with rasterio.open(folder / "verrow_dem.tif", "w", **profile) as dst:
         dst.write(z, 1)
         dst.update_tags(SOURCE="slopescreen demo: fictional Verrow valley, generated terrain")
+    codes = soil_units_map(z, cell)
+    with rasterio.open(folder / "verrow_soils.tif", "w", **(profile | {"dtype": "uint8", "nodata": 0})) as dst:
+        dst.write(codes, 1)
+        dst.update_tags(SOURCE="slopescreen demo: soil units of the fictional Verrow valley")
     scenario = folder / "verrow.toml"
     scenario.write_text(DEMO_SCENARIO, encoding="utf-8")
     return scenario
@@ -107,6 +127,43 @@ output = "results"
 
 [routing]
 method = "dinf"
+
+[soil]
+map = "verrow_soils.tif"
+
+[soil.units.1]
+label = "colluvium (hollows, lower slopes)"
+depth_m = { uniform = [1.0, 2.0] }
+cohesion_kpa = 1.0
+root_cohesion_kpa = { uniform = [1.0, 6.0] }
+friction_deg = { normal = [35.0, 2.5] }
+unit_weight_kn_m3 = 18.5
+conductivity_m_per_day = 2.0
+diffusivity_m2_per_s = 5.0e-5
+
+[soil.units.2]
+label = "thin residual soil (upper slopes, spurs)"
+depth_m = { uniform = [0.5, 1.0] }
+cohesion_kpa = 2.0
+root_cohesion_kpa = { uniform = [3.0, 10.0] }
+friction_deg = { normal = [38.0, 2.0] }
+unit_weight_kn_m3 = 19.0
+conductivity_m_per_day = 4.0
+diffusivity_m2_per_s = 1.0e-4
+
+[[rain]]
+name = "wet season"
+steady_mm_per_day = 60
+
+[[rain]]
+name = "forecast storm"
+storm_mm_per_h = 15
+duration_h = 8
+water_table_depth_m = 1.2
+
+[uncertainty]
+samples = 400
+seed = 7
 """
 
 

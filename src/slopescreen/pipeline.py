@@ -66,6 +66,7 @@ class Inputs:
     z: np.ndarray
     grid: Grid
     soil_codes: np.ndarray | None = None
+    area_m2: np.ndarray | None = None  # upslope area, filled in by the routing stage
 
 
 @dataclass
@@ -155,8 +156,8 @@ class _Writer:
         self.products.append(Product(key=key, path=name, kind=kind, units=units, rain=rain))
 
 
-def _terrain(z, grid, scenario, stages):
-    from .routing import specific_catchment_area
+def _terrain(z, grid, scenario, stages, inputs):
+    from .routing import flow_accumulation
     from .terrain import fill_depressions, slope_aspect
 
     with stages.stage("slope"):
@@ -164,10 +165,159 @@ def _terrain(z, grid, scenario, stages):
     with stages.stage("conditioning"):
         filled = fill_depressions(z)
     with stages.stage("routing"):
-        sca = specific_catchment_area(filled, grid.dx_m, grid.dy_m, method=scenario.routing.method,
-                                      mfd_exponent=scenario.routing.mfd_exponent)
+        flow = flow_accumulation(filled, grid.dx_m, grid.dy_m, method=scenario.routing.method,
+                                 mfd_exponent=scenario.routing.mfd_exponent)
     del filled
+    with np.errstate(invalid="ignore", divide="ignore"):
+        sca = (flow.area_m2 / flow.width_m).astype(np.float32)
+    inputs.area_m2 = flow.area_m2.astype(np.float32)
     return slope_deg, sca
+
+
+def unit_index_map(scenario: Scenario, inputs: Inputs) -> tuple[np.ndarray, list]:
+    """Map each valid cell to the row of its soil unit (units sorted by code).
+
+    Returns
+    -------
+    index : numpy.ndarray of int32
+        Row in ``units`` per cell; -1 where nodata or without a soil code.
+    units : list of SoilUnit
+        Units sorted by code.
+    """
+    units = [scenario.soil.units[c] for c in sorted(scenario.soil.units)]
+    valid = inputs.grid.valid
+    if inputs.soil_codes is None:
+        return np.where(valid, 0, -1).astype(np.int32), units
+    codes = np.array(sorted(scenario.soil.units), dtype=np.int64)
+    idx = np.searchsorted(codes, inputs.soil_codes)
+    idx = np.clip(idx, 0, len(codes) - 1)
+    ok = valid & (inputs.soil_codes >= 0) & (codes[idx] == inputs.soil_codes)
+    return np.where(ok, idx, -1).astype(np.int32), units
+
+
+def _central_maps(index: np.ndarray, units) -> dict:
+    """Per-cell central (median) value of each soil property; NaN where no unit."""
+    from .probability import PARAMETER_ORDER
+
+    maps = {}
+    for key in PARAMETER_ORDER:
+        values = np.array([np.nan if getattr(u, key) is None else getattr(u, key).central()
+                           for u in units] + [np.nan], dtype=np.float64)
+        maps[key] = values[index].astype(np.float32)  # index -1 picks the NaN at the end
+    return maps
+
+
+def _rain_model(case):
+    from .hydrology import SteadyRain, StormRain
+
+    if case.is_storm:
+        return StormRain(case.storm_mm_per_h, case.duration_h, case.water_table_depth_m)
+    return SteadyRain(case.steady_mm_per_day)
+
+
+def _varies(units) -> bool:
+    from .probability import PARAMETER_ORDER
+
+    return any(getattr(u, k) is not None and not getattr(u, k).is_fixed
+               for u in units for k in PARAMETER_ORDER)
+
+
+STORM_FLAGS = {1: "pressure head reached its cap (saturated to the surface)",
+               2: "rain intensity exceeded the saturated conductivity; the excess ran off",
+               4: "least FS comes late compared with A/D0: the short-time model is doubtful"}
+"""Bits of the ``storm_flags`` band."""
+
+
+def _stability(scenario: Scenario, inputs: Inputs, slope_deg, sca, w: "_Writer", stages) -> None:
+    """Wetness, factor of safety, critical recharge and probability of failure per rain case."""
+    from .hydrology import steady_wetness, storm_minimum, storm_pressure_head
+    from .probability import encode_table, failure_probability, fosm_reliability
+    from .stability import CLASS_LABELS, FS_CAP, critical_recharge, factor_of_safety
+
+    index, units = unit_index_map(scenario, inputs)
+    has_unit = index >= 0
+    slope = np.where(has_unit, slope_deg, np.nan).astype(np.float32)
+    a = np.where(has_unit, sca, np.nan).astype(np.float32)
+    m = _central_maps(index, units)
+    strength = dict(cohesion_kpa=m["cohesion_kpa"], root_cohesion_kpa=m["root_cohesion_kpa"],
+                    friction_deg=m["friction_deg"], unit_weight_kn_m3=m["unit_weight_kn_m3"])
+    fs_tags = {"FS_CAP": f"{FS_CAP:g} means at least {FS_CAP:g} (and flat ground)",
+               "PARAMETERS": "median of each soil-property distribution"}
+    with stages.stage("critical recharge"):
+        q_cr, klass = critical_recharge(slope, a, depth_m=m["depth_m"],
+                                        conductivity_m_per_day=m["conductivity_m_per_day"],
+                                        **strength)
+        w.raster("critical_recharge", q_cr, units="mm/day",
+                 description="Critical steady recharge for FS = 1 (Montgomery-Dietrich), mm/day; "
+                             "nodata where the class band says no rate applies")
+        w.raster("critical_recharge_class", klass.astype(np.uint8), units="class",
+                 description="Stability class of the critical-recharge balance",
+                 tags={f"CLASS_{k}": v for k, v in CLASS_LABELS.items()})
+    table = encode_table([{k: getattr(u, k) for k in _table_keys(u)} for u in units])
+    unc = scenario.uncertainty
+    for case in scenario.rain:
+        rain = _rain_model(case)
+        with stages.stage(f"stability: {case.name}"):
+            if not case.is_storm:
+                wet = steady_wetness(a, slope, recharge_mm_per_day=case.steady_mm_per_day,
+                                     conductivity_m_per_day=m["conductivity_m_per_day"],
+                                     depth_m=m["depth_m"])
+                fs = factor_of_safety(slope, m["depth_m"], wet, **strength)
+            else:
+                hydro = dict(water_table_depth_m=case.water_table_depth_m,
+                             intensity_m_per_s=case.storm_mm_per_h / 3.6e6,
+                             conductivity_m_per_s=m["conductivity_m_per_day"] / 86400.0,
+                             diffusivity_m2_per_s=m["diffusivity_m2_per_s"],
+                             duration_s=case.duration_h * 3600.0)
+                least = storm_minimum(slope, soil_depth_m=m["depth_m"],
+                                      contributing_area_m2=np.where(has_unit, inputs.area_m2, np.nan),
+                                      **hydro, **strength)
+                fs = least.fs
+                psi = storm_pressure_head(least.depth_m, least.time_s, slope_deg=slope, **hydro)
+                cos2 = np.cos(np.radians(slope.astype(np.float64))) ** 2
+                with np.errstate(invalid="ignore", divide="ignore"):
+                    wet = np.clip(psi / (least.depth_m * cos2), 0.0, 1.0).astype(np.float32)
+                flags = (least.cap_bound * 1 + least.runoff * 2
+                         + least.short_time_doubtful * 4).astype(np.uint8)
+                w.raster("storm_failure_depth", least.depth_m, units="m", rain=case,
+                         description="Vertical depth of the least storm FS, m")
+                w.raster("storm_failure_time", least.time_s / 3600.0, units="h", rain=case,
+                         description="Time of the least storm FS since the storm began, h")
+                w.raster("storm_flags", np.where(has_unit, flags + 8, 0).astype(np.uint8),
+                         units="bit flags", rain=case,
+                         description="Where the storm model's limits bind (bits; 8 = computed)",
+                         tags={f"BIT_{k}": v for k, v in STORM_FLAGS.items()} | {"BIT_8": "computed"})
+            w.raster("wetness", wet, units="1", rain=case,
+                     description="Wetness h_w/z (saturated fraction of the soil column)")
+            w.raster("factor_of_safety", fs, units="1", rain=case, tags=fs_tags,
+                     description="Infinite-slope factor of safety (median parameters)")
+        if unc is None and not _varies(units):
+            continue
+        unc = unc or _default_uncertainty()
+        with stages.stage(f"probability of failure: {case.name}"):
+            if unc.method == "fosm":
+                p_f = fosm_reliability(slope, a, index, table, rain).p_f
+                how = "first-order second-moment (FOSM), FS taken as normal"
+            else:
+                p_f, _se = failure_probability(slope, a, index, table, rain, samples=unc.samples,
+                                               seed=unc.seed, correlation=unc.correlation)
+                how = (f"Monte Carlo, {unc.samples} samples, seed {unc.seed}, "
+                       f"independent draws per {unc.correlation}")
+            w.raster("failure_probability", p_f, units="1", rain=case,
+                     description="Probability that FS < 1 given the parameter distributions",
+                     tags={"METHOD": how})
+
+
+def _table_keys(unit):
+    from .probability import PARAMETER_ORDER
+
+    return [k for k in PARAMETER_ORDER if getattr(unit, k) is not None]
+
+
+def _default_uncertainty():
+    from .scenario import Uncertainty
+
+    return Uncertainty()
 
 
 def run(scenario: Scenario, *, progress=None) -> RunResult:
@@ -200,16 +350,14 @@ def run(scenario: Scenario, *, progress=None) -> RunResult:
     staging.mkdir()
     try:
         w = _Writer(staging, grid)
-        slope_deg, sca = _terrain(z, grid, scenario, stages)
+        slope_deg, sca = _terrain(z, grid, scenario, stages, inputs)
         with stages.stage("write terrain products"):
             w.raster("slope", slope_deg, units="degrees",
                      description="Slope of the original DEM (Horn 1981), degrees")
             w.raster("specific_catchment_area", sca, units="m",
                      description=f"Specific catchment area a = A/b, m ({scenario.routing.method})")
         if scenario.soil is not None:
-            from .stages import stability_stage  # the stability stage, when configured
-
-            stability_stage(scenario, inputs, slope_deg, sca, w, stages)
+            _stability(scenario, inputs, slope_deg, sca, w, stages)
         manifest = _manifest(scenario, grid, w.products, stages.timings, started)
         _commit(staging, out, w.products, manifest,
                 protected={p.resolve() for p in scenario.input_files()})
@@ -243,8 +391,37 @@ def _manifest(scenario: Scenario, grid: Grid, products, timings, started) -> dic
                     "mfd_exponent": scenario.routing.mfd_exponent
                     if scenario.routing.method == "mfd" else None},
         "conventions": CONVENTIONS,
+        "soil": _soil_record(scenario),
+        "rain": [{k: v for k, v in vars(r).items() if v is not None} for r in scenario.rain],
+        "uncertainty": None if scenario.uncertainty is None else vars(scenario.uncertainty),
         "stage_seconds": timings,
     }
+
+
+def _parameter_record(p) -> dict | float | None:
+    if p is None:
+        return None
+    if p.is_fixed:
+        return p.central()
+    names = {"uniform": ("low", "high"), "normal": ("mean", "sd"),
+             "lognormal": ("median", "sd_of_log")}[p.kind]
+    rec = {"distribution": p.kind, names[0]: p.a, names[1]: p.b}
+    if p.kind != "uniform":
+        rec["truncated_to"] = [v if np.isfinite(v) else None for v in (p.low, p.high)]
+    return rec
+
+
+def _soil_record(scenario: Scenario):
+    if scenario.soil is None:
+        return None
+    from .probability import PARAMETER_ORDER
+
+    units = []
+    for code in sorted(scenario.soil.units):
+        u = scenario.soil.units[code]
+        units.append({"code": code, "label": u.label}
+                     | {k: _parameter_record(getattr(u, k)) for k in PARAMETER_ORDER})
+    return {"map": None if scenario.soil.map is None else scenario.soil.map.name, "units": units}
 
 
 def _commit(staging: Path, out: Path, products, manifest: dict, *, protected=frozenset()) -> None:
