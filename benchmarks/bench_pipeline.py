@@ -58,11 +58,39 @@ def peak_rss_bytes() -> int:
     return resource.getrusage(resource.RUSAGE_SELF).ru_maxrss * 1024
 
 
+def stability_share(slope, sca, terrain_s) -> None:
+    """Time the deterministic stability products on the same tile (one soil unit, scalars)."""
+    from slopescreen.hydrology import steady_wetness
+    from slopescreen.stability import critical_recharge, factor_of_safety
+
+    soil = dict(cohesion_kpa=2.0, root_cohesion_kpa=3.0, friction_deg=35.0, unit_weight_kn_m3=18.5)
+    small = (slice(0, 50), slice(0, 50))  # warm-up compiles the kernels
+    w = steady_wetness(sca[small], slope[small], recharge_mm_per_day=60.0,
+                       conductivity_m_per_day=2.0, depth_m=1.2)
+    factor_of_safety(slope[small], 1.2, w, **soil)
+    critical_recharge(slope[small], sca[small], depth_m=1.2, conductivity_m_per_day=2.0, **soil)
+    t0 = time.perf_counter()
+    w = steady_wetness(sca, slope, recharge_mm_per_day=60.0, conductivity_m_per_day=2.0, depth_m=1.2)
+    t1 = time.perf_counter()
+    fs = factor_of_safety(slope, 1.2, w, **soil)
+    t2 = time.perf_counter()
+    q, klass = critical_recharge(slope, sca, depth_m=1.2, conductivity_m_per_day=2.0, **soil)
+    t3 = time.perf_counter()
+    det = t3 - t0
+    print(f"  stability: wetness {t1 - t0:5.1f} s | FS {t2 - t1:5.1f} s | critical recharge "
+          f"{t3 - t2:5.1f} s | total {det:5.1f} s = {100 * det / terrain_s:4.1f} % of terrain+routing"
+          f" (target < 10 %) | peak RSS {peak_rss_bytes() / 2**30:5.2f} GiB")
+    del w, fs, q, klass
+
+
 def main() -> None:
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("--size", type=int, default=10_000)
     ap.add_argument("--methods", default="dinf")
     ap.add_argument("--cell", type=float, default=1.0, help="cell size, m")
+    ap.add_argument("--stability", action="store_true",
+                    help="also time steady wetness, factor of safety and critical recharge "
+                         "(first method only) and print their share of the terrain stage")
     args = ap.parse_args()
 
     path = make_dem(args.size)
@@ -96,6 +124,8 @@ def main() -> None:
               f" | total {total:6.1f} s | {cells / total / 1e6:5.2f} M cells/s"
               f" | peak RSS {peak_rss_bytes() / 2**30:5.2f} GiB = {peak_rss_bytes() / cells:5.1f} B/cell")
         assert np.isfinite(sca).all()
+        if args.stability and method == args.methods.split(",")[0]:
+            stability_share(slope, sca, total)
         del slope, sca
     print("targets (issue 2): total <= 90 s and <= 40 B/cell at 10,000 x 10,000")
 
