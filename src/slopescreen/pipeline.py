@@ -358,6 +358,10 @@ def run(scenario: Scenario, *, progress=None) -> RunResult:
                      description=f"Specific catchment area a = A/b, m ({scenario.routing.method})")
         if scenario.soil is not None:
             _stability(scenario, inputs, slope_deg, sca, w, stages)
+        for section in ("clusters", "corridor", "inventory"):
+            if getattr(scenario, section) is not None:
+                log.warning("[%s] is validated, but its stage is not built in this version; "
+                            "no %s product was written", section, section)
         manifest = _manifest(scenario, grid, w.products, stages.timings, started)
         _commit(staging, out, w.products, manifest,
                 protected={p.resolve() for p in scenario.input_files()})

@@ -58,6 +58,7 @@ class SoilUnit:
     depth_m: Any
     cohesion_kpa: Any
     root_cohesion_kpa: Any
+    lateral_root_cohesion_kpa: Any
     friction_deg: Any
     unit_weight_kn_m3: Any
     conductivity_m_per_day: Any
@@ -108,10 +109,16 @@ class Uncertainty:
 
 @dataclass(frozen=True)
 class Clusters:
-    """``[clusters]``: area band of multi-cell failure clusters, m^2."""
+    """``[clusters]``: multi-cell failure clusters.
+
+    ``min_area_m2``/``max_area_m2`` bound the size-resolved search;
+    ``passive_fraction`` is the share of full Rankine passive resistance
+    counted at the toe (full passive pressure needs large strains).
+    """
 
     min_area_m2: float
     max_area_m2: float
+    passive_fraction: float = 0.5
 
 
 @dataclass(frozen=True)
@@ -291,6 +298,7 @@ SOIL_PROPERTIES = {
     "depth_m": (0.0, 20.0, True, None, 5.0, True, None),
     "cohesion_kpa": (0.0, 500.0, False, None, None, True, None),
     "root_cohesion_kpa": (0.0, 500.0, False, None, None, False, 0.0),
+    "lateral_root_cohesion_kpa": (0.0, 500.0, False, None, None, False, 0.0),
     "friction_deg": (0.0, 60.0, True, None, None, True, None),
     "unit_weight_kn_m3": (10.0, 25.0, False, 14.0, 23.0, True, None),
     "conductivity_m_per_day": (0.0, 1.0e4, True, None, None, True, None),
@@ -468,12 +476,14 @@ def _parse_uncertainty(table, ctx: Ctx, base: Path):
 
 
 def _parse_clusters(table, ctx: Ctx, base: Path):
-    check_keys(table, ctx, {"min_area_m2", "max_area_m2"}, required=("min_area_m2", "max_area_m2"))
+    check_keys(table, ctx, {"min_area_m2", "max_area_m2", "passive_fraction"},
+               required=("min_area_m2", "max_area_m2"))
     lo = get_number(table, "min_area_m2", ctx, low=0.0, low_open=True)
     hi = get_number(table, "max_area_m2", ctx, low=0.0, low_open=True)
     if lo > hi:
         raise ctx.child("min_area_m2").fail(f"{lo:g} is greater than max_area_m2 {hi:g}")
-    return {"clusters": Clusters(min_area_m2=lo, max_area_m2=hi)}
+    passive = get_number(table, "passive_fraction", ctx, default=0.5, low=0.0, high=1.0)
+    return {"clusters": Clusters(min_area_m2=lo, max_area_m2=hi, passive_fraction=passive)}
 
 
 def _parse_corridor(table, ctx: Ctx, base: Path):
