@@ -115,3 +115,24 @@ def test_codes_on_another_grid_refused(tmp_path):
                       nodata=0, transform=from_origin(500001.0, 5100000.0, 5.0, 5.0))
     with pytest.raises(RasterError, match="transform"):
         read_codes(codes, grid, name="soil map")
+
+
+def test_undeclared_float_sentinel_is_nodata(tmp_path):
+    # -3.4028235e38 is the lowest float32 (IEEE 754), often left as undeclared nodata
+    from slopescreen.errors import InputWarning
+
+    z = tilted_plane()
+    z[0, :] = np.finfo(np.float32).min
+    path = write_tif(tmp_path / "d.tif", z, nodata=None)
+    with pytest.warns(InputWarning, match="nodata"):
+        out, grid = read_dem(path)
+    assert not grid.valid[0].any() and grid.valid[1:].all()
+
+
+def test_implausible_elevations_warn(tmp_path):
+    from slopescreen.errors import InputWarning
+
+    z = tilted_plane()
+    z[5, 5] = -9999.0  # a nodata value the file does not declare
+    with pytest.warns(InputWarning, match="check the nodata value"):
+        read_dem(write_tif(tmp_path / "d.tif", z, nodata=None))

@@ -142,7 +142,18 @@ def read_dem(path, *, vertical_unit_m: float | None = None) -> tuple[np.ndarray,
         raise RasterError(f"{path.name}: cannot be read as a raster ({_short(exc)})") from None
     z = np.ma.filled(band.astype(np.float32), np.nan)
     z[~np.isfinite(z)] = np.nan
+    sentinel = z < -1.0e30  # float32 lowest, a common undeclared nodata value
+    if sentinel.any():
+        warnings.warn(f"{path.name}: {int(sentinel.sum())} cells hold about -3.4e38 but no nodata value "
+                      "is declared; they are taken as nodata (declare the nodata value in the file)",
+                      InputWarning, stacklevel=2)
+        z[sentinel] = np.nan
     valid = np.isfinite(z)
+    if valid.any():
+        low, high = float(np.nanmin(z)), float(np.nanmax(z))
+        if low < -500.0 or high > 9000.0:
+            warnings.warn(f"{path.name}: elevations range from {low:g} to {high:g} (file units); "
+                          "check the nodata value and the vertical unit", InputWarning, stacklevel=2)
     if not valid.any():
         raise RasterError(f"{path.name}: every cell is nodata; nothing to compute")
     vunit = unit if vertical_unit_m is None else float(vertical_unit_m)
