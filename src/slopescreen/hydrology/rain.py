@@ -1,0 +1,101 @@
+"""Rain cases: steady recharge (:class:`SteadyRain`) and a storm (:class:`StormRain`).
+
+The probability module reuses them.
+"""
+
+import dataclasses
+import math
+
+from ..errors import InputError
+
+
+_INF = math.inf
+
+
+def _positive(value, name, *, allow_zero=True):
+    try:
+        v = float(value)
+    except (TypeError, ValueError):
+        raise InputError(f"{name}: expected a number, got {value!r}") from None
+    if not math.isfinite(v) or v < 0.0 or (v == 0.0 and not allow_zero):
+        rel = ">= 0" if allow_zero else "> 0"
+        raise InputError(f"{name}: expected a finite number {rel}, got {value!r}")
+    return v
+
+
+@dataclasses.dataclass(frozen=True)
+class SteadyRain:
+    """A steady recharge case.
+
+    Parameters
+    ----------
+    recharge_mm_per_day : float
+        Steady recharge q per unit horizontal area, mm/day (>= 0).
+
+    Examples
+    --------
+    >>> SteadyRain(60.0).recharge_mm_per_day
+    60.0
+    """
+
+    recharge_mm_per_day: float
+
+    def __post_init__(self):
+        object.__setattr__(
+            self, "recharge_mm_per_day", _positive(self.recharge_mm_per_day, "recharge_mm_per_day")
+        )
+
+
+@dataclasses.dataclass(frozen=True)
+class StormRain:
+    """A storm of constant intensity on near-saturated soil (Iverson 2000).
+
+    Parameters
+    ----------
+    intensity_mm_per_h : float
+        Rain intensity, mm/h (>= 0). Only min(I, K_s) infiltrates.
+    duration_h : float
+        Storm duration, h (>= 0).
+    water_table_depth_m : float
+        Vertical depth d of the water table before the storm, m (>= 0).
+    steady_ratio : float, keyword-only
+        Long-term steady infiltration ratio (I_Z/K_Z)_LT in [0, 1]; beta =
+        cos^2(slope) - steady_ratio (clipped at 0). Default 0.
+    horizon_h : float or None, keyword-only
+        Latest time considered, h from the storm start. None: the whole
+        response, up to the post-storm peak of the head at each depth.
+
+    Examples
+    --------
+    >>> StormRain(15.0, 8.0, 1.2).duration_s
+    28800.0
+    """
+
+    intensity_mm_per_h: float
+    duration_h: float
+    water_table_depth_m: float
+    steady_ratio: float = dataclasses.field(default=0.0, kw_only=True)
+    horizon_h: float | None = dataclasses.field(default=None, kw_only=True)
+
+    def __post_init__(self):
+        for key in ("intensity_mm_per_h", "duration_h", "water_table_depth_m", "steady_ratio"):
+            object.__setattr__(self, key, _positive(getattr(self, key), key))
+        if self.steady_ratio > 1.0:
+            raise InputError(f"steady_ratio: expected a value in [0, 1], got {self.steady_ratio}")
+        if self.horizon_h is not None:
+            object.__setattr__(self, "horizon_h", _positive(self.horizon_h, "horizon_h"))
+
+    @property
+    def intensity_m_per_s(self):
+        """Intensity in m/s."""
+        return self.intensity_mm_per_h / 3.6e6
+
+    @property
+    def duration_s(self):
+        """Duration in s."""
+        return self.duration_h * 3600.0
+
+    @property
+    def horizon_s(self):
+        """Horizon in s, or +inf when none is set."""
+        return _INF if self.horizon_h is None else self.horizon_h * 3600.0

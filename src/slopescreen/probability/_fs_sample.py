@@ -1,0 +1,30 @@
+"""Factor of safety of one cell for one set of parameter values (numba).
+
+Shared by the Monte Carlo and FOSM kernels: steady wetness or the least FS
+of Iverson's storm response.
+"""
+
+from .._numba import njit
+from ..hydrology import _storm_min_point, _wetness_point
+from ..stability import _steady_fs_point
+from ._inputs import _STEADY
+
+
+@njit
+def _sample_fs(depth, cohesion, tan_phi, gamma, cond, diff, sin_t, cos_t, inflow, rain_kind,
+               intensity, duration, wt_depth, steady_ratio, horizon, n_depths):
+    """FS of one cell for one set of parameter values.
+
+    Steady rain: ``inflow`` = q a in m^2/day, ``cond`` in m/day; FS with W from
+    the steady wetness and one bulk unit weight. Storm: least FS over time
+    (and over n_depths depths) of Iverson's model; intensity in m/s,
+    duration and horizon in s, water-table depth in m, diffusivity in m^2/s.
+    """
+    if rain_kind == _STEADY:
+        w = _wetness_point(inflow, cond, depth, sin_t, cos_t)
+        return _steady_fs_point(cohesion, tan_phi, sin_t, cos_t, depth, w, gamma, gamma)
+    fs, _, _, _ = _storm_min_point(
+        depth, n_depths, sin_t, cos_t, wt_depth, intensity, cond / 86400.0, diff, duration,
+        steady_ratio, horizon, cohesion, tan_phi, gamma, False, False,
+    )
+    return fs
