@@ -1,0 +1,595 @@
+"""Forces on a multi-cell slide: basal terms per cell, earth-pressure terms per face.
+
+A candidate slide is a set S of grid cells. Each cell i carries a driving
+force D_i and a basal resisting force R_i (kN) such that a lone cell with no
+margins has the infinite-slope factor of safety R_i / D_i of
+:mod:`slopescreen.stability`. Each of the four faces of a cell (east, north,
+west, south: codes 0..3, the even neighbour codes of
+:mod:`slopescreen._neighbours` divided by 2) carries a resistance W[k, i]
+and an active thrust H[k, i] (kN) that count when i is in S and the cell
+across face k is not. Then (METHODS.md section 9.1)::
+
+    FS(S) = (R(S) + B(S)) / (D(S) + H(S))
+
+with B and H summed over the margin faces of S.
+"""
+
+import math
+from typing import NamedTuple
+
+import numpy as np
+
+from .. import _checks
+from .._numba import njit, njit_parallel, prange
+from ..errors import InputError
+from ..parameters import _field, _physical_field
+from ..stability import FS_CAP, GAMMA_W, _fs_point, _rad
+
+__all__ = [
+    "FACE_DROW",
+    "FACE_DCOL",
+    "ClusterForces",
+    "earth_pressure_coefficients",
+    "face_pressures",
+    "cluster_forces",
+    "cluster_factor_of_safety",
+    "nonsubmodular_faces",
+]
+
+FACE_DROW = np.array([0, -1, 0, 1], dtype=np.int64)
+"""Row step across face k (0 east, 1 north, 2 west, 3 south)."""
+
+FACE_DCOL = np.array([1, 0, -1, 0], dtype=np.int64)
+"""Column step across face k."""
+
+# outward unit normal of face k in map coordinates (east, north)
+_NORMAL_E = np.array([1.0, 0.0, -1.0, 0.0])
+_NORMAL_N = np.array([0.0, 1.0, 0.0, -1.0])
+
+
+class ClusterForces(NamedTuple):
+    """Per-cell and per-face force terms of :func:`cluster_forces` (float64, kN).
+
+    Invalid (nodata) cells hold NaN and ``valid`` is False there.
+    """
+
+    driving: np.ndarray
+    """D_i = W_col A sin(theta), shape (rows, cols)."""
+    resisting: np.ndarray
+    """R_i = max(0, C + (W_col cos^2 - u) tan phi) A / cos(theta), shape (rows, cols)."""
+    face_resistance: np.ndarray
+    """W[k, i]: resistance of face k of cell i when i is in S and its neighbour is not, (4, rows, cols)."""
+    face_thrust: np.ndarray
+    """H[k, i]: active thrust on face k of cell i (head faces only), (4, rows, cols)."""
+    valid: np.ndarray
+    """Cells that can belong to a cluster (every input finite)."""
+    cell_fs: np.ndarray
+    """Infinite-slope FS of each cell (float32, clipped to [0, FS_CAP] as in stability)."""
+    depth_m: np.ndarray
+    """Vertical soil depth z per cell, m (float64)."""
+    downslope: np.ndarray
+    """Unit downslope direction (east, north) per cell, shape (2, rows, cols); 0 on flat cells."""
+    dx: float
+    """Cell width east-west, m."""
+    dy: float
+    """Cell height north-south, m."""
+
+
+def earth_pressure_coefficients(friction_deg):
+    """Rankine active and passive, and Jaky at-rest earth-pressure coefficients.
+
+    Parameters
+    ----------
+    friction_deg : array_like
+        Effective friction angle phi', degrees in [0, 60].
+
+    Returns
+    -------
+    k_a, k_p, k0_simplified, k0_jaky : numpy.ndarray of float64
+        Rankine K_a and K_p for a level backfill and a smooth vertical face;
+        the usual simplified Jaky K_0 = 1 - sin(phi') and Jaky's 1944 full
+        expression.
+
+    Raises
+    ------
+    InputError
+        Friction angle outside [0, 60] degrees, infinite, or all NaN.
+
+    Notes
+    -----
+    ::
+
+        K_a = tan^2(45 - phi'/2) = (1 - sin phi') / (1 + sin phi'),    K_p = 1 / K_a
+        K_0 = 1 - sin phi'                                   (simplified form)
+        K_0 = (1 - sin phi') (1 + 2/3 sin phi') / (1 + sin phi')    (Jaky 1944)
+
+    At phi' = 30 degrees: K_a = 1/3, K_p = 3, K_0 = 0.5 (simplified) and
+    0.444 (full). The level-backfill coefficients are used on sloping ground
+    too (a limitation: coefficients for an inclined cohesive backfill, e.g.
+    Mazindrani and Ganjali 1997, differ on steep slopes).
+
+    References
+    ----------
+    Rankine, W.J.M. (1857). On the stability of loose earth. Phil. Trans. R.
+    Soc. London 147, 9-27 (from memory).
+    Jaky, J. (1944). A nyugalmi nyomas tenyezoje (The coefficient of earth
+    pressure at rest). J. Soc. Hungarian Architects and Engineers 78(22),
+    355-358 (journal, volume and pages from memory).
+    Michalowski, R.L. (2005). Coefficient of earth pressure at rest. J.
+    Geotech. Geoenviron. Eng. 131(11), 1429-1433.
+    doi 10.1061/(ASCE)1090-0241(2005)131:11(1429)
+
+    Examples
+    --------
+    >>> ka, kp, k0, k0j = earth_pressure_coefficients(30.0)
+    >>> round(float(ka), 6), round(float(kp), 6), round(float(k0), 6), round(float(k0j), 6)
+    (0.333333, 3.0, 0.5, 0.444444)
+    """
+    phi = _physical_field(friction_deg, "friction_deg").astype(np.float64)
+    s = np.sin(np.radians(phi))
+    ka = (1.0 - s) / (1.0 + s)
+    kp = (1.0 + s) / (1.0 - s)
+    k0 = 1.0 - s
+    k0j = (1.0 - s) * (1.0 + 2.0 / 3.0 * s) / (1.0 + s)
+    return ka, kp, k0, k0j
+
+
+@njit
+def _sigma_v_integral(z, hw, gm, gs):
+    """Integral over the face height of the effective vertical stress, kN/m.
+
+    Water table h_w above the base (vertical); gamma_m above it, buoyant
+    gamma_sat - gamma_w below it.
+    """
+    t = z - hw
+    return 0.5 * gm * t * t + gm * t * hw + 0.5 * (gs - GAMMA_W) * hw * hw
+
+
+@njit
+def _positive_part_integral(a0, a1, length):
+    """Integral over [0, length] of max(0, f) with f linear from a0 to a1."""
+    if length <= 0.0:
+        return 0.0
+    if a0 >= 0.0 and a1 >= 0.0:
+        return 0.5 * (a0 + a1) * length
+    if a0 <= 0.0 and a1 <= 0.0:
+        return 0.0
+    hi = max(a0, a1)
+    return 0.5 * hi * hi / abs(a1 - a0) * length
+
+
+@njit
+def _face_per_length(z, m, gm, gs, coh, root_lat, tan_phi, sin_phi, passive_fraction, jaky_full):
+    """(toe resistance, head resistance, side resistance, active thrust) per metre of face, kN/m."""
+    ka = (1.0 - sin_phi) / (1.0 + sin_phi)
+    kp = (1.0 + sin_phi) / (1.0 - sin_phi)
+    k0 = 1.0 - sin_phi
+    if jaky_full:
+        k0 = (1.0 - sin_phi) * (1.0 + 2.0 / 3.0 * sin_phi) / (1.0 + sin_phi)
+    hw = m * z
+    sv = _sigma_v_integral(z, hw, gm, gs)
+    toe = passive_fraction * (kp * sv + 2.0 * coh * math.sqrt(kp) * z)
+    head = root_lat * z
+    side = (coh + root_lat) * z + k0 * tan_phi * sv
+    t = z - hw
+    s_t = gm * t
+    s_z = s_t + (gs - GAMMA_W) * hw
+    off = 2.0 * coh * math.sqrt(ka)
+    thrust = (_positive_part_integral(-off, ka * s_t - off, t)
+              + _positive_part_integral(ka * s_t - off, ka * s_z - off, hw))
+    return toe, head, side, thrust
+
+
+def face_pressures(depth_m, wetness, *, cohesion_kpa, lateral_root_cohesion_kpa, friction_deg,
+                   unit_weight_kn_m3, saturated_unit_weight_kn_m3=None, passive_fraction=0.5,
+                   jaky_full=False):
+    """Earth-pressure forces per metre of a vertical face through the soil mantle.
+
+    Parameters
+    ----------
+    depth_m : float
+        Vertical face height z (the soil depth), m (> 0).
+    wetness : float
+        Saturated fraction m = h_w / z in [0, 1] (water table h_w above the base).
+    cohesion_kpa : float
+        Effective soil cohesion c', kPa (>= 0).
+    lateral_root_cohesion_kpa : float
+        Root cohesion across the side and head faces, kPa (>= 0), depth-uniform.
+    friction_deg : float
+        phi', degrees in [0, 60).
+    unit_weight_kn_m3 : float
+        Moist unit weight gamma_m, kN/m^3.
+    saturated_unit_weight_kn_m3 : float, optional
+        gamma_sat (>= 9.81), default gamma_m.
+    passive_fraction : float
+        Share eta in [0, 1] of full Rankine passive resistance counted at the toe.
+    jaky_full : bool
+        Use Jaky's full 1944 K_0 instead of 1 - sin(phi').
+
+    Returns
+    -------
+    dict
+        ``toe`` (eta P_p), ``head`` (root resistance c_r,lat z), ``side``
+        (at-rest friction plus cohesion) and ``active`` (P_a), all kN/m.
+
+    Raises
+    ------
+    InputError
+        A value outside its range.
+
+    Notes
+    -----
+    With sigma'_v(zeta) the effective vertical stress at depth zeta
+    (gamma_m above the water table, gamma_sat - gamma_w below)::
+
+        P_p  = int_0^z [K_p sigma'_v + 2 c' sqrt K_p] dzeta
+        P_a  = int_0^z max(0, K_a sigma'_v - 2 c' sqrt K_a) dzeta
+        side = int_0^z [c' + c_r,lat + K_0 sigma'_v tan phi'] dzeta
+        head = c_r,lat z
+
+    Faces carry effective stresses only: for a water table of one height
+    the hydrostatic thrusts on a slide's head and toe are equal and
+    opposite, and they are left out. Soil cohesion at the head is taken as
+    lost to the tension crack (it only reduces the active thrust); roots
+    crossing the head scarp resist there. Lateral root cohesion is a
+    depth-average (Milledge et al. 2014 let it decay with depth).
+
+    References
+    ----------
+    Milledge, D.G., Bellugi, D., McKean, J.A., Densmore, A.L., Dietrich,
+    W.E. (2014). A multidimensional stability model for predicting shallow
+    landslide size and shape across landscapes. J. Geophys. Res. Earth
+    Surface 119, 2481-2504. doi 10.1002/2014JF003135
+    Rankine (1857); Jaky (1944): see :func:`earth_pressure_coefficients`.
+
+    Examples
+    --------
+    >>> f = face_pressures(1.0, 0.0, cohesion_kpa=0.0, lateral_root_cohesion_kpa=0.0,
+    ...     friction_deg=30.0, unit_weight_kn_m3=18.0, passive_fraction=1.0)
+    >>> round(f["toe"], 6), round(f["active"], 6)   # 1/2 K gamma z^2
+    (27.0, 3.0)
+    """
+    vals = {}
+    for key, v, lo, hi in (("depth_m", depth_m, 0.0, math.inf), ("wetness", wetness, 0.0, 1.0),
+                           ("cohesion_kpa", cohesion_kpa, 0.0, math.inf),
+                           ("lateral_root_cohesion_kpa", lateral_root_cohesion_kpa, 0.0, math.inf),
+                           ("friction_deg", friction_deg, 0.0, 60.0),
+                           ("unit_weight_kn_m3", unit_weight_kn_m3, 0.0, 30.0),
+                           ("passive_fraction", passive_fraction, 0.0, 1.0)):
+        vals[key] = float(_field(v, key, lo, hi, allow_nan=False))
+    gs = vals["unit_weight_kn_m3"] if saturated_unit_weight_kn_m3 is None else float(
+        _field(saturated_unit_weight_kn_m3, "saturated_unit_weight_kn_m3", GAMMA_W, 30.0,
+               allow_nan=False))
+    if vals["friction_deg"] >= 60.0 or gs < GAMMA_W and vals["wetness"] > 0.0:
+        raise InputError("friction_deg must be < 60 and the saturated unit weight >= 9.81 kN/m^3")
+    phi = math.radians(vals["friction_deg"])
+    toe, head, side, thrust = _face_per_length(
+        vals["depth_m"], vals["wetness"], vals["unit_weight_kn_m3"], gs, vals["cohesion_kpa"],
+        vals["lateral_root_cohesion_kpa"], math.tan(phi), math.sin(phi), vals["passive_fraction"],
+        bool(jaky_full))
+    return {"toe": toe, "head": head, "side": side, "active": thrust}
+
+
+@njit_parallel
+def _forces_kernel(slope, aspect, depth, wet, coh, root_b, root_l, phi, gm, gs, valid, dx, dy,
+                   eta, jaky_full, driving, resisting, face_w, face_h, cell_fs, down):
+    rows, cols = slope.shape
+    area = dx * dy
+    for r in prange(rows):
+        for c in range(cols):
+            if not valid[r, c]:
+                driving[r, c] = math.nan
+                resisting[r, c] = math.nan
+                cell_fs[r, c] = math.nan
+                for k in range(4):
+                    face_w[k, r, c] = math.nan
+                    face_h[k, r, c] = math.nan
+                continue
+            th = _rad(slope[r, c])
+            st = math.sin(th)
+            ct = math.cos(th)
+            z = depth[r, c]
+            hw = wet[r, c] * z
+            col = gm[r, c] * (z - hw) + gs[r, c] * hw
+            u = GAMMA_W * hw * ct * ct
+            tphi = math.tan(_rad(phi[r, c]))
+            cb = coh[r, c] + root_b[r, c]
+            driving[r, c] = col * area * st
+            resisting[r, c] = max(0.0, cb + (col * ct * ct - u) * tphi) * area / ct
+            cell_fs[r, c] = _fs_point(cb, tphi, st, ct, col, u)
+            de = down[0, r, c]
+            dn = down[1, r, c]
+            for k in range(4):
+                rr = r + (0, -1, 0, 1)[k]
+                cc = c + (1, 0, -1, 0)[k]
+                length = dy if k % 2 == 0 else dx
+                if 0 <= rr < rows and 0 <= cc < cols and valid[rr, cc]:
+                    fz = 0.5 * (z + depth[rr, cc])
+                    fm = 0.5 * (wet[r, c] + wet[rr, cc])
+                    fgm = 0.5 * (gm[r, c] + gm[rr, cc])
+                    fgs = 0.5 * (gs[r, c] + gs[rr, cc])
+                    fc = 0.5 * (coh[r, c] + coh[rr, cc])
+                    fl = 0.5 * (root_l[r, c] + root_l[rr, cc])
+                    fphi = _rad(0.5 * (phi[r, c] + phi[rr, cc]))
+                    ve = de + down[0, rr, cc]
+                    vn = dn + down[1, rr, cc]
+                    norm = math.sqrt(ve * ve + vn * vn)
+                    if norm > 1e-9:
+                        ve /= norm
+                        vn /= norm
+                    else:
+                        ve = 0.0
+                        vn = 0.0
+                else:
+                    fz = z
+                    fm = wet[r, c]
+                    fgm = gm[r, c]
+                    fgs = gs[r, c]
+                    fc = coh[r, c]
+                    fl = root_l[r, c]
+                    fphi = _rad(phi[r, c])
+                    ve = de
+                    vn = dn
+                toe, head, side, thrust = _face_per_length(
+                    fz, fm, fgm, fgs, fc, fl, math.tan(fphi), math.sin(fphi), eta, jaky_full)
+                cosang = (1.0, 0.0, -1.0, 0.0)[k] * ve + (0.0, 1.0, 0.0, -1.0)[k] * vn
+                cp = max(cosang, 0.0)
+                cm = max(-cosang, 0.0)
+                face_w[k, r, c] = length * (cp * cp * toe + cm * cm * head
+                                            + (1.0 - cosang * cosang) * side)
+                face_h[k, r, c] = length * cm * cm * thrust
+
+
+def _grid_field(value, shape, key, low, high, *, open_low=False):
+    arr = _field(value, key, low, high, open_low=open_low)
+    try:
+        return np.ascontiguousarray(np.broadcast_to(arr, shape), dtype=np.float64)
+    except ValueError:
+        raise InputError(f"{key}: shape {arr.shape} does not broadcast to the grid {shape}") from None
+
+
+def cluster_forces(slope_deg, aspect_deg, depth_m, wetness, *, dx, dy, cohesion_kpa,
+                   root_cohesion_kpa, lateral_root_cohesion_kpa, friction_deg,
+                   unit_weight_kn_m3, saturated_unit_weight_kn_m3=None, passive_fraction=0.5,
+                   jaky_full=False):
+    """Per-cell basal forces and per-face earth-pressure forces of candidate slides.
+
+    Parameters
+    ----------
+    slope_deg : array_like, shape (rows, cols)
+        Slope of ground and slip plane, degrees in [0, 90). NaN is nodata.
+    aspect_deg : array_like, shape (rows, cols)
+        Downslope direction, degrees clockwise from north (as
+        :func:`slopescreen.terrain.slope_aspect`); NaN on flat cells (no
+        direction: every face of such a cell acts as a side).
+    depth_m : array_like
+        Vertical soil depth z, m (> 0). Per cell or one value.
+    wetness : array_like
+        Saturated fraction W = h_w / z in [0, 1].
+    dx, dy : float
+        Cell width (east-west) and height (north-south), m.
+    cohesion_kpa : array_like
+        Effective soil cohesion c', kPa (>= 0): on the base, the sides and the toe.
+    root_cohesion_kpa : array_like
+        Basal root cohesion, kPa (>= 0).
+    lateral_root_cohesion_kpa : array_like
+        Root cohesion on the side and head faces, kPa (>= 0).
+    friction_deg : array_like
+        phi', degrees in [0, 60).
+    unit_weight_kn_m3 : array_like
+        Moist unit weight gamma_m, kN/m^3.
+    saturated_unit_weight_kn_m3 : array_like, optional
+        gamma_sat in [9.81, 30], default gamma_m.
+    passive_fraction : float
+        Share eta in [0, 1] of full Rankine passive resistance at the toe (default 0.5).
+    jaky_full : bool
+        Use Jaky's full K_0 on the sides (default: the simplified 1 - sin phi').
+
+    Returns
+    -------
+    ClusterForces
+
+    Raises
+    ------
+    InputError
+        Values out of range, shapes that do not broadcast to the grid, a grid
+        smaller than 1x1, no valid cell.
+
+    Notes
+    -----
+    Per cell (A = dx dy plan area, h_w = W z, METHODS.md section 5)::
+
+        W_col = gamma_m (z - h_w) + gamma_sat h_w,   u = gamma_w h_w cos^2(theta)
+        D_i = W_col A sin(theta)
+        R_i = max(0, c' + c_r + (W_col cos^2(theta) - u) tan phi') A / cos(theta)
+
+    so R_i / D_i is the infinite-slope FS. Per face k of cell i (plan length
+    L = dy for east/west faces, dx for north/south), with c the cosine of the
+    angle between the face's outward normal and the downslope direction::
+
+        W[k, i] = L [ max(c,0)^2 toe + max(-c,0)^2 head + (1 - c^2) side ]
+        H[k, i] = L max(-c,0)^2 P_a
+
+    toe, head, side and P_a per metre from :func:`face_pressures` with the
+    face height equal to the vertical soil depth. Between two valid cells
+    the face takes the mean of their properties and the normalised sum of
+    their downslope vectors, so the face seen from either side has opposite
+    c. A face towards nodata or the grid edge takes the cell's own values:
+    it is charged like any margin, never free. The active thrust on head
+    faces is counted as a driving force (denominator), as METHODS.md
+    recommends. Forces of cells facing different ways are added as scalars
+    (each along its own downslope direction), the approximation that makes
+    the set function of section 9.1 additive.
+
+    References
+    ----------
+    Milledge, D.G., Bellugi, D., McKean, J.A., Densmore, A.L., Dietrich,
+    W.E. (2014). J. Geophys. Res. Earth Surface 119, 2481-2504.
+    doi 10.1002/2014JF003135
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> f = cluster_forces(np.full((3, 3), 35.0), np.full((3, 3), 180.0), 1.0, 0.5, dx=5.0,
+    ...     dy=5.0, cohesion_kpa=2.0, root_cohesion_kpa=0.0, lateral_root_cohesion_kpa=5.0,
+    ...     friction_deg=32.0, unit_weight_kn_m3=18.0)
+    >>> bool(f.face_thrust[1, 1, 1] > 0)   # the north face is the head of a south-facing slope
+    True
+    """
+    slope, valid = _checks.surface(slope_deg, name="slope_deg", min_size=1)
+    dx, dy = _checks.cell_size(dx, dy)
+    shape = slope.shape
+    _field(slope, "slope_deg", 0.0, 90.0, open_high=True)
+    slope = slope.astype(np.float64)
+    aspect = _grid_field(aspect_deg, shape, "aspect_deg", 0.0, 360.0)
+    depth = _grid_field(depth_m, shape, "depth_m", 0.0, math.inf, open_low=True)
+    wet = _grid_field(wetness, shape, "wetness", 0.0, 1.0)
+    coh = _grid_field(cohesion_kpa, shape, "cohesion_kpa", 0.0, math.inf)
+    root_b = _grid_field(root_cohesion_kpa, shape, "root_cohesion_kpa", 0.0, math.inf)
+    root_l = _grid_field(lateral_root_cohesion_kpa, shape, "lateral_root_cohesion_kpa", 0.0,
+                         math.inf)
+    phi = _grid_field(friction_deg, shape, "friction_deg", 0.0, 60.0)
+    if np.nanmax(phi) >= 60.0:
+        raise InputError("friction_deg: must be < 60 degrees (K_p grows without bound)")
+    gm = _grid_field(unit_weight_kn_m3, shape, "unit_weight_kn_m3", 0.0, 30.0, open_low=True)
+    if saturated_unit_weight_kn_m3 is None:
+        gs = _grid_field(gm, shape, "saturated_unit_weight_kn_m3 (defaults to unit_weight_kn_m3)",
+                         GAMMA_W, 30.0)
+    else:
+        gs = _grid_field(saturated_unit_weight_kn_m3, shape, "saturated_unit_weight_kn_m3",
+                         GAMMA_W, 30.0)
+    with np.errstate(invalid="ignore"):
+        if (gs < gm).any():
+            raise InputError("saturated_unit_weight_kn_m3: lower than unit_weight_kn_m3 in "
+                             "some cells; a saturated soil is at least as heavy as moist soil")
+    eta = float(_field(passive_fraction, "passive_fraction", 0.0, 1.0, allow_nan=False))
+    for arr in (depth, wet, coh, root_b, root_l, phi, gm, gs):
+        valid &= np.isfinite(arr)
+    if not valid.any():
+        raise InputError("slope_deg and the soil inputs: no cell has every input defined")
+    a = np.radians(aspect)
+    down = np.zeros((2,) + shape)
+    has_dir = np.isfinite(a) & (slope > 0.0)
+    down[0][has_dir] = np.sin(a[has_dir])
+    down[1][has_dir] = np.cos(a[has_dir])
+    driving = np.empty(shape)
+    resisting = np.empty(shape)
+    face_w = np.empty((4,) + shape)
+    face_h = np.empty((4,) + shape)
+    cell_fs = np.empty(shape, dtype=np.float32)
+    _forces_kernel(slope, aspect, depth, wet, coh, root_b, root_l, phi, gm, gs, valid, dx, dy,
+                   eta, bool(jaky_full), driving, resisting, face_w, face_h, cell_fs, down)
+    return ClusterForces(driving, resisting, face_w, face_h, valid, cell_fs,
+                         np.where(valid, depth, np.nan), down, dx, dy)
+
+
+def _margin_sums(forces, mask):
+    """(B, H) summed over the margin faces of ``mask`` (plain numpy)."""
+    rows, cols = mask.shape
+    b = 0.0
+    h = 0.0
+    padded = np.zeros((rows + 2, cols + 2), dtype=bool)
+    padded[1:-1, 1:-1] = mask
+    for k in range(4):
+        nb = padded[1 + FACE_DROW[k]:1 + FACE_DROW[k] + rows, 1 + FACE_DCOL[k]:1 + FACE_DCOL[k] + cols]
+        margin = mask & ~nb
+        b += float(forces.face_resistance[k][margin].sum())
+        h += float(forces.face_thrust[k][margin].sum())
+    return b, h
+
+
+def cluster_factor_of_safety(forces, mask):
+    """Factor of safety of one set of cells, evaluated from the force terms.
+
+    Parameters
+    ----------
+    forces : ClusterForces
+        From :func:`cluster_forces`.
+    mask : array_like of bool, shape (rows, cols)
+        The cells of the slide (nodata cells are not allowed in it).
+
+    Returns
+    -------
+    float
+        FS(S) = (R + B) / (D + H), clipped to [0, FS_CAP]; FS_CAP when the
+        set has no driving force.
+
+    Raises
+    ------
+    InputError
+        Wrong shape, an empty mask, or a nodata cell in the mask.
+
+    Notes
+    -----
+    A face counts when its cell is in S and the cell across it is not (or is
+    nodata, or off the grid): the margin of S. This is a direct sum with no
+    graph, used to recheck every cluster the cut reports.
+
+    References
+    ----------
+    Milledge et al. (2014), doi 10.1002/2014JF003135.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> f = cluster_forces(np.full((4, 4), 40.0), np.full((4, 4), 180.0), 1.0, 1.0, dx=5.0,
+    ...     dy=5.0, cohesion_kpa=0.0, root_cohesion_kpa=0.0, lateral_root_cohesion_kpa=0.0,
+    ...     friction_deg=30.0, unit_weight_kn_m3=19.0)
+    >>> cluster_factor_of_safety(f, np.ones((4, 4), bool)) > float(f.cell_fs[0, 0])
+    True
+    """
+    m = np.asarray(mask, dtype=bool)
+    if m.shape != forces.valid.shape:
+        raise InputError(f"mask: shape {m.shape} does not match the grid {forces.valid.shape}")
+    if not m.any():
+        raise InputError("mask: holds no cell")
+    if (m & ~forces.valid).any():
+        raise InputError("mask: includes nodata cells")
+    b, h = _margin_sums(forces, m)
+    num = float(forces.resisting[m].sum()) + b
+    den = float(forces.driving[m].sum()) + h
+    if den <= 0.0 or num >= FS_CAP * den:
+        return FS_CAP
+    return max(0.0, num / den)
+
+
+def nonsubmodular_faces(forces, lam=1.0):
+    """Faces where the pair term of g_lam is not submodular.
+
+    Parameters
+    ----------
+    forces : ClusterForces
+    lam : float
+        Threshold lambda (> 0).
+
+    Returns
+    -------
+    east : numpy.ndarray of bool, shape (rows, cols - 1)
+        Face between (r, c) and (r, c + 1) fails the check.
+    south : numpy.ndarray of bool, shape (rows - 1, cols)
+        Face between (r, c) and (r + 1, c) fails the check.
+
+    Notes
+    -----
+    For the face between i and j, phi(1, 0) = W_ij - lam H_ij and
+    phi(0, 1) = W_ji - lam H_ji; the pair term is submodular iff their sum is
+    >= 0 (METHODS.md section 9.1). With the face model of
+    :func:`cluster_forces` the sum is
+    L [c^2 (toe + head - lam P_a) + 2 (1 - c^2) side], so it fails only where
+    eta P_p + c_r,lat z < lam P_a on a face that runs across the slope.
+    Where it fails, the cut uses the modular lower bound W_ij x_i + W_ji x_j
+    of that pair (see :mod:`slopescreen.clusters.cut`).
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> f = cluster_forces(np.full((3, 3), 30.0), np.full((3, 3), 180.0), 1.0, 0.0, dx=5.0,
+    ...     dy=5.0, cohesion_kpa=0.0, root_cohesion_kpa=0.0, lateral_root_cohesion_kpa=0.0,
+    ...     friction_deg=30.0, unit_weight_kn_m3=18.0)
+    >>> int(nonsubmodular_faces(f, 1.0)[1].sum())
+    0
+    """
+    t = forces.face_resistance - float(lam) * forces.face_thrust
+    east = (t[0][:, :-1] + t[2][:, 1:]) < 0.0
+    south = (t[3][:-1, :] + t[1][1:, :]) < 0.0
+    return east, south
