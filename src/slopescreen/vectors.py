@@ -1,0 +1,134 @@
+"""Vector output: GeoPackage layers in the DEM's CRS (the only module that writes vector files).
+
+Polygons come from a label raster on the DEM grid (one id per feature, 0 =
+none), traced along cell edges with :func:`rasterio.features.shapes` and
+merged per id with shapely. Files are written with pyogrio (GDAL's OGR) to a
+temporary name and renamed when complete; the screening caution goes into the
+layer metadata.
+"""
+
+from __future__ import annotations
+
+import os
+from pathlib import Path
+
+import numpy as np
+
+from .grid import Grid
+
+
+def label_polygons(labels: np.ndarray, grid: Grid) -> dict[int, object]:
+    """Trace the cells of each label as one (multi)polygon in map coordinates.
+
+    Parameters
+    ----------
+    labels : numpy.ndarray of int, shape ``grid.shape``
+        Feature id per cell; 0 (or negative) means no feature.
+    grid : Grid
+        Grid whose transform places the cells.
+
+    Returns
+    -------
+    dict
+        ``{id: shapely Polygon or MultiPolygon}`` for every id present.
+
+    Raises
+    ------
+    ValueError
+        If ``labels`` does not have the grid's shape.
+    """
+    import shapely
+    from rasterio import features
+
+    labels = np.asarray(labels)
+    if labels.shape != tuple(grid.shape):
+        raise ValueError(f"labels shape {labels.shape} does not match grid {grid.shape}")
+    data = labels.astype(np.int32)
+    parts: dict[int, list] = {}
+    for geom, value in features.shapes(data, mask=data > 0, connectivity=4,
+                                       transform=grid.transform):
+        parts.setdefault(int(value), []).append(shapely.geometry.shape(geom))
+    return {k: (v[0] if len(v) == 1 else shapely.union_all(v)) for k, v in sorted(parts.items())}
+
+
+def write_polygons(path, polygons: dict, records: list[dict], grid: Grid, *, layer: str,
+                   caution: str, metadata: dict | None = None) -> Path:
+    """Write polygons with attributes as one GeoPackage layer, atomically.
+
+    Parameters
+    ----------
+    path : path-like
+        Target ``.gpkg``; the folder must exist.
+    polygons : dict
+        ``{id: geometry}`` (see :func:`label_polygons`).
+    records : list of dict
+        One attribute row per feature; each holds ``"id"`` matching a key of
+        ``polygons``; all rows have the same keys (numbers, text or bools).
+    grid : Grid
+        Supplies the CRS.
+    layer : str
+        Layer name.
+    caution : str
+        Screening caution, stored in the layer metadata as ``CAUTION``.
+    metadata : dict, optional
+        More layer metadata (text values).
+
+    Returns
+    -------
+    pathlib.Path
+
+    Raises
+    ------
+    ValueError
+        A record without a polygon, or rows with different keys.
+    """
+    import shapely
+    from pyogrio.raw import write
+
+    path = Path(path)
+    names = list(records[0]) if records else ["id"]
+    for row in records:
+        if list(row) != names:
+            raise ValueError("every record must have the same fields in the same order")
+        if row["id"] not in polygons:
+            raise ValueError(f"record id {row['id']} has no polygon")
+    geoms = [shapely.geometry.MultiPolygon([polygons[r["id"]]])
+             if polygons[r["id"]].geom_type == "Polygon" else polygons[r["id"]] for r in records]
+    wkb = np.array([shapely.to_wkb(g) for g in geoms], dtype=object)
+    columns = []
+    for name in names:
+        values = [r[name] for r in records]
+        if values and all(isinstance(v, (bool, np.bool_)) for v in values):
+            columns.append(np.array(values, dtype=bool))
+        elif values and all(isinstance(v, (int, np.integer)) and not isinstance(v, bool) for v in values):
+            columns.append(np.array(values, dtype=np.int64))
+        elif values and all(isinstance(v, (int, float, np.integer, np.floating)) for v in values):
+            columns.append(np.array(values, dtype=np.float64))
+        else:
+            columns.append(np.array(["" if v is None else str(v) for v in values], dtype=object))
+    meta = {"CAUTION": caution} | {k: str(v) for k, v in (metadata or {}).items()}
+    tmp = path.with_name(f".{path.stem}.partial{path.suffix}")
+    try:
+        write(str(tmp), wkb, columns, names, layer=layer, driver="GPKG",
+              geometry_type="MultiPolygon", crs=grid.crs.to_wkt(), layer_metadata=meta)
+        os.replace(tmp, path)
+    finally:
+        if tmp.exists():
+            tmp.unlink()
+    return path
+
+
+def read_layer(path) -> tuple[list, dict, dict]:
+    """Read a GeoPackage layer back: (shapely geometries, columns by name, layer metadata).
+
+    A convenience for tests and notebooks.
+    """
+    import shapely
+    from pyogrio import read_info
+    from pyogrio.raw import read
+
+    meta, _fids, geometry, field_data = read(str(path))
+    geoms = [shapely.from_wkb(g) for g in geometry]
+    columns = {name: values for name, values in zip(meta["fields"], field_data)}
+    info = read_info(str(path))
+    return geoms, columns, dict(info.get("layer_metadata") or {}) | {"crs": meta["crs"]}
