@@ -10,6 +10,7 @@ from __future__ import annotations
 import argparse
 import logging
 import sys
+import threading
 import warnings
 
 from . import __version__
@@ -26,8 +27,10 @@ def _parser() -> argparse.ArgumentParser:
                "engineering geologists, official warnings and local codes.")
     p.add_argument("--version", action="version", version=f"slopescreen {__version__}")
     loud = p.add_mutually_exclusive_group()
-    loud.add_argument("-v", "--verbose", action="store_true", help="log each stage and show tracebacks")
-    loud.add_argument("-q", "--quiet", action="store_true", help="print nothing but errors")
+    loud.add_argument("-v", "--verbose", action="store_true",
+                      help="log each stage with its time, and show tracebacks")
+    loud.add_argument("-q", "--quiet", action="store_true",
+                      help="print nothing but errors (no progress bar)")
     sub = p.add_subparsers(dest="command", required=True, metavar="COMMAND")
     r = sub.add_parser("run", help="run a scenario and write its products")
     r.add_argument("scenario", metavar="SCENARIO", help="scenario file (TOML)")
@@ -39,31 +42,129 @@ def _parser() -> argparse.ArgumentParser:
     return p
 
 
+def _write_line(text: str) -> None:
+    """Print one line on stderr without breaking a progress bar that is showing."""
+    from tqdm import tqdm
+
+    tqdm.write(text, file=sys.stderr)
+
+
+class _BarSafeHandler(logging.Handler):
+    """Log records on stderr, written around the progress bar."""
+
+    def emit(self, record):
+        try:
+            _write_line(self.format(record))
+        except Exception:  # pragma: no cover - logging must never raise
+            self.handleError(record)
+
+
 def _setup_logging(verbose: bool, quiet: bool) -> None:
     level = logging.INFO if verbose else (logging.ERROR if quiet else logging.WARNING)
-    handler = logging.StreamHandler(sys.stderr)
+    handler = _BarSafeHandler()
     handler.setFormatter(logging.Formatter("%(levelname)s %(name)s: %(message)s"))
     root = logging.getLogger("slopescreen")
     root.handlers[:] = [handler]
     root.setLevel(level)
 
 
+class StageProgress:
+    """Progress over the stages of a run, on stderr.
+
+    On a terminal it is a bar (tqdm) named after the running stage, its
+    elapsed time ticking while a long stage computes; elsewhere (a log file,
+    a pipe) it is one line per stage. Nothing is printed before
+    :meth:`begin`, which the pipeline calls only once the inputs have been
+    read, so a bad-input run still prints its one error line only.
+
+    Parameters
+    ----------
+    stream : file-like, optional
+        Where to write (default: ``sys.stderr`` at the time of writing).
+    bar : bool, optional
+        Force the bar on or off; default: a bar when ``stream`` is a terminal.
+    tick_s : float
+        Refresh interval of the bar's clock, seconds.
+    """
+
+    def __init__(self, stream=None, *, bar=None, tick_s=0.5):
+        self._stream = stream
+        self._bar_wanted = bar
+        self._tick_s = tick_s
+        self._bar = None
+        self._names: list[str] = []
+        self._started = 0
+        self._stop = threading.Event()
+        self._ticker = None
+
+    @property
+    def stream(self):
+        return self._stream if self._stream is not None else sys.stderr
+
+    def begin(self, names) -> None:
+        """Start showing progress over the planned stage names."""
+        self._names = list(names)
+        self._started = 0
+        use_bar = self._bar_wanted
+        if use_bar is None:
+            use_bar = bool(getattr(self.stream, "isatty", lambda: False)())
+        if use_bar:
+            from tqdm import tqdm
+
+            self._bar = tqdm(total=len(self._names), file=self.stream, unit="stage", leave=True,
+                             dynamic_ncols=True, desc="starting",
+                             bar_format="{desc:<42.42} {bar} {n_fmt}/{total_fmt} stages [{elapsed}]")
+            self._stop.clear()
+            self._ticker = threading.Thread(target=self._tick, daemon=True)
+            self._ticker.start()
+
+    def _tick(self) -> None:
+        while not self._stop.wait(self._tick_s):
+            bar = self._bar
+            if bar is not None:
+                bar.refresh()
+
+    def __call__(self, name: str) -> None:
+        """A stage starts."""
+        self._started += 1
+        total = max(len(self._names), self._started)
+        if self._bar is not None:
+            if self._bar.total < total:
+                self._bar.total = total
+            self._bar.n = self._started - 1
+            self._bar.set_description_str(name, refresh=True)
+        elif self._names:
+            print(f"  [{self._started}/{total}] {name}", file=self.stream, flush=True)
+        else:  # no plan was given: plain lines
+            print(f"  {name} ...", file=self.stream, flush=True)
+
+    def end(self) -> None:
+        """The run finished (or failed): stop the clock and close the bar."""
+        self._stop.set()
+        if self._ticker is not None:
+            self._ticker.join()
+            self._ticker = None
+        if self._bar is not None:
+            if self._started >= len(self._names):
+                self._bar.n = self._bar.total
+                self._bar.set_description_str("done", refresh=False)
+            self._bar.close()
+            self._bar = None
+
+
 def _progress(quiet: bool):
-    if quiet:
-        return None
-
-    def show(stage: str) -> None:
-        print(f"  {stage} ...", file=sys.stderr, flush=True)
-
-    return show
+    return None if quiet else StageProgress()
 
 
 def _summary(result, quiet: bool) -> None:
     if quiet:
         return
     print(f"wrote {len(result.products)} products and manifest.json to {result.output}")
+    report = result.output / "report.html"
+    if report.is_file():
+        print(f"open the report: {report}")
     total = sum(result.timings_s.values())
-    print(f"done in {total:.1f} s. Screening result only: see the cautions in manifest.json.")
+    print(f"done in {total:.1f} s. Screening result only: read the cautions in the report.")
 
 
 def main(argv=None) -> int:
@@ -74,7 +175,7 @@ def main(argv=None) -> int:
         warnings.simplefilter("ignore", InputWarning)
     else:
         warnings.simplefilter("always", InputWarning)
-        warnings.showwarning = lambda msg, cat, *a, **k: print(f"warning: {msg}", file=sys.stderr)
+        warnings.showwarning = lambda msg, cat, *a, **k: _write_line(f"warning: {msg}")
     try:
         from . import pipeline
         from .scenario import load_scenario

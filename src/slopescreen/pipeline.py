@@ -155,6 +155,11 @@ class _Writer:
     def file(self, key, name, *, kind, units, rain=None):
         self.products.append(Product(key=key, path=name, kind=kind, units=units, rain=rain))
 
+    def blob(self, key, name, data: bytes, *, kind, units, rain=None):
+        """Write a non-raster product (PNG map, HTML report) into the staging folder."""
+        (self.staging / name).write_bytes(data)
+        self.file(key, name, kind=kind, units=units, rain=rain)
+
 
 def _terrain(z, grid, scenario, stages, inputs):
     from .routing import flow_accumulation
@@ -328,7 +333,10 @@ def run(scenario: Scenario, *, progress=None) -> RunResult:
     scenario : Scenario
         A validated scenario (:func:`slopescreen.scenario.load_scenario`).
     progress : callable, optional
-        Called with the name of each stage as it starts.
+        Called with the name of each stage as it starts. If it also has a
+        ``begin(stage_names)`` method, that is called once the inputs have
+        been read (never on bad input), with :func:`planned_stages`; an
+        ``end()`` method is called when the run finishes or fails.
 
     Returns
     -------
@@ -348,6 +356,7 @@ def run(scenario: Scenario, *, progress=None) -> RunResult:
     out.mkdir(parents=True, exist_ok=True)
     staging = out / f".slopescreen-partial-{uuid.uuid4().hex[:8]}"
     staging.mkdir()
+    _progress_call(progress, "begin", planned_stages(scenario))
     try:
         w = _Writer(staging, grid)
         slope_deg, sca = _terrain(z, grid, scenario, stages, inputs)
@@ -358,17 +367,137 @@ def run(scenario: Scenario, *, progress=None) -> RunResult:
                      description=f"Specific catchment area a = A/b, m ({scenario.routing.method})")
         if scenario.soil is not None:
             _stability(scenario, inputs, slope_deg, sca, w, stages)
-        for section in ("clusters", "corridor", "inventory"):
-            if getattr(scenario, section) is not None:
-                log.warning("[%s] is validated, but its stage is not built in this version; "
-                            "no %s product was written", section, section)
-        manifest = _manifest(scenario, grid, w.products, stages.timings, started)
+        not_run = stages_not_run(scenario, w.products)
+        for item in not_run:
+            log.warning("[%s] is configured, but %s; skipped (the report says so)",
+                        item["section"], item["reason"])
+        _report(scenario, inputs, slope_deg, w, stages, started, not_run)
+        manifest = _manifest(scenario, grid, w.products, stages.timings, started) | _run_record(not_run)
         _commit(staging, out, w.products, manifest,
                 protected={p.resolve() for p in scenario.input_files()})
     finally:
         shutil.rmtree(staging, ignore_errors=True)
+        _progress_call(progress, "end")
     return RunResult(output=out, manifest=manifest, products=w.products,
                      timings_s=dict(stages.timings))
+
+
+# ---------------------------------------------------------------------------
+# Progress, the record of stages that did not run, maps and the report
+# ---------------------------------------------------------------------------
+
+STAGE_PRODUCTS = {
+    "clusters": ("cluster_fs_bound", "clusters", "cluster_labels"),
+    "corridor": ("corridor_segments",),
+    "inventory": ("inventory_scores",),
+}
+"""Optional scenario sections and the product keys that show their stage ran."""
+
+
+def planned_stages(scenario: Scenario) -> list[str]:
+    """Names of the stages a run of ``scenario`` will show, in order (for progress bars).
+
+    A stage added to :func:`run` adds its name here.
+    """
+    names = ["slope", "conditioning", "routing", "write terrain products"]
+    if scenario.soil is not None:
+        units = [scenario.soil.units[c] for c in sorted(scenario.soil.units)]
+        sampled = scenario.uncertainty is not None or _varies(units)
+        names.append("critical recharge")
+        for case in scenario.rain:
+            names.append(f"stability: {case.name}")
+            if sampled:
+                names.append(f"probability of failure: {case.name}")
+    return names + ["maps", "report"]
+
+
+def _progress_call(progress, method, *args) -> None:
+    fn = getattr(progress, method, None)
+    if callable(fn):
+        fn(*args)
+
+
+def stages_not_run(scenario: Scenario, products) -> list[dict]:
+    """Configured optional stages that wrote no product, with the reason.
+
+    Returns
+    -------
+    list of dict
+        ``{"section": name, "reason": text}`` per configured section of
+        :data:`STAGE_PRODUCTS` without any of its products.
+    """
+    keys = {p.key for p in products}
+    out = []
+    for section, product_keys in STAGE_PRODUCTS.items():
+        if getattr(scenario, section, None) is not None and not keys & set(product_keys):
+            out.append({"section": section,
+                        "reason": f"the {section} stage is not built in slopescreen {__version__}"})
+    return out
+
+
+def _environment_record() -> dict:
+    import platform
+    from importlib import metadata
+
+    rec = {"python": platform.python_version()}
+    for dist in ("numpy", "numba", "scipy", "rasterio", "matplotlib", "jinja2"):
+        try:
+            rec[dist] = metadata.version(dist)
+        except metadata.PackageNotFoundError:  # pragma: no cover - every one is a dependency
+            rec[dist] = "not installed"
+    return rec
+
+
+def _run_record(not_run) -> dict:
+    """Manifest fields beyond the contract: stages that did not run, software versions."""
+    return {"not_run": list(not_run), "environment": _environment_record()}
+
+
+def _report(scenario: Scenario, inputs: Inputs, slope_deg, w: _Writer, stages, started,
+            not_run) -> None:
+    """Maps of the products (PNG) and the self-contained report (HTML), into the staging folder."""
+    from .grid import read_back
+    from .report import html, maps
+    from .scenario import slugify
+    from .terrain import slope_aspect
+
+    grid = inputs.grid
+    cache: dict[str, np.ndarray] = {}
+
+    def read(entry) -> np.ndarray:
+        path = entry["path"]
+        if path not in cache:
+            if len(cache) >= 3:  # keep a few rasters only: large grids
+                cache.pop(next(iter(cache)))
+            cache[path] = read_back(w.staging / path)[0].astype(np.float32)
+        return cache[path]
+
+    rain_records = [{k: v for k, v in vars(r).items() if v is not None} for r in scenario.rain]
+    rain_texts = {r["name"]: html.rain_text(r) for r in rain_records}
+    marks = [(r.steady_mm_per_day, f"{r.name}: {r.steady_mm_per_day:g} mm/day")
+             for r in scenario.rain if not r.is_storm]
+    images = []
+    with stages.stage("maps"):
+        entries = [p.as_dict() for p in w.products]
+        for shown, png in maps.product_maps(entries, read, z=inputs.z, grid=grid, title=scenario.title,
+                                            rain_texts=rain_texts, marks=marks):
+            rain = shown.get("rain")
+            name = f"map_{shown['key']}" + (f"_{slugify(rain)}" if rain else "") + ".png"
+            w.blob("map", name, png, kind="png", units=shown["units"], rain=rain)
+            images.append(html.MapImage(entry=w.products[-1].as_dict(), shows=shown, png=png))
+    with stages.stage("report"):
+        manifest = _manifest(scenario, grid, w.products, stages.timings, started) | _run_record(not_run)
+        unit_index, unit_labels = None, []
+        if scenario.soil is not None:
+            unit_index, units = unit_index_map(scenario, inputs)
+            unit_labels = [u.label for u in units]
+        _slope, aspect = slope_aspect(inputs.z, grid.dx_m, grid.dy_m)
+        del _slope
+        ctx = html.ReportContext(manifest=manifest, read=read, cell_area_m2=grid.cell_area_m2,
+                                 slope_deg=slope_deg, aspect_deg=aspect, unit_index=unit_index,
+                                 unit_labels=unit_labels, maps=images)
+        text = html.render_report(ctx)
+        w.blob("report", "report.html", text.encode("utf-8"), kind="html", units="n/a")
 
 
 def _manifest(scenario: Scenario, grid: Grid, products, timings, started) -> dict:
@@ -418,13 +547,13 @@ def _parameter_record(p) -> dict | float | None:
 def _soil_record(scenario: Scenario):
     if scenario.soil is None:
         return None
-    from .probability import PARAMETER_ORDER
+    from .scenario import SOIL_PROPERTIES
 
     units = []
     for code in sorted(scenario.soil.units):
         u = scenario.soil.units[code]
         units.append({"code": code, "label": u.label}
-                     | {k: _parameter_record(getattr(u, k)) for k in PARAMETER_ORDER})
+                     | {k: _parameter_record(getattr(u, k)) for k in SOIL_PROPERTIES})
     return {"map": None if scenario.soil.map is None else scenario.soil.map.name, "units": units}
 
 
