@@ -123,9 +123,11 @@ def test_demo_writes_a_report_a_new_user_can_read(demo):
     text = (result.output / "report.html").read_text(encoding="utf-8")
     assert "Verrow valley demo" in text
     assert "Under “wet season”" in text and "Under “design storm”" in text
-    for section in ("clusters", "corridor", "inventory"):
+    for section in ("corridor", "inventory"):
         assert f"configures [{section}], but this stage did not run" in text
+    assert "configures [clusters], but this stage did not run" not in text
+    assert "Failing clusters per rain case" in text
     maps = [p for p in result.manifest["products"] if p["key"] == "map"]
-    assert len(maps) == 9                                      # slope, SCA, q_cr, 3 per rain case
+    assert len(maps) == 11                                     # slope, SCA, q_cr, 4 per rain case
     assert text.count("data:image/png;base64,") == len(maps)
     assert "colluvium, clear-cut" in text

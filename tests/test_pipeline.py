@@ -182,3 +182,26 @@ def test_two_units_by_map(tmp_path, capsys):
     fs, _ = product(manifest, tmp_path / "out", "factor_of_safety", "steady 20")
     # more cohesion in unit 2: higher FS on the same slope and wetness
     assert np.nanmedian(fs[5:35, 18:27]) > np.nanmedian(fs[5:35, 3:12])
+
+
+def test_failing_clusters_product(tmp_path, capsys):
+    # A steep, wet plane: the infinite-slope FS is below 1 almost everywhere, so the exact cut
+    # finds failing clusters; each must report FS < 1 and an area equal to its cells' area.
+    from slopescreen.vectors import read_layer
+
+    rain = '\n[[rain]]\nname = "very wet"\nsteady_mm_per_day = 400\n'
+    extra = "\n[clusters]\nmin_area_m2 = 25\nmax_area_m2 = 2500\npassive_fraction = 0.5\n"
+    manifest = run_ok(capsys, write_case(tmp_path, rain=rain, extra=extra, gradient=0.85))
+    keys = {p["key"] for p in manifest["products"]}
+    assert {"clusters", "cluster_fs_bound", "cluster_labels"} <= keys
+    [entry] = [p for p in manifest["products"] if p["key"] == "clusters"]
+    assert entry["kind"] == "vector" and entry["path"].endswith(".gpkg")
+    geoms, cols, meta = read_layer(tmp_path / "out" / entry["path"])
+    assert len(geoms) >= 1
+    assert np.all(cols["fs"] < 1.0)
+    np.testing.assert_allclose(cols["area_m2"], cols["n_cells"] * 25.0)
+    np.testing.assert_allclose([g.area for g in geoms], cols["area_m2"])
+    assert "licensed" in meta["CAUTION"]
+    labels, _ = product(manifest, tmp_path / "out", "cluster_labels", "very wet")
+    assert set(np.unique(labels[np.isfinite(labels)])) - {0.0} == set(cols["id"].astype(float))
+    assert not any(item["section"] == "clusters" for item in manifest["not_run"])

@@ -312,7 +312,8 @@ def test_stage_section_appears_when_its_product_exists():
     ctx = report_html.ReportContext(manifest=manifest, read=lambda e: fs, cell_area_m2=1.0, maps=[img])
     text = report_html.render_report(ctx)
     assert "Failure clusters</h2>" in text and "did not run" not in text
-    assert text.count("data:image/png;base64,") == 2              # in the case and the stage section
+    assert text.count("data:image/png;base64,") == 1              # once, in the rain case's section
+    assert "Failing clusters per rain case" in text
 
 
 def test_failed_report_leaves_nothing_behind(tmp_path, monkeypatch):

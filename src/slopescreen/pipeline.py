@@ -67,6 +67,7 @@ class Inputs:
     grid: Grid
     soil_codes: np.ndarray | None = None
     area_m2: np.ndarray | None = None  # upslope area, filled in by the routing stage
+    aspect_deg: np.ndarray | None = None  # downslope azimuth, filled in by the slope stage
 
 
 @dataclass
@@ -144,6 +145,7 @@ class _Writer:
         self.staging = staging
         self.grid = grid
         self.products: list[Product] = []
+        self.cluster_records: list[dict] = []  # attribute rows of clusters.gpkg, for the report
 
     def raster(self, key, array, *, units, description, rain=None, name=None, tags=None):
         name = name or (f"{key}_{rain.slug}.tif" if rain is not None else f"{key}.tif")
@@ -166,7 +168,7 @@ def _terrain(z, grid, scenario, stages, inputs):
     from .terrain import fill_depressions, slope_aspect
 
     with stages.stage("slope"):
-        slope_deg, _aspect = slope_aspect(z, grid.dx_m, grid.dy_m)
+        slope_deg, inputs.aspect_deg = slope_aspect(z, grid.dx_m, grid.dy_m)
     with stages.stage("conditioning"):
         filled = fill_depressions(z)
     with stages.stage("routing"):
@@ -260,6 +262,7 @@ def _stability(scenario: Scenario, inputs: Inputs, slope_deg, sca, w: "_Writer",
                  tags={f"CLASS_{k}": v for k, v in CLASS_LABELS.items()})
     table = encode_table([{k: getattr(u, k) for k in _table_keys(u)} for u in units])
     unc = scenario.uncertainty
+    collector = None if scenario.clusters is None else _ClusterCollector(inputs.grid)
     for case in scenario.rain:
         rain = _rain_model(case)
         with stages.stage(f"stability: {case.name}"):
@@ -296,6 +299,11 @@ def _stability(scenario: Scenario, inputs: Inputs, slope_deg, sca, w: "_Writer",
                      description="Wetness h_w/z (saturated fraction of the soil column)")
             w.raster("factor_of_safety", fs, units="1", rain=case, tags=fs_tags,
                      description="Infinite-slope factor of safety (median parameters)")
+        if collector is not None:
+            depth = least.depth_m if case.is_storm else m["depth_m"]
+            with stages.stage(f"clusters: {case.name}"):
+                _clusters_for_case(scenario, inputs, case, slope, depth, wet, m, index, units,
+                                   w, collector)
         if unc is None and not _varies(units):
             continue
         unc = unc or _default_uncertainty()
@@ -311,6 +319,84 @@ def _stability(scenario: Scenario, inputs: Inputs, slope_deg, sca, w: "_Writer",
             w.raster("failure_probability", p_f, units="1", rain=case,
                      description="Probability that FS < 1 given the parameter distributions",
                      tags={"METHOD": how})
+    if collector is not None:
+        with stages.stage("write clusters"):
+            collector.write(w)
+
+
+CLUSTER_FIELDS = ("id", "rain", "fs", "area_m2", "volume_m3", "mean_depth_m", "length_m",
+                  "width_m", "n_cells", "min_cell_fs", "lower_bound", "proven", "in_area_band")
+"""Attributes of the ``clusters`` layer, in order (units in the names; fs is dimensionless)."""
+
+
+class _ClusterCollector:
+    """Gathers the failing clusters of every rain case into one GeoPackage layer."""
+
+    def __init__(self, grid: Grid):
+        self.grid = grid
+        self.polygons: dict = {}
+        self.records: list[dict] = []
+        self.next_id = 1
+
+    def add(self, case_name: str, result) -> np.ndarray:
+        """Add one case's clusters; return its label raster with layer-wide ids."""
+        from .vectors import label_polygons
+
+        table = result.table
+        n = len(table["id"])
+        offset = self.next_id - 1
+        labels = np.where(result.labels > 0, result.labels + offset, 0).astype(np.int32)
+        if n == 0:
+            return labels
+        polys = label_polygons(labels, self.grid)
+        for i in range(n):
+            new_id = int(table["id"][i]) + offset
+            row = {"id": new_id, "rain": case_name}
+            for key in CLUSTER_FIELDS[2:]:
+                value = table[key][i]
+                if key == "n_cells":
+                    row[key] = int(value)
+                elif key in ("proven", "in_area_band"):
+                    row[key] = bool(value)
+                else:
+                    row[key] = float(value)
+            self.records.append(row)
+            self.polygons[new_id] = polys[new_id]
+        self.next_id += n
+        return labels
+
+    def write(self, w: "_Writer") -> None:
+        from .vectors import write_polygons
+
+        name = "clusters.gpkg"
+        write_polygons(w.staging / name, self.polygons, self.records, self.grid, layer="clusters",
+                       caution=SHORT, metadata={"FIELDS": ", ".join(CLUSTER_FIELDS)})
+        w.file("clusters", name, kind="vector", units="attributes carry their units in their names")
+        w.cluster_records = list(self.records)
+
+
+def _clusters_for_case(scenario, inputs, case, slope, depth, wet, m, index, units, w, collector):
+    """Failing multi-cell clusters of one rain case, and the cluster FS bound raster."""
+    from .clusters import failure_clusters
+
+    lateral = np.array([u.lateral_root_cohesion_kpa.central() for u in units] + [np.nan],
+                       dtype=np.float64)[index].astype(np.float32)
+    c = scenario.clusters
+    grid = inputs.grid
+    result = failure_clusters(
+        slope, depth, wet, dx=grid.dx_m, dy=grid.dy_m, aspect_deg=inputs.aspect_deg,
+        cohesion_kpa=m["cohesion_kpa"], root_cohesion_kpa=m["root_cohesion_kpa"],
+        lateral_root_cohesion_kpa=lateral, friction_deg=m["friction_deg"],
+        unit_weight_kn_m3=m["unit_weight_kn_m3"], passive_fraction=c.passive_fraction,
+        min_area_m2=c.min_area_m2, max_area_m2=c.max_area_m2)
+    labels = collector.add(case.name, result)
+    extent = result.bound_extent_cells
+    w.raster("cluster_fs_bound", result.cluster_fs_bound, units="1", rain=case,
+             description=f"Proven lower bound on the FS of any cluster up to {extent} x {extent} "
+                         "cells that holds the cell",
+             tags={"EXTENT_CELLS": str(extent), "MEANING": "at least 1: no such cluster can fail"})
+    w.raster("cluster_labels", labels.astype(np.float32), units="id", rain=case,
+             description="Id of the failing cluster holding the cell (0 = none); see clusters.gpkg")
 
 
 def _table_keys(unit):
@@ -406,8 +492,12 @@ def planned_stages(scenario: Scenario) -> list[str]:
         names.append("critical recharge")
         for case in scenario.rain:
             names.append(f"stability: {case.name}")
+            if scenario.clusters is not None:
+                names.append(f"clusters: {case.name}")
             if sampled:
                 names.append(f"probability of failure: {case.name}")
+        if scenario.clusters is not None:
+            names.append("write clusters")
     return names + ["maps", "report"]
 
 
@@ -459,8 +549,6 @@ def _report(scenario: Scenario, inputs: Inputs, slope_deg, w: _Writer, stages, s
     from .grid import read_back
     from .report import html, maps
     from .scenario import slugify
-    from .terrain import slope_aspect
-
     grid = inputs.grid
     cache: dict[str, np.ndarray] = {}
 
@@ -491,11 +579,11 @@ def _report(scenario: Scenario, inputs: Inputs, slope_deg, w: _Writer, stages, s
         if scenario.soil is not None:
             unit_index, units = unit_index_map(scenario, inputs)
             unit_labels = [u.label for u in units]
-        _slope, aspect = slope_aspect(inputs.z, grid.dx_m, grid.dy_m)
-        del _slope
+        aspect = inputs.aspect_deg
         ctx = html.ReportContext(manifest=manifest, read=read, cell_area_m2=grid.cell_area_m2,
                                  slope_deg=slope_deg, aspect_deg=aspect, unit_index=unit_index,
-                                 unit_labels=unit_labels, maps=images)
+                                 unit_labels=unit_labels, maps=images,
+                                 tables={"clusters": w.cluster_records})
         text = html.render_report(ctx)
         w.blob("report", "report.html", text.encode("utf-8"), kind="html", units="n/a")
 

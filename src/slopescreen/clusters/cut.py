@@ -38,10 +38,10 @@ SCALE_TARGET = float(2**30)
 """Largest cut total after scaling (fits int32 with room for rounding)."""
 
 
-@njit_parallel
+@njit  # serial: windows are small, and a parallel launch per window costs more than it saves
 def _pair_terms_kernel(driving, resisting, face_w, face_h, valid, lam, unary, cap):
     rows, cols = valid.shape
-    for r in prange(rows):
+    for r in range(rows):
         for c in range(cols):
             for k in range(4):
                 cap[k, r, c] = 0.0

@@ -443,6 +443,8 @@ class ReportContext:
     unit_index: np.ndarray | None = None
     unit_labels: list = field(default_factory=list)
     maps: list = field(default_factory=list)
+    tables: dict = field(default_factory=dict)
+    """Attribute tables of vector products, e.g. ``{"clusters": [row dict, ...]}``."""
 
     def products(self, key, rain=None, *, any_rain=False):
         """Manifest entries with this key (and rain case, unless ``any_rain``)."""
@@ -484,9 +486,59 @@ class StageSection:
     build: Callable | None = None
 
 
+def _cluster_blocks(ctx: ReportContext, entries):
+    """Failing multi-cell clusters per rain case: counts, sizes and the least stable."""
+    rows = ctx.tables.get("clusters", [])
+    blocks = [para(
+        "A cell below FS 1 is not yet a landslide: a real failure is a group of cells whose weight "
+        "overcomes the strength of its base and of its margins (passive resistance at the toe, "
+        "friction and roots on the sides, roots at the head). The clusters below are the groups "
+        "that fail as a whole under each rain case at the median parameters, found exactly by a "
+        "minimum cut; every one was checked to have FS below 1 when recomputed.",
+        lead="What this is:")]
+    cases = [r["name"] for r in ctx.manifest.get("rain", [])]
+    summary = []
+    for name in cases:
+        mine = [r for r in rows if r["rain"] == name]
+        if not mine:
+            summary.append([name, "0", "—", "—", "—"])
+            continue
+        areas = np.array([r["area_m2"] for r in mine])
+        volumes = np.array([r["volume_m3"] for r in mine])
+        summary.append([name, str(len(mine)), format_area(float(areas.sum())),
+                        f"{np.median(areas):,.0f}{NBSP}m² / {areas.max():,.0f}{NBSP}m²",
+                        f"{volumes.sum():,.0f}{NBSP}m³"])
+    blocks.append(table("Failing clusters per rain case",
+                        ["rain case", "clusters", "total area", "median / largest area",
+                         "total volume"], summary, [False, True, True, True, True]))
+    least = sorted(rows, key=lambda r: r["fs"])[:15]
+    if least:
+        blocks.append(table(
+            "The least stable clusters (up to 15)",
+            ["id", "rain case", "FS", "area", "volume", "length × width", "cells", "proven",
+             "in the area band"],
+            [[str(r["id"]), r["rain"], f"{r['fs']:.3f}", f"{r['area_m2']:,.0f}{NBSP}m²",
+              f"{r['volume_m3']:,.0f}{NBSP}m³", f"{r['length_m']:.0f} × {r['width_m']:.0f}{NBSP}m",
+              str(r["n_cells"]), "yes" if r["proven"] else "no",
+              "yes" if r["in_area_band"] else "no"] for r in least],
+            [False, False, True, True, True, True, True, False, False]))
+    bound = [e for e in entries if e["key"] == "cluster_fs_bound"]
+    if bound:
+        blocks.append(para(
+            "The cluster bound map gives, per cell, a proven lower bound on the factor of safety "
+            "of every cluster up to the stated extent that contains the cell; where it is at "
+            "least 1, no such cluster can fail under that rain case. Its maps are in the "
+            "sections of each rain case.", lead="Bound:"))
+    blocks.append(note(
+        "Not in this version: the size-resolved search for the least stable cluster inside the "
+        "scenario's area band, and the probability that each cluster fails given the parameter "
+        "distributions.", lead="Limits."))
+    return blocks
+
+
 STAGE_SECTIONS = (
     StageSection("clusters", "Failure clusters",
-                 ("cluster_fs_bound", "clusters", "cluster_labels")),
+                 ("cluster_fs_bound", "clusters", "cluster_labels"), _cluster_blocks),
     StageSection("runout", "Runout", ("runout",)),
     StageSection("corridor", "Corridor", ("corridor_segments",)),
     StageSection("inventory", "Agreement with mapped landslides", ("inventory_scores",)),
