@@ -123,3 +123,14 @@ def test_module_entry_point_bad_input(tmp_path):
                           capture_output=True, text=True)
     assert proc.returncode == 2
     assert proc.stderr.count("\n") == 1 and "x.toml" in proc.stderr
+
+
+def test_flags_after_the_command(tmp_path, capsys):
+    write_tif(tmp_path / "dem.tif", tilted_plane())
+    s = scenario(tmp_path)
+    code, out, err = run_cli(capsys, "check", "-q", str(s))
+    assert code == 0 and out == "" and err == ""
+    code, out, err = run_cli(capsys, "-q", "check", str(s))
+    assert code == 0 and out == ""
+    code, out, err = run_cli(capsys, "check", str(s))
+    assert code == 0 and "OK" in out

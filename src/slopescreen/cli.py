@@ -31,12 +31,19 @@ def _parser() -> argparse.ArgumentParser:
                       help="log each stage with its time, and show tracebacks")
     loud.add_argument("-q", "--quiet", action="store_true",
                       help="print nothing but errors (no progress bar)")
+    # the same two flags after the command too (slopescreen run -q x.toml); SUPPRESS keeps
+    # a flag given before the command when it is not repeated after it
+    common = argparse.ArgumentParser(add_help=False, argument_default=argparse.SUPPRESS)
+    after = common.add_mutually_exclusive_group()
+    after.add_argument("-v", "--verbose", action="store_true", help="as before the command")
+    after.add_argument("-q", "--quiet", action="store_true", help="as before the command")
     sub = p.add_subparsers(dest="command", required=True, metavar="COMMAND")
-    r = sub.add_parser("run", help="run a scenario and write its products")
+    r = sub.add_parser("run", help="run a scenario and write its products", parents=[common])
     r.add_argument("scenario", metavar="SCENARIO", help="scenario file (TOML)")
-    c = sub.add_parser("check", help="validate a scenario and its inputs; compute nothing")
+    c = sub.add_parser("check", help="validate a scenario and its inputs; compute nothing",
+                       parents=[common])
     c.add_argument("scenario", metavar="SCENARIO", help="scenario file (TOML)")
-    d = sub.add_parser("demo", help="write the built-in demo inputs and run them")
+    d = sub.add_parser("demo", help="write the built-in demo inputs and run them", parents=[common])
     d.add_argument("folder", metavar="FOLDER", nargs="?", default="slopescreen-demo",
                    help="where to write the demo (default: ./slopescreen-demo)")
     return p
