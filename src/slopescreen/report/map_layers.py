@@ -1,0 +1,132 @@
+"""Drawing one product layer on map axes, with cluster outlines and legend entries.
+
+The layer is drawn from its :class:`~slopescreen.report.styles.Style`: FS
+bands as classes, other products as ramps; cells with a DEM value but no
+product value are laid over in grey.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+from matplotlib.colors import BoundaryNorm, ListedColormap
+from matplotlib.figure import Figure
+from matplotlib.patches import Patch
+
+from .styles import FS_BANDS, NO_VALUE_COLOUR, Style, fs_band
+
+def _rgba(colour, alpha):
+    from matplotlib.colors import to_rgba
+
+    r, g, b, _ = to_rgba(colour)
+    return (r, g, b, alpha)
+
+
+def draw_product(values, style: Style, *, extent, ax=None, classes=None, no_value=None):
+    """Draw one product layer (no hillshade, no frame) on map axes.
+
+    Parameters
+    ----------
+    values : array_like, shape (rows, cols)
+        The product in its units; NaN is no value.
+    style : Style
+    extent : tuple of float
+        (left, right, bottom, top) in CRS units.
+    ax : matplotlib.axes.Axes, optional
+        Axes to draw on; a new figure's axes by default.
+    classes : array_like of int, optional
+        Critical-recharge class codes (``"recharge"`` style): 1 is drawn as
+        hatched dark red (fails even when dry), 3 is left uncoloured.
+    no_value : array_like of bool, optional
+        Cells with a DEM value but no product value; drawn in grey.
+
+    Returns
+    -------
+    matplotlib.axes.Axes
+    """
+    if ax is None:
+        ax = Figure().add_subplot()
+    v = np.asarray(values, dtype=np.float32)
+    common = dict(extent=extent, origin="upper", interpolation="nearest", zorder=2)
+    if style.kind == "bands":
+        band = fs_band(v)
+        colours = [_rgba(c, 0.88) if c else (0, 0, 0, 0) for _, _, c in FS_BANDS]
+        cmap = ListedColormap(colours).with_extremes(bad=(0, 0, 0, 0))
+        data = np.ma.masked_less(band, 0)
+        ax.imshow(data, cmap=cmap, norm=BoundaryNorm(np.arange(-0.5, len(FS_BANDS)), len(FS_BANDS)),
+                  **common)
+    else:
+        cmap = style.cmap().with_extremes(bad=(0, 0, 0, 0), under=(0, 0, 0, 0))
+        masked = np.ma.masked_invalid(v)
+        if style.transparent_below is not None:
+            masked = np.ma.masked_less(masked, style.transparent_below)
+        ax.imshow(masked, cmap=cmap, norm=style.norm(), alpha=style.alpha, **common)
+        if style.kind == "recharge" and classes is not None:
+            cls = np.asarray(classes)
+            dry = np.ma.masked_not_equal(cls, 1).astype(np.float32)
+            ax.imshow(dry, cmap=ListedColormap([_rgba(FS_BANDS[0][2], 0.9)]), **common)
+            rows, cols = cls.shape
+            left, right, bottom, top = extent
+            xs = left + (np.arange(cols) + 0.5) * (right - left) / cols
+            ys = top - (np.arange(rows) + 0.5) * (top - bottom) / rows
+            if (cls == 1).any():
+                ax.contourf(xs, ys, (cls == 1).astype(np.float32), levels=[0.5, 1.5], colors="none",
+                            hatches=["xxxx"], zorder=3)
+    if no_value is not None and np.any(no_value):
+        grey = np.ma.masked_where(~np.asarray(no_value, dtype=bool), np.ones(v.shape, np.float32))
+        ax.imshow(grey, cmap=ListedColormap([_rgba(NO_VALUE_COLOUR, 0.75)]), **common)
+    return ax
+
+
+def _outline_segments(labels, extent):
+    """Cell-edge segments between cells of different positive labels (CRS units)."""
+    lab = np.asarray(labels)
+    rows, cols = lab.shape
+    left, right, bottom, top = extent
+    sx = (right - left) / cols
+    sy = (top - bottom) / rows
+    padded = np.zeros((rows + 2, cols + 2), dtype=lab.dtype)
+    padded[1:-1, 1:-1] = lab
+    segs = []
+    # vertical edges: between (r, c-1) and (r, c) in the padded frame
+    diff = padded[1:-1, 1:] != padded[1:-1, :-1]
+    any_pos = (padded[1:-1, 1:] > 0) | (padded[1:-1, :-1] > 0)
+    r, c = np.nonzero(diff & any_pos)
+    x = left + c * sx
+    y0 = top - r * sy
+    segs.append(np.stack([np.stack([x, y0], 1), np.stack([x, y0 - sy], 1)], 1))
+    diff = padded[1:, 1:-1] != padded[:-1, 1:-1]
+    any_pos = (padded[1:, 1:-1] > 0) | (padded[:-1, 1:-1] > 0)
+    r, c = np.nonzero(diff & any_pos)
+    y = top - r * sy
+    x0 = left + c * sx
+    segs.append(np.stack([np.stack([x0, y], 1), np.stack([x0 + sx, y], 1)], 1))
+    return np.concatenate(segs, axis=0)
+
+
+def _legend_handles(style: Style, outlines, lines, no_value):
+    handles = []
+    if style.kind == "bands":
+        for _, label, colour in FS_BANDS:
+            if colour is None:
+                handles.append(Patch(facecolor="white", edgecolor="#555555", label=label))
+            else:
+                handles.append(Patch(facecolor=colour, edgecolor="none", label=label))
+    elif style.kind == "recharge":
+        handles.append(Patch(facecolor=FS_BANDS[0][2], hatch="xxxx", edgecolor="black",
+                             label="fails even when dry"))
+        handles.append(Patch(facecolor="white", edgecolor="#555555",
+                             label="stable even when saturated\n(not coloured)"))
+    elif style.transparent_below is not None:
+        handles.append(Patch(facecolor="white", edgecolor="#555555",
+                             label=f"below {style.transparent_below:g} (not coloured)"))
+    if no_value is not None and np.any(no_value):
+        handles.append(Patch(facecolor=NO_VALUE_COLOUR, edgecolor="none",
+                             label="no value (no soil unit\nor outside the model)"))
+    if outlines is not None:
+        handles.append(Patch(facecolor="none", edgecolor="black", linewidth=1.2,
+                             label="failure cluster outline"))
+    for line in lines or ():
+        from matplotlib.lines import Line2D
+
+        handles.append(Line2D([], [], color="#1b1b1b", linewidth=2.0, label=line.get("label", "line")))
+    return handles

@@ -1,0 +1,338 @@
+"""The sections of the report, in report order.
+
+Each builder takes the :class:`~slopescreen.report.blocks.ReportContext`
+and returns a :class:`~slopescreen.report.blocks.Section` (or None when the
+run has nothing for it): what fails where, each rain case, critical
+recharge, terrain, inputs and parameters, methods and references, products
+and provenance. The sections of the optional stages are in
+:mod:`slopescreen.report.stages`.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+
+from .blocks import Block, Section, bullets, figure, para, table
+from .stages import STAGE_SECTIONS
+from .summaries import (
+    NBSP, PRODUCT_TITLES, PROPERTY_UNITS, _map_alt, _map_caption, _pct, _units_text, band_areas,
+    case_facts, describe_case, format_area, parameter_text, rain_text, recharge_distribution,
+)
+
+# ---------------------------------------------------------------------------
+# Sections
+# ---------------------------------------------------------------------------
+
+
+def _rain_cases(ctx):
+    return ctx.manifest.get("rain") or []
+
+
+def _facts(ctx, case_name):
+    fs_e = ctx.product("factor_of_safety", case_name)
+    if fs_e is None:
+        return None
+    pf_e = ctx.product("failure_probability", case_name)
+    case = next((c for c in _rain_cases(ctx) if c["name"] == case_name), {})
+    # saturation to the surface is a steady-state notion; storm wetness is an equivalent head
+    wet_e = ctx.product("wetness", case_name) if case.get("steady_mm_per_day") is not None else None
+    return case_facts(ctx.read(fs_e), cell_area_m2=ctx.cell_area_m2,
+                      pf=None if pf_e is None else ctx.read(pf_e),
+                      wetness=None if wet_e is None else ctx.read(wet_e),
+                      slope_deg=ctx.slope_deg, aspect_deg=ctx.aspect_deg,
+                      unit_index=ctx.unit_index, unit_labels=ctx.unit_labels)
+
+
+def _glance(ctx, facts_by_case):
+    blocks = []
+    cases = _rain_cases(ctx)
+    if not cases or not any(facts_by_case.values()):
+        blocks.append(para("This run computed terrain products only (no [soil] and [[rain]] "
+                           "sections), so it says nothing yet about where slopes can fail."))
+        return Section("glance", "What fails where", blocks)
+    for case in cases:
+        f = facts_by_case.get(case["name"])
+        if f is None:
+            continue
+        blocks.append(para(describe_case(case["name"], rain_text(case), f)))
+    rows = []
+    for case in cases:
+        f = facts_by_case.get(case["name"])
+        if f is None:
+            continue
+        rows.append([case["name"], rain_text(case), format_area(f["fail_m2"]), _pct(f["fail_share"]),
+                     "not computed" if f["pf_m2"] is None else format_area(f["pf_m2"]),
+                     "" if f["pf_share"] is None else _pct(f["pf_share"])])
+    blocks.append(table("Area below FS 1 and area with a probability of failure above 0.5, per rain case",
+                        ["rain case", "rain", "area FS < 1", "share", "area P_f > 0.5", "share"],
+                        rows, [False, False, True, True, True, True]))
+    blocks.append(para("FS is the infinite-slope factor of safety at the median of every soil "
+                       "parameter; P_f is the probability that FS < 1 given the stated parameter "
+                       "distributions, cell by cell. Shares are of the area where the model was "
+                       "computed. The maps below show where."))
+    return Section("glance", "What fails where", blocks)
+
+
+def _case_sections(ctx, facts_by_case):
+    out = []
+    flags_text = {1: "pressure head at its cap (saturated to the surface)",
+                  2: "rain above the saturated conductivity (excess ran off)",
+                  4: "least FS late compared with A/D₀ (short-time solution doubtful)"}
+    for case in _rain_cases(ctx):
+        name = case["name"]
+        f = facts_by_case.get(name)
+        blocks = [para(rain_text(case), lead="Rain:")]
+        fs_e = ctx.product("factor_of_safety", name)
+        if fs_e is not None:
+            rows = [[label, format_area(a), _pct(s)] for label, a, s in
+                    band_areas(ctx.read(fs_e), ctx.cell_area_m2)]
+            if f is not None and f["pf_m2"] is not None:
+                rows.append(["probability of failure above 0.5 (any FS band)", format_area(f["pf_m2"]),
+                             _pct(f["pf_share"])])
+            blocks.append(table(f"Area by factor-of-safety band (common screening practice), “{name}”",
+                                ["factor of safety", "area", "share of the computed area"], rows,
+                                [False, True, True]))
+        flags_e = ctx.product("storm_flags", name)
+        if flags_e is not None:
+            flags = ctx.read(flags_e)
+            fin = np.isfinite(flags) & (flags > 0)
+            n = int(fin.sum())
+            bits = np.where(fin, flags, 0).astype(np.int64)
+            rows = [[text, _pct(((bits & bit) > 0).sum() / n if n else 0.0)]
+                    for bit, text in flags_text.items()]
+            blocks.append(table("Where the storm model's limits bind", ["flag", "share of cells"], rows,
+                                [False, True]))
+        for key in ("factor_of_safety", "failure_probability", "wetness", "cluster_fs_bound"):
+            e = ctx.product(key, name)
+            m = ctx.map_of(key, name)
+            if e is not None and m is not None:
+                blocks.append(figure(m.png, _map_alt(e), _map_caption(ctx, e)))
+        out.append(Section(f"case-{_anchor(name)}", f"Rain case: {name}", blocks, level=3))
+    return out
+
+
+def _anchor(text):
+    from ..scenario import slugify
+
+    return slugify(text)
+
+
+def _recharge_section(ctx):
+    q_e = ctx.product("critical_recharge")
+    c_e = ctx.product("critical_recharge_class")
+    if q_e is None or c_e is None:
+        return None
+    rates = [(c["name"], c["steady_mm_per_day"]) for c in _rain_cases(ctx)
+             if c.get("steady_mm_per_day") is not None]
+    dist = recharge_distribution(ctx.read(q_e), ctx.read(c_e), ctx.cell_area_m2, rates)
+    labels = {1: "fails even when dry", 2: "fails under enough recharge (a rate is given)",
+              3: "stable even when saturated"}
+    blocks = [para("The steady recharge, per unit of horizontal area, that brings a cell to FS = 1 "
+                   "at the median soil parameters (Montgomery and Dietrich 1994 with cohesion). "
+                   "Low values mark ground that needs little water to fail. It is a relative index "
+                   "of topographic control, not a rainfall threshold.")]
+    blocks.append(table("Stability classes", ["class", "area", "share"],
+                        [[labels[c], format_area(a), _pct(s)] for c, a, s in dist["classes"]],
+                        [False, True, True]))
+    if dist["percentiles"]:
+        blocks.append(table("Critical recharge where a rate applies (mm/day)",
+                            ["percentile", "critical recharge (mm/day)"],
+                            [[f"{p}th", f"{v:.3g}"] for p, v in dist["percentiles"]], [False, True]))
+    if dist["rates"]:
+        blocks.append(table("Area that fails at or below each steady rain case (class 1 plus q_cr "
+                            "below the rate)", ["rain case", "rate (mm/day)", "area", "share"],
+                            [[n, f"{r:g}", format_area(a), _pct(s)] for n, r, a, s in dist["rates"]],
+                            [False, True, True, True]))
+    m = ctx.map_of("critical_recharge")
+    if m is not None:
+        blocks.append(figure(m.png, _map_alt(q_e), _map_caption(ctx, q_e)))
+    return Section("recharge", "Critical recharge", blocks)
+
+
+def _terrain_section(ctx):
+    blocks = []
+    for key in ("slope", "specific_catchment_area"):
+        e = ctx.product(key)
+        if e is None:
+            continue
+        v = ctx.read(e)
+        fin = v[np.isfinite(v)]
+        if fin.size:
+            p = np.percentile(fin, [10, 50, 90])
+            blocks.append(para(f"10th, 50th and 90th percentiles: {p[0]:.3g}, {p[1]:.3g} and "
+                               f"{p[2]:.3g}{NBSP}{e['units']}.", lead=PRODUCT_TITLES[key] + ":"))
+        m = ctx.map_of(key)
+        if m is not None:
+            blocks.append(figure(m.png, _map_alt(e), _map_caption(ctx, e)))
+    return Section("terrain", "Terrain", blocks) if blocks else None
+
+
+def _inputs_section(ctx):
+    m = ctx.manifest
+    g = m.get("grid", {})
+    blocks = [table("Run inputs", ["item", "value"], [
+        ["study title", m.get("title", "")],
+        ["DEM grid", f"{g.get('rows')} × {g.get('cols')} cells of {g.get('dx_m', 0):g} × "
+                     f"{g.get('dy_m', 0):g} m; {g.get('valid_cells')} cells with data"],
+        ["CRS", str(g.get("crs", ""))],
+        ["flow routing", _routing_text(m.get("routing") or {})],
+        ["soil map", (m.get("soil") or {}).get("map") or "none (one soil unit covers the DEM)"],
+    ])]
+    soil = m.get("soil")
+    if soil:
+        units = soil["units"]
+        for first in range(0, len(units), 3):
+            part = units[first:first + 3]
+            header = ["property (unit)"] + [f"unit {u['code']}: {u['label']}" for u in part]
+            rows = [[f"{title} ({unit_})"] + [parameter_text(u.get(key), unit_) for u in part]
+                    for key, (title, unit_) in PROPERTY_UNITS.items() if any(key in u for u in part)]
+            caption = "Soil units and their parameters" + (
+                f" ({first // 3 + 1} of {(len(units) + 2) // 3})" if len(units) > 3 else "")
+            blocks.append(table(caption, header, rows))
+        blocks.append(para("The deterministic maps use the median of each distribution; the "
+                           "probability of failure samples them. Normal and lognormal "
+                           "distributions are truncated to each property's physical range."))
+    cases = _rain_cases(ctx)
+    if cases:
+        blocks.append(table("Rain cases", ["rain case", "kind", "values"],
+                            [[c["name"], "storm (Iverson 2000)" if c.get("storm_mm_per_h") else
+                              "steady recharge", rain_text(c)] for c in cases]))
+    unc = m.get("uncertainty")
+    if unc:
+        blocks.append(table("Uncertainty", ["setting", "value"], [
+            ["method", "Monte Carlo" if unc.get("method") == "monte_carlo" else
+             "first-order second-moment (FOSM)"],
+            ["samples per cell", unc.get("samples")], ["seed", unc.get("seed")],
+            ["independent draws per", unc.get("correlation")]]))
+    return Section("inputs", "Inputs and parameters", blocks)
+
+
+def _routing_text(r):
+    names = {"dinf": "D-infinity (Tarboton 1997)", "mfd": "multiple flow direction (Freeman 1991)",
+             "d8": "D8 (O'Callaghan and Mark 1984)"}
+    text = names.get(r.get("method"), str(r.get("method")))
+    if r.get("mfd_exponent"):
+        text += f", exponent {r['mfd_exponent']:g}"
+    return text
+
+
+METHODS = (
+    ("Slope", "Horn's (1981) 3×3 finite differences on the original DEM; the conditioned DEM is "
+              "used for routing only."),
+    ("Conditioning", "Priority-Flood depression filling (Barnes, Lehman and Mulla 2014) and drainage "
+                     "over flats (Garbrecht and Martz 1997; Barnes, Lehman and Mulla 2014)."),
+    ("Specific catchment area", "a = A/b: upslope planimetric area (own cell included) over an "
+                                "effective contour width chosen so an inclined plane gives a = L at "
+                                "every orientation to the grid."),
+    ("Steady wetness", "W = min(1, q a / (T sin θ)) with T = K z cos θ (O'Loughlin 1986; Montgomery "
+                       "and Dietrich 1994)."),
+    ("Storm response", "Iverson's (2000) one-dimensional transient pressure head with infiltration "
+                       "limited to K; the least FS over depth and time, during and after the storm."),
+    ("Factor of safety", "Infinite slope, vertical depth z, slope-parallel seepage: "
+                         "FS = (c' + c_r)/(γ z sin θ cos θ) + (1 − W γ_w/γ) tan φ'/tan θ, clipped to "
+                         "[0, 100] (Skempton and DeLory 1957)."),
+    ("Critical recharge", "FS = 1 solved for the steady recharge (Montgomery and Dietrich 1994 with "
+                          "cohesion)."),
+    ("Probability of failure", "Monte Carlo P(FS < 1) from the parameter distributions, or FOSM "
+                               "(Duncan 2000); per cell, conditional on the distributions."),
+)
+"""Short account of each method, in report order."""
+
+REFERENCES = (
+    "Barnes, R., Lehman, C., Mulla, D. (2014). Priority-Flood: an optimal depression-filling and "
+    "watershed-labeling algorithm for digital elevation models. Computers & Geosciences 62, 117–127.",
+    "Barnes, R., Lehman, C., Mulla, D. (2014). An efficient assignment of drainage direction over flat "
+    "surfaces in raster digital elevation models. Computers & Geosciences 62, 128–135.",
+    "Duncan, J.M. (2000). Factors of safety and reliability in geotechnical engineering. Journal of "
+    "Geotechnical and Geoenvironmental Engineering 126(4), 307–316.",
+    "Freeman, T.G. (1991). Calculating catchment area with divergent flow based on a regular grid. "
+    "Computers & Geosciences 17(3), 413–422.",
+    "Garbrecht, J., Martz, L.W. (1997). The assignment of drainage direction over flat surfaces in "
+    "raster digital elevation models. Journal of Hydrology 193, 204–213.",
+    "Horn, B.K.P. (1981). Hill shading and the reflectance map. Proceedings of the IEEE 69(1), 14–47.",
+    "Iverson, R.M. (2000). Landslide triggering by rain infiltration. Water Resources Research 36(7), "
+    "1897–1910. doi:10.1029/2000WR900090.",
+    "Montgomery, D.R., Dietrich, W.E. (1994). A physically based model for the topographic control on "
+    "shallow landsliding. Water Resources Research 30(4), 1153–1171.",
+    "O'Callaghan, J.F., Mark, D.M. (1984). The extraction of drainage networks from digital elevation "
+    "data. Computer Vision, Graphics, and Image Processing 28, 323–344.",
+    "O'Loughlin, E.M. (1986). Prediction of surface saturation zones in natural catchments by "
+    "topographic analysis. Water Resources Research 22(5), 794–804. doi:10.1029/WR022i005p00794.",
+    "Skempton, A.W., DeLory, F.A. (1957). Stability of natural slopes in London Clay. Proc. 4th "
+    "International Conference on Soil Mechanics and Foundation Engineering, London, 2, 378–381.",
+    "Tarboton, D.G. (1997). A new method for the determination of flow directions and upslope areas in "
+    "grid digital elevation models. Water Resources Research 33(2), 309–319. doi:10.1029/96WR03137.",
+)
+"""References cited in the report."""
+
+
+def _methods_section(ctx):
+    conv = ctx.manifest.get("conventions") or {}
+    blocks = [table("Methods", ["step", "method"], [list(m) for m in METHODS])]
+    if conv:
+        blocks.append(table("Conventions of this run", ["item", "convention"],
+                            [[k.replace("_", " "), v] for k, v in conv.items()]))
+    blocks.append(bullets([
+        "Assumptions: the failure plane is parallel to the ground and long compared with its depth; "
+        "seepage is parallel to the slope; one bulk unit weight above and below the water table; "
+        "suction, bedrock flow and seismic loading are ignored.",
+        "Factor-of-safety bands (below 1, 1 to 1.3, 1.3 to 1.5, 1.5 and above) are the screening "
+        "bands of common practice, not design criteria.",
+        "The probability of failure is per cell and conditional on the stated distributions; it is "
+        "not the probability that some landslide occurs in an area, and it says nothing about timing.",
+    ]))
+    blocks.append(Block("list", caption="References", items=list(REFERENCES)))
+    return Section("methods", "Methods and assumptions", blocks)
+
+
+def _products_section(ctx):
+    shown = {m.entry["path"]: m.shows for m in ctx.maps}
+
+    def title(p):
+        if p["key"] == "map" and p["path"] in shown:
+            return "Map: " + PRODUCT_TITLES.get(shown[p["path"]]["key"], shown[p["path"]]["key"]).lower()
+        return PRODUCT_TITLES.get(p["key"], p["key"])
+
+    rows = [[title(p), p["key"], p.get("rain") or "—", p["path"], p["kind"], _units_text(p["units"])]
+            for p in ctx.manifest.get("products", [])]
+    if not any(p["key"] == "report" for p in ctx.manifest.get("products", [])):
+        rows.append(["Report (this file)", "report", "—", "report.html", "html", "n/a"])
+    return Section("products", "Products of this run", [
+        para("Every product is listed in manifest.json beside this report; rasters are GeoTIFF on the "
+             "DEM grid with the caution in their metadata. A dash in the rain-case column marks a "
+             "product that does not depend on rain."),
+        table("Products", ["product", "key", "rain case", "file", "kind", "units"], rows)])
+
+
+def _provenance_section(ctx):
+    m = ctx.manifest
+    unc = m.get("uncertainty") or {}
+    rows = [["tool", f"{m.get('tool', 'slopescreen')} {m.get('version', '')}"],
+            ["run started", str(m.get("created", "")).replace("T", " ").replace("+00:00", " UTC")],
+            ["scenario SHA-256", m.get("scenario_sha256", "")],
+            ["random seed", unc.get("seed", "no sampling in this run") if unc else
+             "no sampling in this run"]]
+    env = m.get("environment") or {}
+    for k, v in env.items():
+        rows.append([k, v])
+    blocks = [table("Run", ["item", "value"], rows)]
+    hashes = m.get("inputs_sha256") or {}
+    if hashes:
+        blocks.append(table("Input files (paths relative to the output folder)",
+                            ["file", "SHA-256"], [[k, v] for k, v in hashes.items()]))
+    times = m.get("stage_seconds") or {}
+    if times:
+        rows = [[k, f"{v:.2f}"] for k, v in times.items()]
+        rows.append(["total of the stages above", f"{sum(times.values()):.2f}"])
+        blocks.append(table("Run time per stage (s)", ["stage", "seconds"], rows, [False, True]))
+        blocks.append(para("The time to write this report itself is recorded in manifest.json."))
+    stage_rows = []
+    not_run = {n["section"]: n["reason"] for n in m.get("not_run", [])}
+    keys = {p["key"] for p in m.get("products", [])}
+    for st in STAGE_SECTIONS:
+        ran = bool(keys & set(st.keys))
+        state = "ran" if ran else (f"configured, did not run: {not_run[st.section]}"
+                                   if st.section in not_run else "not part of this run")
+        stage_rows.append([st.title, state])
+    blocks.append(table("Optional stages", ["stage", "state"], stage_rows))
+    return Section("provenance", "Provenance", blocks)

@@ -1,0 +1,127 @@
+"""Report sections of the optional stages.
+
+A stage's section appears when one of its products is in the manifest, and
+a configured stage that did not run is named with the reason. A later stage
+adds its entry to :data:`STAGE_SECTIONS` (and, if it likes, its own
+builder); the template does not change.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from typing import Callable
+
+import numpy as np
+
+from .blocks import ReportContext, Section, figure, note, para, table
+from .summaries import NBSP, PRODUCT_TITLES, _map_alt, _map_caption, _units_text, format_area
+
+@dataclass(frozen=True)
+class StageSection:
+    """A report section that exists only when its stage ran.
+
+    Attributes
+    ----------
+    section : str
+        Scenario section that configures the stage (``"clusters"`` ...).
+    title : str
+    keys : tuple of str
+        Product keys that show the stage ran.
+    build : callable or None
+        ``build(ctx, entries) -> list of Block``; None lists the stage's
+        products and their maps.
+    """
+
+    section: str
+    title: str
+    keys: tuple
+    build: Callable | None = None
+
+
+def _cluster_blocks(ctx: ReportContext, entries):
+    """Failing multi-cell clusters per rain case: counts, sizes and the least stable."""
+    rows = ctx.tables.get("clusters", [])
+    blocks = [para(
+        "A cell below FS 1 is not yet a landslide: a real failure is a group of cells whose weight "
+        "overcomes the strength of its base and of its margins (passive resistance at the toe, "
+        "friction and roots on the sides, roots at the head). The clusters below are the groups "
+        "that fail as a whole under each rain case at the median parameters, found exactly by a "
+        "minimum cut; every one was checked to have FS below 1 when recomputed.",
+        lead="What this is:")]
+    cases = [r["name"] for r in ctx.manifest.get("rain", [])]
+    summary = []
+    for name in cases:
+        mine = [r for r in rows if r["rain"] == name]
+        if not mine:
+            summary.append([name, "0", "—", "—", "—"])
+            continue
+        areas = np.array([r["area_m2"] for r in mine])
+        volumes = np.array([r["volume_m3"] for r in mine])
+        summary.append([name, str(len(mine)), format_area(float(areas.sum())),
+                        f"{np.median(areas):,.0f}{NBSP}m² / {areas.max():,.0f}{NBSP}m²",
+                        f"{volumes.sum():,.0f}{NBSP}m³"])
+    blocks.append(table("Failing clusters per rain case",
+                        ["rain case", "clusters", "total area", "median / largest area",
+                         "total volume"], summary, [False, True, True, True, True]))
+    least = sorted(rows, key=lambda r: r["fs"])[:15]
+    if least:
+        blocks.append(table(
+            "The least stable clusters (up to 15)",
+            ["id", "rain case", "FS", "area", "volume", "length × width", "cells", "proven",
+             "in the area band"],
+            [[str(r["id"]), r["rain"], f"{r['fs']:.3f}", f"{r['area_m2']:,.0f}{NBSP}m²",
+              f"{r['volume_m3']:,.0f}{NBSP}m³", f"{r['length_m']:.0f} × {r['width_m']:.0f}{NBSP}m",
+              str(r["n_cells"]), "yes" if r["proven"] else "no",
+              "yes" if r["in_area_band"] else "no"] for r in least],
+            [False, False, True, True, True, True, True, False, False]))
+    bound = [e for e in entries if e["key"] == "cluster_fs_bound"]
+    if bound:
+        blocks.append(para(
+            "The cluster bound map gives, per cell, a proven lower bound on the factor of safety "
+            "of every cluster up to the stated extent that contains the cell; where it is at "
+            "least 1, no such cluster can fail under that rain case. Its maps are in the "
+            "sections of each rain case.", lead="Bound:"))
+    blocks.append(note(
+        "Not in this version: the size-resolved search for the least stable cluster inside the "
+        "scenario's area band, and the probability that each cluster fails given the parameter "
+        "distributions.", lead="Limits."))
+    return blocks
+
+
+STAGE_SECTIONS = (
+    StageSection("clusters", "Failure clusters",
+                 ("cluster_fs_bound", "clusters", "cluster_labels"), _cluster_blocks),
+    StageSection("runout", "Runout", ("runout",)),
+    StageSection("corridor", "Corridor", ("corridor_segments",)),
+    StageSection("inventory", "Agreement with mapped landslides", ("inventory_scores",)),
+)
+"""Optional stages and their sections, in report order."""
+
+
+def _generic_stage_blocks(ctx: ReportContext, entries):
+    blocks = []
+    for e in entries:
+        m = ctx.map_of(e["key"], e.get("rain"))
+        if m is not None:
+            blocks.append(figure(m.png, _map_alt(e), _map_caption(ctx, e)))
+    blocks.append(table("Products of this stage", ["product", "rain case", "file", "units"],
+                        [[PRODUCT_TITLES.get(e["key"], e["key"]), e.get("rain") or "—",
+                          e["path"], _units_text(e["units"])] for e in entries]))
+    return blocks
+
+
+
+def _stage_sections(ctx):
+    out = []
+    not_run = {n["section"]: n["reason"] for n in ctx.manifest.get("not_run", [])}
+    for st in STAGE_SECTIONS:
+        entries = [p for p in ctx.manifest.get("products", []) if p["key"] in st.keys]
+        if entries:
+            builder = st.build or _generic_stage_blocks
+            out.append(Section(st.section, st.title, builder(ctx, entries)))
+        elif st.section in not_run:
+            out.append(Section(st.section, st.title, [note(
+                f"The scenario configures [{st.section}], but this stage did not run: "
+                f"{not_run[st.section]}. No {st.section} product was written, and nothing in this "
+                "report depends on it.", lead="Did not run.")]))
+    return out

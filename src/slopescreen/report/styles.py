@@ -1,0 +1,131 @@
+"""How each product is drawn on a map: FS screening bands, ramps and their colours.
+
+How a product is drawn is set by its :data:`STYLES` entry (keyed by the
+manifest key): factor-of-safety products in the screening bands of common
+practice, probabilities and other continuous products as ramps, the
+critical recharge as a ramp with its class bands. A later stage adds a key
+to :data:`STYLES` and its product gets a map.
+
+The colours are our own. Each ramp and band set runs monotonically in
+CIELAB lightness (tested), so the order of the classes survives every form
+of colour-vision deficiency and greyscale printing.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+
+import numpy as np
+from matplotlib.colors import LinearSegmentedColormap, LogNorm, Normalize
+
+FS_BANDS = (
+    (1.0, "below 1.0: unstable under this case", "#6e1538"),
+    (1.3, "1.0 to 1.3: marginal", "#d9622b"),
+    (1.5, "1.3 to 1.5: moderately stable", "#f3d36b"),
+    (math.inf, "1.5 and above: stable under this case\n(not coloured)", None),
+)
+"""Screening bands of the factor of safety (upper bound, label, colour).
+
+Below 1, 1-1.3, 1.3-1.5 and 1.5 and above: the bands of common screening
+practice (not design criteria). A band's lower bound belongs to it
+(FS = 1.0 is marginal, not unstable). The stable band is left uncoloured so
+the terrain shows through."""
+
+NO_VALUE_COLOUR = "#7d7d7d"
+"""Grey laid over cells that have a DEM value but no product value."""
+
+
+@dataclass(frozen=True)
+class Style:
+    """How one product is drawn.
+
+    Attributes
+    ----------
+    kind : {"bands", "ramp", "recharge"}
+        FS bands, a continuous ramp, or the critical-recharge ramp with its
+        class bands.
+    label : str
+        Legend title with the units.
+    colours : tuple of str
+        Ramp stops, light to dark in CIELAB lightness (for ``"ramp"``).
+    vmin, vmax : float
+        Ramp range in product units.
+    log : bool
+        Logarithmic ramp.
+    transparent_below : float or None
+        Values below it are not coloured (the hillshade shows).
+    alpha : float
+        Opacity of the coloured layer over the hillshade.
+    reverse : bool
+        Dark for low values (critical recharge: low = susceptible).
+    """
+
+    kind: str
+    label: str
+    colours: tuple = ()
+    vmin: float = 0.0
+    vmax: float = 1.0
+    log: bool = False
+    transparent_below: float | None = None
+    alpha: float = 0.85
+    reverse: bool = False
+
+    def cmap(self):
+        """The matplotlib colormap of a ramp style."""
+        stops = self.colours[::-1] if self.reverse else self.colours
+        return LinearSegmentedColormap.from_list(f"slopescreen_{self.kind}", list(stops), N=256)
+
+    def norm(self):
+        """Value-to-colour normalisation of a ramp style."""
+        if self.log:
+            return LogNorm(vmin=self.vmin, vmax=self.vmax, clip=True)
+        return Normalize(vmin=self.vmin, vmax=self.vmax, clip=True)
+
+
+_WARM = ("#fbeeb4", "#f2b15c", "#d9622b", "#8f2140", "#3d0a2c")
+_COOL = ("#eef6f4", "#a8d5cd", "#4f98b0", "#24517f", "#161c44")
+_EARTH = ("#f6f1e4", "#d8c08e", "#a97b44", "#6b4023", "#2f1b10")
+
+FS_STYLE = Style("bands", "Factor of safety FS (dimensionless)\nmedian soil parameters")
+
+STYLES = {
+    "factor_of_safety": FS_STYLE,
+    "cluster_fs_bound": Style("bands", "Lower bound on cluster FS (dimensionless)"),
+    "failure_probability": Style("ramp", "Probability of failure P(FS < 1)\n(dimensionless, 0 to 1)",
+                                 _WARM, 0.0, 1.0, transparent_below=0.01),
+    "critical_recharge": Style("recharge", "Critical steady recharge (mm/day)\nlow = needs little rain",
+                               _COOL, 1.0, 1000.0, log=True, reverse=True),
+    "wetness": Style("ramp", "Wetness h/z (saturated fraction\nof the soil column, 0 to 1)",
+                     _COOL, 0.0, 1.0, transparent_below=0.02, alpha=0.8),
+    "slope": Style("ramp", "Slope (degrees)", _EARTH, 0.0, 50.0, alpha=0.7),
+    "specific_catchment_area": Style("ramp", "Specific catchment area a = A/b (m)",
+                                     _COOL, 5.0, 1.0e5, log=True, alpha=0.8),
+}
+"""Map style of each product key that gets a map."""
+
+
+def fs_band(fs):
+    """Screening band index of factor-of-safety values.
+
+    Parameters
+    ----------
+    fs : array_like
+        Factor of safety (dimensionless); NaN is nodata.
+
+    Returns
+    -------
+    numpy.ndarray of int8
+        0 below 1.0, 1 for 1.0-1.3, 2 for 1.3-1.5, 3 for 1.5 and above,
+        -1 where nodata. Each band holds its lower bound.
+
+    Examples
+    --------
+    >>> fs_band([0.99, 1.0, 1.3, 1.5, float("nan")]).tolist()
+    [0, 1, 2, 3, -1]
+    """
+    fs = np.asarray(fs, dtype=np.float64)
+    uppers = np.array([b[0] for b in FS_BANDS[:-1]])
+    band = np.searchsorted(uppers, fs, side="right").astype(np.int8)
+    band[np.isnan(fs)] = -1
+    return band

@@ -1,0 +1,371 @@
+"""Summaries of the product arrays and the report's wording.
+
+Plain numpy functions of the product arrays, tested on their own: areas in
+each factor-of-safety band, what fails where under one rain case, the
+distribution of the critical recharge, and the plain-words account of a
+case. Beside them the small text helpers the sections share (a rain case,
+a soil parameter, an area or a share in words) and the titles and units
+of the products and soil properties.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+
+NBSP = "\u00a0"
+"""No-break space between a number and its unit, so "5.3 %" never wraps."""
+
+ASPECT_SECTORS = ("north", "north-east", "east", "south-east", "south", "south-west", "west",
+                  "north-west")
+"""Compass sectors of 45 degrees, the first centred on north."""
+
+PROPERTY_UNITS = {
+    "depth_m": ("Depth to the failure plane (vertical)", "m"),
+    "cohesion_kpa": ("Effective soil cohesion c'", "kPa"),
+    "root_cohesion_kpa": ("Basal root cohesion", "kPa"),
+    "lateral_root_cohesion_kpa": ("Lateral root cohesion", "kPa"),
+    "friction_deg": ("Effective friction angle", "degrees"),
+    "unit_weight_kn_m3": ("Bulk unit weight", "kN/m³"),
+    "conductivity_m_per_day": ("Saturated hydraulic conductivity", "m/day"),
+    "diffusivity_m2_per_s": ("Hydraulic diffusivity D₀", "m²/s"),
+}
+"""Name and unit of every soil property, in the order of the report."""
+
+PRODUCT_TITLES = {
+    "slope": "Slope",
+    "specific_catchment_area": "Specific catchment area",
+    "critical_recharge": "Critical steady recharge",
+    "critical_recharge_class": "Critical-recharge class",
+    "wetness": "Wetness (saturated fraction of the soil column)",
+    "factor_of_safety": "Factor of safety",
+    "failure_probability": "Probability of failure",
+    "storm_failure_depth": "Depth of the least storm factor of safety",
+    "storm_failure_time": "Time of the least storm factor of safety",
+    "storm_flags": "Storm model flags",
+    "cluster_fs_bound": "Lower bound on the factor of safety of failure clusters",
+    "cluster_labels": "Failure clusters",
+    "clusters": "Failure clusters",
+    "runout": "Runout",
+    "corridor_segments": "Corridor segments",
+    "inventory_scores": "Agreement with mapped landslides",
+    "map": "Map",
+    "report": "Report",
+}
+"""Plain title of each product key."""
+
+
+# ---------------------------------------------------------------------------
+# Summaries (plain numpy, tested on their own)
+# ---------------------------------------------------------------------------
+
+
+def format_area(area_m2) -> str:
+    """Area in words: m² below 0.1 ha, hectares above, km² beyond 1000 ha.
+
+    Examples
+    --------
+    >>> [a.replace(NBSP, " ") for a in (format_area(480.0), format_area(12_345.0), format_area(4.2e7))]
+    ['480 m²', '1.23 ha', '42.0 km²']
+    """
+    a = float(area_m2)
+    if a < 1000.0:
+        return f"{a:.0f}{NBSP}m²"
+    ha = a / 1.0e4
+    if ha < 10:
+        return f"{ha:.2f}{NBSP}ha"
+    if ha < 1000:
+        return f"{ha:.1f}{NBSP}ha"
+    return f"{a / 1.0e6:.1f}{NBSP}km²"
+
+
+def _pct(share) -> str:
+    s = 100.0 * float(share)
+    if s == 0:
+        return f"0{NBSP}%"
+    if s < 0.1:
+        return f"<{NBSP}0.1{NBSP}%"
+    return f"{s:.1f}{NBSP}%" if s < 10 else f"{s:.0f}{NBSP}%"
+
+
+def band_areas(fs, cell_area_m2):
+    """Area and share of the computed cells in each screening band of FS.
+
+    Parameters
+    ----------
+    fs : array_like
+        Factor of safety (dimensionless); NaN is no value.
+    cell_area_m2 : float
+        Plan area of one cell, m².
+
+    Returns
+    -------
+    list of (str, float, float)
+        (band label, area m², share of the cells with a value) for the bands
+        below 1, 1-1.3, 1.3-1.5 and 1.5 and above (common practice).
+
+    Examples
+    --------
+    >>> [(b, a, s) for b, a, s in band_areas([0.5, 1.0, 1.35, 2.0, float("nan")], 10.0)][:2]
+    [('below 1.0', 10.0, 0.25), ('1.0 to 1.3', 10.0, 0.25)]
+    """
+    from .styles import FS_BANDS, fs_band
+
+    band = fs_band(fs)
+    n = int((band >= 0).sum())
+    labels = ("below 1.0", "1.0 to 1.3", "1.3 to 1.5", "1.5 and above")
+    out = []
+    for i, label in enumerate(labels[:len(FS_BANDS)]):
+        count = int((band == i).sum())
+        out.append((label, count * float(cell_area_m2), count / n if n else 0.0))
+    return out
+
+
+def _sector(aspect_deg):
+    a = np.asarray(aspect_deg, dtype=np.float64)
+    return np.floor(((a + 22.5) % 360.0) / 45.0).astype(np.int64)
+
+
+def case_facts(fs, *, cell_area_m2, pf=None, wetness=None, slope_deg=None, aspect_deg=None,
+               unit_index=None, unit_labels=()):
+    """What fails and where, for one rain case, as numbers.
+
+    Parameters
+    ----------
+    fs : array_like
+        Factor of safety; NaN is no value.
+    cell_area_m2 : float
+        Plan area of one cell, m².
+    pf : array_like, optional
+        Probability of failure (0-1).
+    wetness, slope_deg, aspect_deg : array_like, optional
+        Wetness h/z, slope (degrees) and aspect (degrees clockwise from
+        north) on the same grid.
+    unit_index : array_like of int, optional
+        Row of the soil unit per cell (-1 = none), matching ``unit_labels``.
+    unit_labels : sequence of str
+
+    Returns
+    -------
+    dict
+        ``computed_m2``, ``fail_m2``, ``fail_share``, ``pf_m2`` and
+        ``pf_share`` (P_f > 0.5, None without ``pf``), ``units`` (list of
+        (label, share of the failing area), largest first), ``slope_p10``,
+        ``slope_p90`` (degrees), ``aspects`` (list of (sector, share)),
+        ``saturated_share`` (share of the failing area with wetness >= 0.999).
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> f = case_facts(np.array([[0.8, 2.0], [0.9, 1.1]]), cell_area_m2=25.0,
+    ...                aspect_deg=np.array([[10.0, 0.0], [200.0, 0.0]]))
+    >>> f["fail_m2"], f["fail_share"], f["aspects"]
+    (50.0, 0.5, [('north', 0.5), ('south', 0.5)])
+    """
+    fs = np.asarray(fs, dtype=np.float64)
+    has = np.isfinite(fs)
+    fail = has & (fs < 1.0)
+    n, k = int(has.sum()), int(fail.sum())
+    facts = {"computed_m2": n * cell_area_m2, "fail_m2": k * cell_area_m2,
+             "fail_share": k / n if n else 0.0, "pf_m2": None, "pf_share": None, "units": [],
+             "slope_p10": None, "slope_p90": None, "aspects": [], "saturated_share": None}
+    if pf is not None:
+        pf = np.asarray(pf, dtype=np.float64)
+        hp = np.isfinite(pf)
+        m = int((hp & (pf > 0.5)).sum())
+        facts["pf_m2"] = m * cell_area_m2
+        facts["pf_share"] = m / int(hp.sum()) if hp.any() else 0.0
+    if k == 0:
+        return facts
+    if unit_index is not None and len(unit_labels):
+        idx = np.asarray(unit_index)[fail]
+        counts = np.bincount(idx[idx >= 0], minlength=len(unit_labels))
+        order = np.argsort(-counts, kind="stable")
+        facts["units"] = [(unit_labels[i], float(counts[i] / k)) for i in order if counts[i] > 0]
+    if slope_deg is not None:
+        s = np.asarray(slope_deg, dtype=np.float64)[fail]
+        s = s[np.isfinite(s)]
+        if s.size:
+            facts["slope_p10"], facts["slope_p90"] = (float(v) for v in np.percentile(s, [10, 90]))
+    if aspect_deg is not None:
+        a = np.asarray(aspect_deg, dtype=np.float64)[fail]
+        a = a[np.isfinite(a)]
+        if a.size:
+            counts = np.bincount(_sector(a), minlength=8)
+            order = np.argsort(-counts, kind="stable")
+            facts["aspects"] = [(ASPECT_SECTORS[i], float(counts[i] / a.size)) for i in order if counts[i] > 0]
+    if wetness is not None:
+        w = np.asarray(wetness, dtype=np.float64)[fail]
+        facts["saturated_share"] = float(np.mean(w >= 0.999)) if w.size else None
+    return facts
+
+
+def recharge_distribution(q_cr, classes, cell_area_m2, rates=()):
+    """Distribution of the critical steady recharge.
+
+    Parameters
+    ----------
+    q_cr : array_like
+        Critical recharge, mm/day (NaN where no rate applies).
+    classes : array_like of int
+        1 fails even when dry, 2 fails under enough recharge, 3 stable even
+        when saturated, 0 no value.
+    cell_area_m2 : float
+    rates : sequence of (str, float)
+        Steady rain cases (name, mm/day) to compare with.
+
+    Returns
+    -------
+    dict
+        ``classes``: list of (class, area m², share); ``percentiles``: list of
+        (p, mm/day) for p in 10, 25, 50, 75, 90 of the cells with a rate;
+        ``rates``: list of (name, mm/day, area m², share) of the area that
+        fails at or below the rate (class 1 plus q_cr < rate).
+
+    Examples
+    --------
+    >>> d = recharge_distribution([float("nan"), 4.0, 9.0], [1, 2, 2], 10.0, rates=[("wet", 5.0)])
+    >>> d["rates"]
+    [('wet', 5.0, 20.0, 0.6666666666666666)]
+    """
+    q = np.asarray(q_cr, dtype=np.float64)
+    c = np.asarray(classes)
+    n = int((c > 0).sum())
+    out = {"classes": [], "percentiles": [], "rates": []}
+    for code in (1, 2, 3):
+        k = int((c == code).sum())
+        out["classes"].append((code, k * cell_area_m2, k / n if n else 0.0))
+    has = (c == 2) & np.isfinite(q)
+    if has.any():
+        out["percentiles"] = [(p, float(v)) for p, v in
+                              zip((10, 25, 50, 75, 90), np.percentile(q[has], [10, 25, 50, 75, 90]))]
+    dry = int((c == 1).sum())
+    for name, rate in rates:
+        k = dry + int((has & (q < rate)).sum())
+        out["rates"].append((name, rate, k * cell_area_m2, k / n if n else 0.0))
+    return out
+
+
+def _join(words):
+    words = list(words)
+    if len(words) <= 1:
+        return "".join(words)
+    return ", ".join(words[:-1]) + " and " + words[-1]
+
+
+def describe_case(name, rain_text, facts) -> str:
+    """One paragraph, in plain words, of what fails where under one rain case.
+
+    Parameters
+    ----------
+    name : str
+        Rain-case name.
+    rain_text : str
+        The case in words (:func:`rain_text`).
+    facts : dict
+        From :func:`case_facts`.
+
+    Returns
+    -------
+    str
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> f = case_facts(np.array([0.8, 2.0, 2.0, 2.0]), cell_area_m2=400.0)
+    >>> describe_case("wet", "steady recharge 5 mm/day", f)[:60].replace(NBSP, " ")
+    'Under “wet” (steady recharge 5 mm/day), 400 m², 25 % of the '
+    """
+    lead = f"Under “{name}” ({rain_text}), "
+    if facts["fail_m2"] == 0:
+        text = (lead + "no cell has a factor of safety below 1 at the median soil parameters "
+                f"(of {format_area(facts['computed_m2'])} computed).")
+    else:
+        text = (lead + f"{format_area(facts['fail_m2'])}, {_pct(facts['fail_share'])} of the "
+                f"{format_area(facts['computed_m2'])} computed, has a factor of safety below 1 at the "
+                "median soil parameters.")
+        where = []
+        if facts["units"]:
+            top = [u for u in facts["units"][:3] if u[1] >= 0.05] or facts["units"][:1]
+            where.append("in " + _join(f"{label} ({_pct(share)})" for label, share in top))
+        if facts["slope_p10"] is not None:
+            where.append(f"on slopes of {facts['slope_p10']:.0f} to {facts['slope_p90']:.0f} degrees "
+                         "(10th to 90th percentile)")
+        if facts["aspects"]:
+            picked, total = [], 0.0
+            for sector, share in facts["aspects"]:
+                picked.append(sector)
+                total += share
+                if total >= 0.5 or len(picked) == 3:
+                    break
+            where.append(f"facing {_join(picked)} ({_pct(total)})")
+        if where:
+            text += " It lies mostly " + "; ".join(where) + "."
+        if facts["saturated_share"] is not None:
+            text += (f" {_pct(facts['saturated_share'])} of it is saturated to the surface "
+                     "(wetness 1) in this case.")
+    if facts["pf_m2"] is not None:
+        text += (f" {format_area(facts['pf_m2'])} ({_pct(facts['pf_share'])}) has a probability of "
+                 "failure above 0.5 given the parameter distributions.")
+    return text
+
+
+
+# ---------------------------------------------------------------------------
+# Text helpers
+# ---------------------------------------------------------------------------
+
+
+def rain_text(case: dict) -> str:
+    """A rain case of the manifest in words."""
+    if case.get("steady_mm_per_day") is not None:
+        return f"steady recharge {case['steady_mm_per_day']:g} mm/day"
+    total = case["storm_mm_per_h"] * case["duration_h"]
+    return (f"storm of {case['storm_mm_per_h']:g} mm/h for {case['duration_h']:g} h ({total:g} mm), "
+            f"water table {case['water_table_depth_m']:g} m below the surface before it")
+
+
+def _num(v) -> str:
+    return f"{v:.4g}" if isinstance(v, float) else str(v)
+
+
+def parameter_text(record, unit) -> str:
+    """A soil parameter of the manifest (number or distribution) in words with its unit."""
+    if record is None:
+        return "not given"
+    if not isinstance(record, dict):
+        return f"{_num(float(record))} {unit} (fixed)"
+    kind = record["distribution"]
+    if kind == "uniform":
+        text = f"uniform, {_num(record['low'])} to {_num(record['high'])} {unit}"
+    elif kind == "normal":
+        text = f"normal, mean {_num(record['mean'])} {unit}, sd {_num(record['sd'])} {unit}"
+    else:
+        text = f"lognormal, median {_num(record['median'])} {unit}, sd of ln {_num(record['sd_of_log'])}"
+    bounds = record.get("truncated_to")
+    if bounds:
+        lo, hi = bounds
+        if lo is None:
+            low = "no lower limit"
+        elif 0 < lo < 1e-300:      # the open bound "> 0" is stored as the next float above 0
+            low = "above 0"
+        else:
+            low = f"from {_num(float(lo))}"
+        high = "no upper limit" if hi is None else f"to {_num(float(hi))} {unit}"
+        text += f"; truncated: {low} {high}"
+    return text
+
+
+def _map_alt(entry) -> str:
+    title = PRODUCT_TITLES.get(entry["key"], entry["key"])
+    return f"Map: {title}" + (f", rain case {entry['rain']}" if entry.get("rain") else "")
+
+
+def _units_text(units) -> str:
+    return "dimensionless" if units == "1" else units
+
+
+def _map_caption(ctx, entry) -> str:
+    title = PRODUCT_TITLES.get(entry["key"], entry["key"])
+    m = ctx.map_of(entry["key"], entry.get("rain"))
+    file = f" Map file: {m.entry['path']}; raster: {entry['path']}." if m else ""
+    return f"{title} ({_units_text(entry['units'])}).{file}"
