@@ -1,4 +1,5 @@
-"""Speed of the failure-cluster stage: failing-cluster map and least-stable (FS bound) map.
+"""Speed of the failure-cluster stage: failing-cluster map, least-stable (FS bound) map and
+the exact size-resolved program (mixed-integer, per 40 x 40 window and area band).
 
 Terrain: a crop of the seeded fractal DEM in benchmarks/_data (or a seeded synthetic surface
 when it is absent), cell 5 m, slope and aspect by Horn; wetness rises with a smoothed
@@ -6,6 +7,7 @@ convergence proxy. Prints seconds, cells per second and the counts that matter.
 
     python benchmarks/bench_clusters.py                 # 1000 x 1000 failing map, 400 x 400 bound map
     python benchmarks/bench_clusters.py --bound-cells 1000
+    python benchmarks/bench_clusters.py --only-size     # size-resolved program only
 """
 
 import argparse
@@ -17,6 +19,7 @@ from scipy import ndimage
 
 from slopescreen.clusters import cluster_forces
 from slopescreen.clusters.search import failing_set, fs_bound_map
+from slopescreen.clusters.sizes import area_bands, candidate_windows, size_resolved_clusters
 from slopescreen.clusters.stage import failure_clusters
 from slopescreen.terrain import slope_aspect
 
@@ -44,11 +47,23 @@ def main():
     ap = argparse.ArgumentParser()
     ap.add_argument("--cells", type=int, default=1000, help="side of the failing-cluster grid")
     ap.add_argument("--bound-cells", type=int, default=400, help="side of the bound-map grid")
+    ap.add_argument("--size-cells", type=int, default=400,
+                    help="side of the grid the size-resolved candidates come from")
+    ap.add_argument("--size-windows", type=int, default=8,
+                    help="40 x 40 candidate windows (half around failing clusters, half the "
+                         "least-stable bound-map windows)")
+    ap.add_argument("--size-bands", type=int, default=3, help="area bands over 25..2500 m^2")
+    ap.add_argument("--size-time-limit", type=float, default=10.0,
+                    help="MILP time limit per window and band, s")
+    ap.add_argument("--only-size", action="store_true", help="run the size-resolved part only")
     args = ap.parse_args()
 
     # warm-up: numba compilation
     s, a, w = terrain(64)
     failure_clusters(s, 1.2, w, dx=5.0, dy=5.0, aspect_deg=a, bound=True, **SOIL)
+    if args.only_size:
+        size_resolved(args)
+        return
 
     n = args.cells
     slope, aspect, wet = terrain(n)
@@ -82,6 +97,75 @@ def main():
     scale = (1000 / nb) ** 2
     print(f"  extrapolated to 1000x1000: {(t5 - t4) * scale:.0f} s (target < 300 s); "
           f"bound >= 1 on {float(np.mean(bound[np.isfinite(bound)] >= 1)):.1%} of cells")
+    size_resolved(args)
+
+
+def size_resolved(args):
+    """Exact size-resolved program: seconds per 40 x 40 window and band, proven share."""
+    n = args.size_cells
+    slope, aspect, wet = terrain(max(n, 64))
+    slope, aspect, wet = slope[:n, :n], aspect[:n, :n], wet[:n, :n]
+    f = cluster_forces(slope, aspect, 1.2, wet, dx=5.0, dy=5.0, **SOIL)
+    res = failure_clusters(slope, 1.2, wet, dx=5.0, dy=5.0, aspect_deg=aspect, bound=False,
+                           **SOIL)
+    _, windows, _ = fs_bound_map(f, window_cells=40, stride_cells=20)
+    half = args.size_windows // 2
+    around = candidate_windows(f.valid.shape, labels=res.labels, window_cells=40)
+    # clusters spread over the grid: take every k-th so the windows do not all overlap
+    step = max(1, len(around) // max(half, 1))
+    picked = around[::step][:half]
+    least = candidate_windows(f.valid.shape, windows=windows,
+                              n_least=args.size_windows - len(picked) + 4)
+    cands = picked + [w for w in least if w not in picked][:args.size_windows - len(picked)]
+    bands = area_bands(25.0, 2500.0, 25.0, args.size_bands)
+    # warm-up: numba kernels of the heuristic and cvxpy's first canonicalisation
+    size_resolved_clusters(f, candidates=[(0, 12, 0, 12)], min_area_m2=25.0, max_area_m2=300.0,
+                           bands=2, time_limit_s=2.0)
+    t0 = time.perf_counter()
+    out = size_resolved_clusters(f, candidates=cands, min_area_m2=25.0, max_area_m2=2500.0,
+                                 bands=args.size_bands, time_limit_s=args.size_time_limit)
+    total = time.perf_counter() - t0
+    t = out.table
+    secs = t["seconds"]
+    per_window = np.array([secs[t["candidate"] == i].sum() for i in range(len(cands))])
+    print(f"size-resolved program: {len(cands)} windows 40x40 ({len(picked)} around failing "
+          f"clusters, {len(cands) - len(picked)} least-stable), bands (cells) {bands}, "
+          f"time limit {args.size_time_limit:g} s per band; total {total:.1f} s")
+    print(f"  per window (all bands): median {np.median(per_window):.2f} s, max "
+          f"{per_window.max():.2f} s (target < 15 s median per 40x40 window)")
+    for b in range(len(bands)):
+        sel = t["band"] == b
+        methods = {str(m): int((t["method"][sel] == m).sum()) for m in np.unique(t["method"][sel])}
+        gaps = 1.0 - t["lower_bound"][sel] / t["fs"][sel]
+        print(f"  band {b} {bands[b]} cells: median {np.median(secs[sel]):.2f} s, max "
+              f"{secs[sel].max():.2f} s, proven {int(t['proven'][sel].sum())}/{int(sel.sum())}, "
+              f"methods {methods}, worst bound gap {np.nanmax(gaps):.2%}, heuristic = final in "
+              f"{int(np.sum(np.isclose(t['heuristic_fs'][sel], t['fs'][sel], rtol=1e-9)))}")
+    probability(slope, aspect, wet, res.labels)
+
+
+def probability(slope, aspect, wet, labels, samples=400):
+    """Monte Carlo probability that each failing cluster fails: seconds for N samples."""
+    from slopescreen.clusters.probability import cluster_failure_probability
+    from slopescreen.parameters import normal, uniform
+    from slopescreen.probability import encode_table
+
+    table = encode_table([{"depth_m": uniform(1.0, 1.4), "cohesion_kpa": normal(1.0, 0.3),
+                           "root_cohesion_kpa": uniform(0.5, 1.5),
+                           "friction_deg": normal(34.0, 2.0), "unit_weight_kn_m3": 18.5,
+                           "conductivity_m_per_day": 2.0}])
+    unit = np.zeros(labels.shape, dtype=np.int64)
+    kw = dict(lateral_root_cohesion_kpa=uniform(2.0, 6.0), dx=5.0, dy=5.0, wetness=wet,
+              samples=samples, seed=7)
+    small = np.zeros(labels.shape, np.int32)
+    small[:3, :3] = 1
+    cluster_failure_probability(small, slope, aspect, unit, table, **kw)  # compilation
+    t0 = time.perf_counter()
+    res = cluster_failure_probability(labels, slope, aspect, unit, table, **kw)
+    dt = time.perf_counter() - t0
+    cells = int((labels > 0).sum())
+    print(f"cluster failure probability: {res.ids.size} clusters ({cells} cells) x {samples} "
+          f"samples in {dt:.2f} s; median P_f {np.median(res.p_f):.2f}")
 
 
 if __name__ == "__main__":

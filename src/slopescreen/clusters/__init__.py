@@ -7,10 +7,16 @@ resistance and, on head faces, an active thrust; METHODS.md section 9)::
     FS(S) = (R(S) + B(S)) / (D(S) + H(S))
     g_lam(S) = R(S) + B(S) - lam (D(S) + H(S)),      FS(S) < lam  <=>  g_lam(S) < 0
 
-Modules: ``forces`` (force model), ``cut`` (exact minimisation of g_lam by an
-s-t minimum cut with integer capacities), ``search`` (tiles with halos at
-lam = 1, Dinkelbach least-stable clusters in windows, the FS bound raster),
-``stage`` (the stage function and the cluster table).
+Modules: ``forces`` (force model; its numba kernels in ``_force_kernels``),
+``cut`` (exact minimisation of g_lam by an s-t minimum cut with integer
+capacities), ``search`` (tiles with halos at lam = 1, Dinkelbach least-stable
+clusters in windows, the FS bound raster), ``heuristic`` (area-price sweep,
+greedy repair and local search for connected sets in an area band), ``band``
+(the exact mixed-integer program per window and area band, with the
+relaxation and MILP bounds; ``_solve`` checks every cvxpy solve), ``sizes``
+(candidate windows, area bands, the size-resolved table), ``probability``
+(Monte Carlo probability that a found cluster fails) and ``stage`` (the stage
+function and the cluster table).
 
 Why the components of the lam = 1 minimiser are failing clusters
 -----------------------------------------------------------------
@@ -69,22 +75,41 @@ from .forces import (
     face_pressures,
     nonsubmodular_faces,
 )
+from .band import BandResult, least_stable_in_band
+from .probability import ClusterProbability, cluster_failure_probability, cluster_parameter_draws
 from .search import WindowResult, failing_set, fs_bound_map, least_stable_in_window
+from .sizes import (
+    SIZE_COLUMNS,
+    SizeResolved,
+    area_bands,
+    candidate_windows,
+    size_resolved_clusters,
+)
 from .stage import TABLE_COLUMNS, ClusterResult, cluster_table, failure_clusters
 
 __all__ = [
+    "BandResult",
     "ClusterForces",
+    "ClusterProbability",
     "ClusterResult",
+    "SIZE_COLUMNS",
+    "SizeResolved",
     "TABLE_COLUMNS",
     "WindowResult",
+    "area_bands",
+    "candidate_windows",
     "cluster_factor_of_safety",
+    "cluster_failure_probability",
     "cluster_forces",
+    "cluster_parameter_draws",
     "cluster_table",
     "earth_pressure_coefficients",
     "face_pressures",
     "failing_set",
     "failure_clusters",
     "fs_bound_map",
+    "least_stable_in_band",
     "least_stable_in_window",
     "nonsubmodular_faces",
+    "size_resolved_clusters",
 ]

@@ -20,10 +20,10 @@ from typing import NamedTuple
 import numpy as np
 
 from .. import _checks
-from .._numba import njit, njit_parallel, prange
 from ..errors import InputError
 from ..parameters import _field, _physical_field
-from ..stability import FS_CAP, GAMMA_W, _fs_point, _rad
+from ..stability import FS_CAP, GAMMA_W
+from ._force_kernels import _face_per_length, _forces_kernel
 
 __all__ = [
     "FACE_DROW",
@@ -134,52 +134,6 @@ def earth_pressure_coefficients(friction_deg):
     return ka, kp, k0, k0j
 
 
-@njit
-def _sigma_v_integral(z, hw, gm, gs):
-    """Integral over the face height of the effective vertical stress, kN/m.
-
-    Water table h_w above the base (vertical); gamma_m above it, buoyant
-    gamma_sat - gamma_w below it.
-    """
-    t = z - hw
-    return 0.5 * gm * t * t + gm * t * hw + 0.5 * (gs - GAMMA_W) * hw * hw
-
-
-@njit
-def _positive_part_integral(a0, a1, length):
-    """Integral over [0, length] of max(0, f) with f linear from a0 to a1."""
-    if length <= 0.0:
-        return 0.0
-    if a0 >= 0.0 and a1 >= 0.0:
-        return 0.5 * (a0 + a1) * length
-    if a0 <= 0.0 and a1 <= 0.0:
-        return 0.0
-    hi = max(a0, a1)
-    return 0.5 * hi * hi / abs(a1 - a0) * length
-
-
-@njit
-def _face_per_length(z, m, gm, gs, coh, root_lat, tan_phi, sin_phi, passive_fraction, jaky_full):
-    """(toe resistance, head resistance, side resistance, active thrust) per metre of face, kN/m."""
-    ka = (1.0 - sin_phi) / (1.0 + sin_phi)
-    kp = (1.0 + sin_phi) / (1.0 - sin_phi)
-    k0 = 1.0 - sin_phi
-    if jaky_full:
-        k0 = (1.0 - sin_phi) * (1.0 + 2.0 / 3.0 * sin_phi) / (1.0 + sin_phi)
-    hw = m * z
-    sv = _sigma_v_integral(z, hw, gm, gs)
-    toe = passive_fraction * (kp * sv + 2.0 * coh * math.sqrt(kp) * z)
-    head = root_lat * z
-    side = (coh + root_lat) * z + k0 * tan_phi * sv
-    t = z - hw
-    s_t = gm * t
-    s_z = s_t + (gs - GAMMA_W) * hw
-    off = 2.0 * coh * math.sqrt(ka)
-    thrust = (_positive_part_integral(-off, ka * s_t - off, t)
-              + _positive_part_integral(ka * s_t - off, ka * s_z - off, hw))
-    return toe, head, side, thrust
-
-
 def face_pressures(depth_m, wetness, *, cohesion_kpa, lateral_root_cohesion_kpa, friction_deg,
                    unit_weight_kn_m3, saturated_unit_weight_kn_m3=None, passive_fraction=0.5,
                    jaky_full=False):
@@ -270,74 +224,22 @@ def face_pressures(depth_m, wetness, *, cohesion_kpa, lateral_root_cohesion_kpa,
     return {"toe": toe, "head": head, "side": side, "active": thrust}
 
 
-@njit_parallel
-def _forces_kernel(slope, aspect, depth, wet, coh, root_b, root_l, phi, gm, gs, valid, dx, dy,
-                   eta, jaky_full, driving, resisting, face_w, face_h, cell_fs, down):
-    rows, cols = slope.shape
-    area = dx * dy
-    for r in prange(rows):
-        for c in range(cols):
-            if not valid[r, c]:
-                driving[r, c] = math.nan
-                resisting[r, c] = math.nan
-                cell_fs[r, c] = math.nan
-                for k in range(4):
-                    face_w[k, r, c] = math.nan
-                    face_h[k, r, c] = math.nan
-                continue
-            th = _rad(slope[r, c])
-            st = math.sin(th)
-            ct = math.cos(th)
-            z = depth[r, c]
-            hw = wet[r, c] * z
-            col = gm[r, c] * (z - hw) + gs[r, c] * hw
-            u = GAMMA_W * hw * ct * ct
-            tphi = math.tan(_rad(phi[r, c]))
-            cb = coh[r, c] + root_b[r, c]
-            driving[r, c] = col * area * st
-            resisting[r, c] = max(0.0, cb + (col * ct * ct - u) * tphi) * area / ct
-            cell_fs[r, c] = _fs_point(cb, tphi, st, ct, col, u)
-            de = down[0, r, c]
-            dn = down[1, r, c]
-            for k in range(4):
-                rr = r + (0, -1, 0, 1)[k]
-                cc = c + (1, 0, -1, 0)[k]
-                length = dy if k % 2 == 0 else dx
-                if 0 <= rr < rows and 0 <= cc < cols and valid[rr, cc]:
-                    fz = 0.5 * (z + depth[rr, cc])
-                    fm = 0.5 * (wet[r, c] + wet[rr, cc])
-                    fgm = 0.5 * (gm[r, c] + gm[rr, cc])
-                    fgs = 0.5 * (gs[r, c] + gs[rr, cc])
-                    fc = 0.5 * (coh[r, c] + coh[rr, cc])
-                    fl = 0.5 * (root_l[r, c] + root_l[rr, cc])
-                    fphi = _rad(0.5 * (phi[r, c] + phi[rr, cc]))
-                    ve = de + down[0, rr, cc]
-                    vn = dn + down[1, rr, cc]
-                    norm = math.sqrt(ve * ve + vn * vn)
-                    if norm > 1e-9:
-                        ve /= norm
-                        vn /= norm
-                    else:
-                        ve = 0.0
-                        vn = 0.0
-                else:
-                    fz = z
-                    fm = wet[r, c]
-                    fgm = gm[r, c]
-                    fgs = gs[r, c]
-                    fc = coh[r, c]
-                    fl = root_l[r, c]
-                    fphi = _rad(phi[r, c])
-                    ve = de
-                    vn = dn
-                toe, head, side, thrust = _face_per_length(
-                    fz, fm, fgm, fgs, fc, fl, math.tan(fphi), math.sin(fphi), eta, jaky_full)
-                cosang = (1.0, 0.0, -1.0, 0.0)[k] * ve + (0.0, 1.0, 0.0, -1.0)[k] * vn
-                cp = max(cosang, 0.0)
-                cm = max(-cosang, 0.0)
-                face_w[k, r, c] = length * (cp * cp * toe + cm * cm * head
-                                            + (1.0 - cosang * cosang) * side)
-                face_h[k, r, c] = length * cm * cm * thrust
+def downslope_vectors(slope, aspect_deg):
+    """Unit downslope vectors (east, north), shape (2, rows, cols); 0 on flat or NaN-aspect cells.
+
+    Parameters
+    ----------
+    slope : numpy.ndarray
+        Slope, degrees (a cell with slope 0 has no direction).
+    aspect_deg : numpy.ndarray
+        Downslope direction, degrees clockwise from north.
+    """
+    a = np.radians(np.asarray(aspect_deg, dtype=np.float64))
+    down = np.zeros((2,) + a.shape)
+    has_dir = np.isfinite(a) & (np.asarray(slope) > 0.0)
+    down[0][has_dir] = np.sin(a[has_dir])
+    down[1][has_dir] = np.cos(a[has_dir])
+    return down
 
 
 def _grid_field(value, shape, key, low, high, *, open_low=False):
@@ -467,11 +369,7 @@ def cluster_forces(slope_deg, aspect_deg, depth_m, wetness, *, dx, dy, cohesion_
         valid &= np.isfinite(arr)
     if not valid.any():
         raise InputError("slope_deg and the soil inputs: no cell has every input defined")
-    a = np.radians(aspect)
-    down = np.zeros((2,) + shape)
-    has_dir = np.isfinite(a) & (slope > 0.0)
-    down[0][has_dir] = np.sin(a[has_dir])
-    down[1][has_dir] = np.cos(a[has_dir])
+    down = downslope_vectors(slope, aspect)
     driving = np.empty(shape)
     resisting = np.empty(shape)
     face_w = np.empty((4,) + shape)
@@ -496,6 +394,21 @@ def _margin_sums(forces, mask):
         b += float(forces.face_resistance[k][margin].sum())
         h += float(forces.face_thrust[k][margin].sum())
     return b, h
+
+
+def _extent(forces, comp):
+    """(length along slope, width across slope), m, of one cluster."""
+    rr, cc = np.nonzero(comp)
+    d = forces.downslope[:, rr, cc].sum(axis=1)
+    norm = float(np.hypot(d[0], d[1]))
+    de, dn = (d / norm) if norm > 0 else (0.0, -1.0)
+    x = cc * forces.dx
+    y = -rr * forces.dy
+    along = x * de + y * dn
+    across = -x * dn + y * de
+    length = float(np.ptp(along)) + abs(de) * forces.dx + abs(dn) * forces.dy
+    width = float(np.ptp(across)) + abs(dn) * forces.dx + abs(de) * forces.dy
+    return length, width
 
 
 def cluster_factor_of_safety(forces, mask):

@@ -1,21 +1,31 @@
-"""The clusters stage: failing clusters of one rain case, their table and the FS bound raster."""
+"""The clusters stage: failing clusters of one rain case, their table and the FS bound raster.
+
+Optional parts: the size-resolved search (least-stable cluster per candidate window and area
+band, :mod:`slopescreen.clusters.sizes`) and the probability that each cluster fails
+(:mod:`slopescreen.clusters.probability`).
+"""
 
 from typing import NamedTuple
+
+import math
 
 import numpy as np
 from scipy import ndimage
 
 from ..errors import InputError
-from .forces import cluster_factor_of_safety, cluster_forces
+from .forces import _extent, cluster_factor_of_safety, cluster_forces
+from .probability import cluster_failure_probability
 from .search import FOUR_CONNECTED, _sub, failing_set, fs_bound_map
+from .sizes import candidate_windows, size_resolved_clusters
 
 __all__ = ["ClusterResult", "TABLE_COLUMNS", "failure_clusters", "cluster_table"]
 
 TABLE_COLUMNS = (
     "id", "fs", "area_m2", "volume_m3", "mean_depth_m", "length_m", "width_m", "n_cells",
-    "min_cell_fs", "lower_bound", "proven", "in_area_band",
+    "min_cell_fs", "lower_bound", "proven", "in_area_band", "probability", "probability_se",
 )
-"""Columns of the cluster table, in order."""
+"""Columns of the cluster table, in order (``probability`` and its standard error are NaN
+unless ``uncertainty`` is given to :func:`failure_clusters`)."""
 
 
 class ClusterResult(NamedTuple):
@@ -35,21 +45,8 @@ class ClusterResult(NamedTuple):
     """Cells the tiled cut could not decide (clusters touching them are not proven)."""
     dropped: int
     """Components of the cut with recomputed FS >= 1 (rounding), not reported."""
-
-
-def _extent(forces, comp):
-    """(length along slope, width across slope), m, of one cluster."""
-    rr, cc = np.nonzero(comp)
-    d = forces.downslope[:, rr, cc].sum(axis=1)
-    norm = float(np.hypot(d[0], d[1]))
-    de, dn = (d / norm) if norm > 0 else (0.0, -1.0)
-    x = cc * forces.dx
-    y = -rr * forces.dy
-    along = x * de + y * dn
-    across = -x * dn + y * de
-    length = float(np.ptp(along)) + abs(de) * forces.dx + abs(dn) * forces.dy
-    width = float(np.ptp(across)) + abs(dn) * forces.dx + abs(de) * forces.dy
-    return length, width
+    size_resolved: object = None
+    """:class:`~slopescreen.clusters.sizes.SizeResolved` when asked for, else None."""
 
 
 def cluster_table(forces, labels, *, bound_map=None, extent_cells=0, min_area_m2=None,
@@ -83,21 +80,24 @@ def cluster_table(forces, labels, *, bound_map=None, extent_cells=0, min_area_m2
     for i, sl in enumerate(ndimage.find_objects(labels), start=1):
         if sl is None:
             continue
-        comp = labels == i
-        fs = cluster_factor_of_safety(forces, comp)
+        # work on the cluster's bounding box: faces across the box edge are margins
+        # of the cluster, charged with their own values, exactly as on the whole grid
+        comp = labels[sl] == i
+        sub = _sub(forces, (sl[0].start, sl[0].stop, sl[1].start, sl[1].stop))
+        fs = cluster_factor_of_safety(sub, comp)
         fits = (sl[0].stop - sl[0].start <= extent_cells
                 and sl[1].stop - sl[1].start <= extent_cells)
-        lb = float(np.min(bound_map[comp])) if bound_map is not None and fits else np.nan
+        lb = float(np.min(bound_map[sl][comp])) if bound_map is not None and fits else np.nan
         ncell = int(comp.sum())
         area = ncell * cell_area
-        depth = forces.depth_m[comp]
-        length, width = _extent(forces, comp)
+        depth = sub.depth_m[comp]
+        length, width = _extent(sub, comp)
         band = (min_area_m2 is None or area >= min_area_m2) and (
             max_area_m2 is None or area <= max_area_m2)
         for k, v in zip(TABLE_COLUMNS, (
                 i, fs, area, float(depth.sum()) * cell_area, float(depth.mean()), length, width,
-                ncell, float(np.min(forces.cell_fs[comp])), lb,
-                True if proven is None else bool(proven[i - 1]), band)):
+                ncell, float(np.min(sub.cell_fs[comp])), lb,
+                True if proven is None else bool(proven[i - 1]), band, math.nan, math.nan)):
             out[k].append(v)
     dtypes = {"id": np.int32, "n_cells": np.int32, "proven": bool, "in_area_band": bool}
     return {k: np.asarray(v, dtype=dtypes.get(k, np.float64)) for k, v in out.items()}
@@ -107,7 +107,9 @@ def failure_clusters(slope_deg, depth_m, wetness, *, dx, dy, aspect_deg, cohesio
                      root_cohesion_kpa, lateral_root_cohesion_kpa, friction_deg,
                      unit_weight_kn_m3, saturated_unit_weight_kn_m3=None, passive_fraction=0.5,
                      min_area_m2=None, max_area_m2=None, tile_cells=200, halo_cells=24,
-                     bound_window_cells=40, bound_stride_cells=20, bound=True):
+                     bound_window_cells=40, bound_stride_cells=20, bound=True,
+                     size_resolved=False, size_bands=1, size_time_limit_s=10.0,
+                     size_window_cells=40, size_n_least=4, uncertainty=None):
     """Failing multi-cell clusters of one rain case and the cluster FS bound raster.
 
     Parameters
@@ -144,6 +146,27 @@ def failure_clusters(slope_deg, depth_m, wetness, *, dx, dy, aspect_deg, cohesio
         for clusters whose bounding box spans at most W - s rows and columns.
     bound : bool
         Compute ``cluster_fs_bound`` (the slower product); NaN raster if False.
+    size_resolved : bool
+        Also run the size-resolved search (needs ``min_area_m2`` and
+        ``max_area_m2``): the least-stable connected cluster of each area
+        band in windows around each failing cluster and in the
+        ``size_n_least`` least-stable bound-map windows
+        (:func:`~slopescreen.clusters.sizes.size_resolved_clusters`).
+    size_bands : int or sequence of (float, float)
+        Area bands (:func:`~slopescreen.clusters.sizes.area_bands`).
+    size_time_limit_s : float
+        Time limit of the mixed-integer solves per window and band, s.
+    size_window_cells : int
+        Side of the windows centred on failing clusters, cells.
+    size_n_least : int
+        Least-stable bound-map windows added as candidates (needs ``bound``).
+    uncertainty : dict, optional
+        Fill the ``probability`` columns by
+        :func:`~slopescreen.clusters.probability.cluster_failure_probability`:
+        keys ``unit_index``, ``table``, ``lateral_root_cohesion_kpa``,
+        ``samples``, ``seed`` and, for a steady case, ``rain`` and ``sca_m``
+        (wetness recomputed per sample); without ``rain`` the ``wetness``
+        given here is held fixed.
 
     Returns
     -------
@@ -208,14 +231,67 @@ def failure_clusters(slope_deg, depth_m, wetness, *, dx, dy, aspect_deg, cohesio
     relabel = np.zeros(n + 1, dtype=np.int32)
     relabel[keep] = np.arange(1, int(keep.sum()) + 1, dtype=np.int32)
     out_labels = relabel[labels]
+    windows = None
     if bound:
-        bmap, _, extent = fs_bound_map(forces, window_cells=bound_window_cells,
-                                       stride_cells=bound_stride_cells)
+        bmap, windows, extent = fs_bound_map(forces, window_cells=bound_window_cells,
+                                             stride_cells=bound_stride_cells)
     else:
         bmap = np.full(forces.valid.shape, np.nan, dtype=np.float32)
         extent = 0
     table = cluster_table(forces, out_labels, bound_map=bmap if bound else None,
                           extent_cells=extent, min_area_m2=min_area_m2, max_area_m2=max_area_m2,
                           proven=proven)
+    sizes = None
+    if size_resolved:
+        if min_area_m2 is None or max_area_m2 is None:
+            raise InputError("min_area_m2, max_area_m2: the size-resolved search needs the "
+                             "scenario's area range ([clusters] min_area_m2, max_area_m2)")
+        cands = candidate_windows(forces.valid.shape, labels=out_labels, windows=windows,
+                                  window_cells=size_window_cells, n_least=size_n_least)
+        sizes = size_resolved_clusters(forces, candidates=cands, min_area_m2=min_area_m2,
+                                       max_area_m2=max_area_m2, bands=size_bands,
+                                       time_limit_s=size_time_limit_s)
+    if uncertainty is not None:
+        _add_probability(table, out_labels, sizes, slope_deg, aspect_deg, wetness, dx, dy,
+                         passive_fraction, uncertainty)
     return ClusterResult(out_labels, table, bmap, extent, fset.modular_faces,
-                         int(undecided.sum()), int(n - keep[1:].sum()))
+                         int(undecided.sum()), int(n - keep[1:].sum()), sizes)
+
+
+_UNCERTAINTY_KEYS = {"unit_index", "table", "lateral_root_cohesion_kpa", "samples", "seed",
+                     "rain", "sca_m"}
+
+
+def _add_probability(table, labels, sizes, slope_deg, aspect_deg, wetness, dx, dy,
+                     passive_fraction, uncertainty):
+    """Fill the probability columns of the cluster table (and of the size-resolved table)."""
+    try:
+        extra = set(uncertainty) - _UNCERTAINTY_KEYS
+    except TypeError:
+        raise InputError("uncertainty: expected a mapping of keyword arguments") from None
+    if extra:
+        raise InputError(f"uncertainty: unknown key(s) {sorted(extra)}; expected "
+                         f"{sorted(_UNCERTAINTY_KEYS)}")
+    args = dict(uncertainty)
+    for key in ("unit_index", "table", "lateral_root_cohesion_kpa"):
+        if key not in args:
+            raise InputError(f"uncertainty: missing {key!r}")
+    unit = args.pop("unit_index")
+    tab = args.pop("table")
+    if args.get("rain") is None:
+        args.pop("rain", None)
+        args.pop("sca_m", None)
+        args["wetness"] = wetness
+    common = dict(dx=dx, dy=dy, passive_fraction=passive_fraction, **args)
+    if labels.max() > 0:
+        res = cluster_failure_probability(labels, slope_deg, aspect_deg, unit, tab, **common)
+        table["probability"][res.ids - 1] = res.p_f
+        table["probability_se"][res.ids - 1] = res.standard_error
+    if sizes is not None:
+        rows = [i for i, m in enumerate(sizes.masks) if m.any()]
+        if rows:
+            shape = labels.shape
+            res = cluster_failure_probability([sizes.grid_mask(i, shape) for i in rows],
+                                              slope_deg, aspect_deg, unit, tab, **common)
+            sizes.table["probability"][rows] = res.p_f
+            sizes.table["probability_se"][rows] = res.standard_error

@@ -1,0 +1,631 @@
+"""Fast heuristic for the least-stable connected cluster in an area band.
+
+It supplies the starting point (warm start) of the exact mixed-integer
+program of :mod:`slopescreen.clusters.band`: an area-price sweep with the
+exact minimum cut, then greedy repair and local search on connected sets.
+
+Terms of a window (:func:`band_terms`): with c_N[i] = R_i + sum_k W[k, i]
+(every face of i charged) and p_N[k, i] = W[k, i] + W[k', j] for the face
+between i and its in-window valid neighbour j across face k (0 otherwise),
+and the same for D, H::
+
+    N(S) = sum_{i in S} c_N[i] - sum_{faces (i, j), both in S} p_N
+    FS(S) = N(S) / D(S)
+
+which is :func:`~slopescreen.clusters.forces.cluster_factor_of_safety` of
+the set with every cell outside the window counted as outside the set.
+"""
+
+import math
+from typing import NamedTuple
+
+import numpy as np
+from scipy import ndimage
+
+from .._numba import njit
+from .cut import integer_terms, magnitude, pair_terms, scale_for, solve_window
+from .search import FOUR_CONNECTED
+
+__all__ = ["BandTerms", "band_terms", "set_ratio", "band_heuristic", "local_search",
+           "rectangle_starts"]
+
+_DR = (0, -1, 0, 1)
+_DC = (1, 0, -1, 0)
+
+
+class BandTerms(NamedTuple):
+    """Additive terms of N(S) and D(S) on one window (float64)."""
+
+    valid: np.ndarray
+    """Cells that may join a set, (h, w) bool."""
+    cn: np.ndarray
+    """c_N: R_i plus every face resistance of i, (h, w)."""
+    cd: np.ndarray
+    """c_D: D_i plus every active thrust of i, (h, w)."""
+    pn: np.ndarray
+    """p_N[k, i]: resistance given back when i and its neighbour across k are both in S, (4, h, w)."""
+    pd: np.ndarray
+    """p_D[k, i]: thrust given back likewise, (4, h, w)."""
+    driving: np.ndarray
+    """D_i alone (basal driving force), (h, w); 0 at invalid cells."""
+
+
+def band_terms(sub):
+    """Window terms of N and D from the force terms of a window.
+
+    Parameters
+    ----------
+    sub : ClusterForces
+        Force terms cut to the window (its shape is the window's).
+
+    Returns
+    -------
+    BandTerms
+
+    Notes
+    -----
+    ``set_ratio(band_terms(f), S)`` equals ``N, D`` of
+    :func:`~slopescreen.clusters.forces.cluster_factor_of_safety` for every
+    set S of valid cells (each face with both cells in S is given back once).
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> from slopescreen.clusters.forces import cluster_forces, cluster_factor_of_safety
+    >>> f = cluster_forces(np.full((4, 4), 40.0), np.full((4, 4), 180.0), 1.0, 0.5, dx=5.0,
+    ...     dy=5.0, cohesion_kpa=1.0, root_cohesion_kpa=0.0, lateral_root_cohesion_kpa=2.0,
+    ...     friction_deg=33.0, unit_weight_kn_m3=18.0)
+    >>> m = np.zeros((4, 4), bool); m[1:3, 1:4] = True
+    >>> n, d = set_ratio(band_terms(f), m)
+    >>> bool(abs(n / d - cluster_factor_of_safety(f, m)) < 1e-12)
+    True
+    """
+    valid = np.ascontiguousarray(sub.valid)
+    fw = np.where(valid, np.nan_to_num(sub.face_resistance), 0.0)
+    fh = np.where(valid, np.nan_to_num(sub.face_thrust), 0.0)
+    cn = np.where(valid, np.nan_to_num(sub.resisting) + fw.sum(axis=0), 0.0)
+    cd = np.where(valid, np.nan_to_num(sub.driving) + fh.sum(axis=0), 0.0)
+    pn = np.zeros_like(fw)
+    pd = np.zeros_like(fh)
+    both = valid[:, :-1] & valid[:, 1:]
+    e_n = np.where(both, fw[0][:, :-1] + fw[2][:, 1:], 0.0)
+    e_d = np.where(both, fh[0][:, :-1] + fh[2][:, 1:], 0.0)
+    pn[0][:, :-1] = e_n
+    pn[2][:, 1:] = e_n
+    pd[0][:, :-1] = e_d
+    pd[2][:, 1:] = e_d
+    both = valid[:-1, :] & valid[1:, :]
+    s_n = np.where(both, fw[3][:-1, :] + fw[1][1:, :], 0.0)
+    s_d = np.where(both, fh[3][:-1, :] + fh[1][1:, :], 0.0)
+    pn[3][:-1, :] = s_n
+    pn[1][1:, :] = s_n
+    pd[3][:-1, :] = s_d
+    pd[1][1:, :] = s_d
+    drv = np.where(valid, np.nan_to_num(sub.driving), 0.0)
+    return BandTerms(valid, cn, cd, pn, pd, drv)
+
+
+def set_ratio(terms, mask):
+    """(N, D) of a set from the window terms (plain numpy; example in :func:`band_terms`)."""
+    m = np.asarray(mask, dtype=bool)
+    n = float(terms.cn[m].sum())
+    d = float(terms.cd[m].sum())
+    # each face with both cells in S appears twice over the four directions
+    pad = np.pad(m, 1)
+    h, w = m.shape
+    for k in range(4):
+        nb = pad[1 + _DR[k]:1 + _DR[k] + h, 1 + _DC[k]:1 + _DC[k] + w]
+        both = m & nb
+        n -= 0.5 * float(terms.pn[k][both].sum())
+        d -= 0.5 * float(terms.pd[k][both].sum())
+    return n, d
+
+
+@njit
+def _ratio(n, d):
+    if d <= 0.0:
+        return math.inf
+    return n / d
+
+
+@njit
+def _articulation_kernel(mask, art, disc, low, parent, it, stack):
+    """Mark the articulation cells of the 4-connected set ``mask`` (iterative Tarjan).
+
+    A cell is an articulation cell when removing it splits its component.
+    """
+    h, w = mask.shape
+    for r in range(h):
+        for c in range(w):
+            art[r, c] = False
+            disc[r, c] = -1
+    t = 0
+    for r0 in range(h):
+        for c0 in range(w):
+            if not mask[r0, c0] or disc[r0, c0] >= 0:
+                continue
+            root = r0 * w + c0
+            disc[r0, c0] = t
+            low[r0, c0] = t
+            t += 1
+            parent[r0, c0] = -1
+            it[r0, c0] = 0
+            children = 0
+            top = 0
+            stack[0] = root
+            while top >= 0:
+                v = stack[top]
+                vr = v // w
+                vc = v - vr * w
+                if it[vr, vc] < 4:
+                    k = it[vr, vc]
+                    it[vr, vc] += 1
+                    rr = vr + _DR[k]
+                    cc = vc + _DC[k]
+                    if not (0 <= rr < h and 0 <= cc < w and mask[rr, cc]):
+                        continue
+                    u = rr * w + cc
+                    if disc[rr, cc] < 0:
+                        parent[rr, cc] = v
+                        disc[rr, cc] = t
+                        low[rr, cc] = t
+                        t += 1
+                        it[rr, cc] = 0
+                        if v == root:
+                            children += 1
+                        top += 1
+                        stack[top] = u
+                    elif u != parent[vr, vc]:
+                        if disc[rr, cc] < low[vr, vc]:
+                            low[vr, vc] = disc[rr, cc]
+                else:
+                    top -= 1
+                    p = parent[vr, vc]
+                    if p >= 0:
+                        pr = p // w
+                        pc = p - pr * w
+                        if low[vr, vc] < low[pr, pc]:
+                            low[pr, pc] = low[vr, vc]
+                        if p != root and low[vr, vc] >= disc[pr, pc]:
+                            art[pr, pc] = True
+            if children > 1:
+                art[r0, c0] = True
+
+
+@njit
+def _toggle_delta(cn, cd, pn, pd, mask, r, c):
+    """(dN, dD) of adding cell (r, c) to the set (minus them for removing it)."""
+    h, w = mask.shape
+    dn = cn[r, c]
+    dd = cd[r, c]
+    for k in range(4):
+        rr = r + _DR[k]
+        cc = c + _DC[k]
+        if 0 <= rr < h and 0 <= cc < w and mask[rr, cc]:
+            dn -= pn[k, r, c]
+            dd -= pd[k, r, c]
+    return dn, dd
+
+
+@njit
+def _best_swap(cn, cd, pn, pd, valid, mask, n, d, art, disc, low, parent, it, stack):
+    """Best (ratio, N, D, jr, jc, ir, ic) over swaps: add neighbour j, remove a cell i != j.
+
+    i must not be an articulation cell of S u {j}, so the result stays connected.
+    """
+    h, w = mask.shape
+    best = math.inf
+    bn = 0.0
+    bd = 0.0
+    jr = -1
+    jc = -1
+    ir = -1
+    ic = -1
+    for r in range(h):
+        for c in range(w):
+            if mask[r, c] or not valid[r, c]:
+                continue
+            touch = False
+            for k in range(4):
+                rr = r + _DR[k]
+                cc = c + _DC[k]
+                if 0 <= rr < h and 0 <= cc < w and mask[rr, cc]:
+                    touch = True
+            if not touch:
+                continue
+            an, ad = _toggle_delta(cn, cd, pn, pd, mask, r, c)
+            mask[r, c] = True
+            _articulation_kernel(mask, art, disc, low, parent, it, stack)
+            for r2 in range(h):
+                for c2 in range(w):
+                    if not mask[r2, c2] or art[r2, c2] or (r2 == r and c2 == c):
+                        continue
+                    rn, rd = _toggle_delta(cn, cd, pn, pd, mask, r2, c2)
+                    q = _ratio(n + an - rn, d + ad - rd)
+                    if q < best:
+                        best = q
+                        bn = n + an - rn
+                        bd = d + ad - rd
+                        jr = r
+                        jc = c
+                        ir = r2
+                        ic = c2
+            mask[r, c] = False
+    return best, bn, bd, jr, jc, ir, ic
+
+
+@njit
+def _local_search_kernel(cn, cd, pn, pd, valid, mask, kmin, kmax, max_moves):
+    """Repair ``mask`` (connected, modified in place) into [kmin, kmax] cells, then improve.
+
+    Repair removes the non-articulation cell (or adds the neighbouring cell)
+    that leaves the least FS until the size fits; improvement applies the
+    best single add or remove that keeps the set connected, in the band and
+    lowers FS, then the best swap of one cell for another, until none
+    helps. Returns (ok, N, D).
+    """
+    h, w = mask.shape
+    art = np.zeros((h, w), dtype=np.bool_)
+    disc = np.empty((h, w), dtype=np.int64)
+    low = np.empty((h, w), dtype=np.int64)
+    parent = np.empty((h, w), dtype=np.int64)
+    it = np.empty((h, w), dtype=np.int64)
+    stack = np.empty(h * w + 1, dtype=np.int64)
+    size = 0
+    n = 0.0
+    d = 0.0
+    for r in range(h):
+        for c in range(w):
+            if mask[r, c]:
+                size += 1
+                n += cn[r, c]
+                d += cd[r, c]
+                for k in (0, 3):
+                    rr = r + _DR[k]
+                    cc = c + _DC[k]
+                    if 0 <= rr < h and 0 <= cc < w and mask[rr, cc]:
+                        n -= pn[k, r, c]
+                        d -= pd[k, r, c]
+    if size == 0:
+        return False, n, d
+    moves = 0
+    while moves < max_moves:
+        cur = _ratio(n, d)
+        can_add = size < kmax
+        can_remove = size > kmin and size > 1
+        must_add = size < kmin
+        must_remove = size > kmax
+        if can_remove:
+            _articulation_kernel(mask, art, disc, low, parent, it, stack)
+        best = math.inf
+        br = -1
+        bc = -1
+        badd = False
+        bn = 0.0
+        bd = 0.0
+        for r in range(h):
+            for c in range(w):
+                if mask[r, c]:
+                    if not can_remove or art[r, c] or must_add:
+                        continue
+                    dn, dd = _toggle_delta(cn, cd, pn, pd, mask, r, c)
+                    q = _ratio(n - dn, d - dd)
+                    if q < best:
+                        best = q
+                        br = r
+                        bc = c
+                        badd = False
+                        bn = n - dn
+                        bd = d - dd
+                elif valid[r, c] and can_add and not must_remove:
+                    touch = False
+                    for k in range(4):
+                        rr = r + _DR[k]
+                        cc = c + _DC[k]
+                        if 0 <= rr < h and 0 <= cc < w and mask[rr, cc]:
+                            touch = True
+                    if not touch:
+                        continue
+                    dn, dd = _toggle_delta(cn, cd, pn, pd, mask, r, c)
+                    q = _ratio(n + dn, d + dd)
+                    if q < best:
+                        best = q
+                        br = r
+                        bc = c
+                        badd = True
+                        bn = n + dn
+                        bd = d + dd
+        if br < 0:
+            break
+        if not (must_add or must_remove) and not best < cur * (1.0 - 1e-12):
+            # no single move helps: try the best swap (add j, then remove i), which
+            # keeps the size, so it also works at either end of the band
+            sw, sn, sd, jr, jc, ir, ic = _best_swap(cn, cd, pn, pd, valid, mask, n, d, art,
+                                                     disc, low, parent, it, stack)
+            if jr < 0 or not sw < cur * (1.0 - 1e-12):
+                break
+            mask[jr, jc] = True
+            mask[ir, ic] = False
+            n = sn
+            d = sd
+            moves += 1
+            continue
+        mask[br, bc] = badd
+        size += 1 if badd else -1
+        n = bn
+        d = bd
+        moves += 1
+    ok = kmin <= size <= kmax
+    return ok, n, d
+
+
+def local_search(terms, mask, kmin, kmax, max_moves=None):
+    """Repair a connected set into [kmin, kmax] cells and improve it by single-cell moves.
+
+    Parameters
+    ----------
+    terms : BandTerms
+    mask : numpy.ndarray of bool
+        A connected set of valid cells (not modified).
+    kmin, kmax : int
+        Band in cells.
+    max_moves : int, optional
+        Most moves (default 4 (kmax + cells of the window)).
+
+    Returns
+    -------
+    mask : numpy.ndarray of bool or None
+        The repaired, improved set (None when the band cannot be reached).
+    fs : float
+        Its FS (N / D; inf when D = 0).
+
+    Notes
+    -----
+    A move never removes an articulation cell (Tarjan's depth-first search,
+    from memory: Tarjan, R.E. (1972). Depth-first search and linear graph
+    algorithms. SIAM J. Computing 1(2), 146-160), so the set stays
+    4-connected; see :func:`_local_search_kernel`.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> from slopescreen.clusters.forces import cluster_forces
+    >>> f = cluster_forces(np.full((6, 6), 40.0), np.full((6, 6), 180.0), 1.0, 0.5, dx=5.0,
+    ...     dy=5.0, cohesion_kpa=1.0, root_cohesion_kpa=0.0, lateral_root_cohesion_kpa=2.0,
+    ...     friction_deg=33.0, unit_weight_kn_m3=18.0)
+    >>> start = np.zeros((6, 6), bool); start[2, 2] = True
+    >>> mask, fs = local_search(band_terms(f), start, 4, 6)
+    >>> 4 <= int(mask.sum()) <= 6
+    True
+    """
+    m = np.array(mask, dtype=np.bool_, copy=True)
+    if max_moves is None:
+        max_moves = 4 * (int(kmax) + m.size)
+    ok, n, d = _local_search_kernel(terms.cn, terms.cd, terms.pn, terms.pd, terms.valid, m,
+                                    int(kmin), int(kmax), int(max_moves))
+    if not ok:
+        return None, math.inf
+    return m, (n / d if d > 0 else math.inf)
+
+
+def rectangle_starts(terms, kmin, kmax, top=4):
+    """The ``top`` rectangles of kmin..kmax valid cells with least FS (2-D prefix sums).
+
+    Every h x w block of valid cells with kmin <= h w <= kmax at every
+    position is scored in O(1) from prefix sums of c_N, c_D and of the face
+    terms inside the block; slides on a plane slope are close to blocks, so
+    these are good starts for the local search.
+
+    Returns
+    -------
+    list of (float, numpy.ndarray of bool)
+        (FS, mask), least FS first.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> from slopescreen.clusters.forces import cluster_forces
+    >>> f = cluster_forces(np.full((6, 6), 40.0), np.full((6, 6), 180.0), 1.0, 0.5, dx=5.0,
+    ...     dy=5.0, cohesion_kpa=1.0, root_cohesion_kpa=0.0, lateral_root_cohesion_kpa=2.0,
+    ...     friction_deg=33.0, unit_weight_kn_m3=18.0)
+    >>> fs, block = rectangle_starts(band_terms(f), 6, 6, top=1)[0]
+    >>> int(block.sum())
+    6
+    """
+    valid = terms.valid
+    rows, cols = valid.shape
+
+    def cum(a):
+        out = np.zeros((a.shape[0] + 1, a.shape[1] + 1))
+        out[1:, 1:] = a.cumsum(0).cumsum(1)
+        return out
+
+    def box(c, h, w):
+        return c[h:, w:] - c[:-h, w:] - c[h:, :-w] + c[:-h, :-w]
+
+    bad = cum((~valid).astype(float))
+    cn, cd = cum(terms.cn), cum(terms.cd)
+    en, ed = cum(terms.pn[0]), cum(terms.pd[0])   # east faces, on their west cell
+    sn, sd = cum(terms.pn[3]), cum(terms.pd[3])   # south faces, on their north cell
+    found = []
+    for h in range(1, rows + 1):
+        for w in range(max(1, -(-int(kmin) // h)), min(cols, int(kmax) // h) + 1):
+            ok = box(bad, h, w) == 0
+            if not ok.any():
+                continue
+            n = box(cn, h, w)
+            d = box(cd, h, w)
+            if w > 1:
+                n = n - box(en, h, w - 1)[:, :n.shape[1]]
+                d = d - box(ed, h, w - 1)[:, :d.shape[1]]
+            if h > 1:
+                n = n - box(sn, h - 1, w)[:n.shape[0], :]
+                d = d - box(sd, h - 1, w)[:d.shape[0], :]
+            with np.errstate(divide="ignore", invalid="ignore"):
+                q = np.where(ok & (d > 0), n / d, np.inf)
+            k = int(np.argmin(q))
+            if np.isfinite(q.ravel()[k]):
+                r0, c0 = np.unravel_index(k, q.shape)
+                found.append((float(q.ravel()[k]), int(r0), int(c0), h, w))
+    found.sort()
+    out = []
+    for fs, r0, c0, h, w in found[:top]:
+        m = np.zeros((rows, cols), dtype=bool)
+        m[r0:r0 + h, c0:c0 + w] = True
+        out.append((fs, m))
+    return out
+
+
+def _cut(unary, cap, valid):
+    m = magnitude(unary, cap)
+    scale = scale_for(float(m[valid].sum()))
+    ui, ci = integer_terms(unary, cap, scale)
+    mask, _ = solve_window(ui, ci, valid, (0, valid.shape[0], 0, valid.shape[1]))
+    return mask
+
+
+def band_heuristic(sub, terms, kmin, kmax, seeds, *, rounds=3, steps=14, polish=3,
+                   starts=12):
+    """Least-FS connected set of kmin..kmax cells found by price sweep, repair and local search.
+
+    Parameters
+    ----------
+    sub : ClusterForces
+        Force terms of the window.
+    terms : BandTerms
+        :func:`band_terms` of ``sub``.
+    kmin, kmax : int
+        Band in cells (1 <= kmin <= kmax).
+    seeds : list of numpy.ndarray of bool
+        Connected sets to start from (e.g. the least-stable cluster of the
+        window without size limits).
+    rounds : int
+        Rounds of the sweep; lambda is lowered to the best FS after each.
+    steps : int
+        Bisection steps on the area price per target size.
+    polish : int
+        Best sweep components improved by local search per round.
+    starts : int
+        Lone cells of least FS (overall and within each seed) grown into the
+        band by local search.
+
+    Returns
+    -------
+    mask : numpy.ndarray of bool or None
+        Best set found (None when no connected set of the band exists in
+        the window).
+    fs : float
+        Its FS (inf when none).
+    n_cuts : int
+        Minimum cuts used.
+
+    Notes
+    -----
+    Area-price sweep: for a price mu per cell, the exact cut (module
+    :mod:`slopescreen.clusters.cut`) minimises g_lam(S) + mu |S|; its
+    minimiser S_mu minimises g_lam among all sets of its own size (if T has
+    |T| = |S_mu|, g_lam(T) + mu |T| >= g_lam(S_mu) + mu |S_mu|). mu is
+    bisected so that |S_mu| meets the band's ends and its geometric middle;
+    components of S_mu inside the band are candidates, the largest one is
+    repaired. Repair and local search move one cell at a time and keep the
+    set connected (articulation cells are never removed). Starts: the seeds,
+    the least-FS lone cells grown into the band, and the least-FS blocks
+    (:func:`rectangle_starts`).
+
+    References
+    ----------
+    Dinkelbach, W. (1967). On nonlinear fractional programming. Management
+    Science 13(7), 492-498 (from memory).
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> from slopescreen.clusters.forces import cluster_forces
+    >>> f = cluster_forces(np.full((6, 6), 40.0), np.full((6, 6), 180.0), 1.0, 0.5, dx=5.0,
+    ...     dy=5.0, cohesion_kpa=1.0, root_cohesion_kpa=0.0, lateral_root_cohesion_kpa=2.0,
+    ...     friction_deg=33.0, unit_weight_kn_m3=18.0)
+    >>> mask, fs, cuts = band_heuristic(f, band_terms(f), 3, 5, [])
+    >>> 3 <= int(mask.sum()) <= 5
+    True
+    """
+    valid = terms.valid
+    best_mask, best_fs = None, math.inf
+    n_cuts = 0
+
+    def consider(mask, fs):
+        nonlocal best_mask, best_fs
+        if mask is not None and fs < best_fs:
+            best_mask, best_fs = mask, fs
+
+    for seed in seeds:
+        if seed is not None and seed.any():
+            consider(*local_search(terms, seed, kmin, kmax))
+    # multi-start growth: the least-FS lone cells, and the cells of the seeds, each grown
+    # into the band (this finds compact sets when the upper limit binds)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        single = np.where(valid & (terms.cd > 0), terms.cn / terms.cd, np.inf)
+    order = np.argsort(single, axis=None, kind="stable")[:starts]
+    picks = [np.unravel_index(int(i), single.shape) for i in order
+             if np.isfinite(single.ravel()[i])]
+    for seed in seeds:
+        if seed is not None and seed.any():
+            rr, cc = np.nonzero(seed)
+            best_cells = np.argsort(single[rr, cc], kind="stable")[:starts]
+            picks.extend((int(rr[j]), int(cc[j])) for j in best_cells)
+    if not picks and valid.any():
+        picks.append(tuple(int(v) for v in np.argwhere(valid)[0]))
+    for cell in dict.fromkeys(picks):
+        start = np.zeros(valid.shape, dtype=bool)
+        start[cell] = True
+        consider(*local_search(terms, start, kmin, kmax))
+    for _, block in rectangle_starts(terms, kmin, kmax):
+        consider(*local_search(terms, block, kmin, kmax))
+    if best_mask is None:
+        return None, math.inf, 0
+    targets = sorted({int(kmin), int(round(math.sqrt(kmin * kmax))), int(kmax)})
+    for _ in range(rounds):
+        lam = best_fs
+        before = best_fs
+        unary, cap, _ = pair_terms(sub, lam)
+        unary = np.where(valid, unary, 0.0)
+        span = float(np.abs(unary[valid]).max() + cap.sum(axis=0)[valid].max()) + 1.0
+        pool = []
+        for target in targets:
+            lo, hi = -span, span  # lo: every cell in; hi: the empty set
+            last = None
+            for _ in range(steps):
+                mu = 0.5 * (lo + hi)
+                mask = _cut(np.where(valid, unary + mu, 0.0), cap, valid)
+                n_cuts += 1
+                size = int(mask.sum())
+                if size > target:
+                    lo = mu
+                else:
+                    hi = mu
+                if size == 0:
+                    continue
+                last = mask
+                labels, nl = ndimage.label(mask, structure=FOUR_CONNECTED)
+                sizes = np.bincount(labels.ravel(), minlength=nl + 1)
+                for i in range(1, nl + 1):
+                    if kmin <= sizes[i] <= kmax:
+                        comp = labels == i
+                        nn, dd = set_ratio(terms, comp)
+                        fs = nn / dd if dd > 0 else math.inf
+                        pool.append((fs, comp))
+                        consider(comp, fs)
+            if last is not None:
+                labels, nl = ndimage.label(last, structure=FOUR_CONNECTED)
+                sizes = np.bincount(labels.ravel(), minlength=nl + 1)
+                sizes[0] = 0
+                pool.append((math.inf, labels == int(np.argmax(sizes))))
+        pool.sort(key=lambda t: t[0])
+        seen = 0
+        for fs, comp in pool:
+            if seen >= polish and math.isfinite(fs):
+                continue
+            seen += 1
+            consider(*local_search(terms, comp, kmin, kmax))
+        if not best_fs < before * (1.0 - 1e-12):
+            break
+    return best_mask, best_fs, n_cuts

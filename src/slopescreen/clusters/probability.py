@@ -1,0 +1,464 @@
+r"""Probability that a found cluster fails: its FS re-evaluated over Monte Carlo parameter samples.
+
+The soil parameters of the stability stage (an encoded table, one row per
+soil unit: :func:`slopescreen.probability.encode_table`) plus the lateral
+root cohesion of each unit are drawn per sample; for each cluster the force
+model of :mod:`slopescreen.clusters.forces` is evaluated with the drawn
+values and FS(S) = (R + B) / (D + H) recomputed::
+
+    P_f = (1/N) sum_s 1[FS_s(S) < 1],     s.e. = sqrt(P_f (1 - P_f) / N)
+
+Correlation inside a cluster
+----------------------------
+Each parameter is drawn **once per soil unit and sample**, and that value is
+used by every cell of the cluster that belongs to the unit (and by the
+cluster's neighbours for the face terms). A cluster is one coherent mass
+that moves together: its depth, strength and weight are properties of the
+same body of soil, usually over a few tens of metres, shorter than the
+correlation length of soil properties on a hillslope. Independent draws per
+cell would average the uncertainty away over the cluster (the variance of
+a mean of n independent cells falls as 1/n) and make large clusters look
+far more certain than the soil data allow. Parameters are independent of
+one another, as in the stability stage. The draws of the encoded table are
+the stability stage's draws with ``correlation="unit"`` for the same seed
+(same counter-based streams: stream u for unit u); the lateral root
+cohesion, which the encoded table has no entry for, comes from its own
+streams n_units + u.
+
+Wetness
+-------
+For a steady rain case the wetness of each cell is recomputed per sample
+from the drawn conductivity and depth, as in the stability stage
+(W = min(1, q a / (K z sin cos))). For any other case (e.g. a storm) a
+wetness raster is passed and held fixed while depth, strength and weight
+vary: the storm's pressure-head response to the drawn parameters is not
+propagated (a stated limitation).
+"""
+
+import math
+from typing import NamedTuple
+
+import numpy as np
+
+from .. import _checks
+from .._numba import njit, njit_parallel, prange
+from ..errors import InputError
+from ..hydrology import SteadyRain, _wetness_point
+from ..parameters import (
+    Parameter,
+    _counter_key,
+    _field,
+    _mix64,
+    _physical,
+    _quantile_at,
+    _seed_key,
+    _stream_key,
+    _uniform01,
+    fixed,
+)
+from ..probability.monte_carlo import _UNIT_DOMAIN, _prepare_table, _unit_draws_kernel
+from ..probability.table import (
+    _COH,
+    _COND,
+    _DEPTH,
+    _GAMMA,
+    _N_PAR,
+    _PHI,
+    _ROOT,
+    _checked_table,
+)
+from ..stability import FS_CAP, _rad
+from ._force_kernels import _basal_forces, _face_force
+from .forces import downslope_vectors
+
+__all__ = ["ClusterProbability", "cluster_parameter_draws", "cluster_failure_probability"]
+
+
+class ClusterProbability(NamedTuple):
+    """Result of :func:`cluster_failure_probability` (one entry per cluster)."""
+
+    ids: np.ndarray
+    """Cluster ids (label values; 1..n for a list of masks), int32."""
+    p_f: np.ndarray
+    """Fraction of samples with FS < 1, float64."""
+    standard_error: np.ndarray
+    """sqrt(P_f (1 - P_f) / N), float64."""
+    fs_median: np.ndarray
+    """Median FS over the samples, float64."""
+    fs_samples: np.ndarray | None = None
+    """FS per cluster and sample, (n_clusters, N), when ``keep_samples`` is set."""
+
+
+@njit_parallel
+def _lateral_draws_kernel(prep, samples, run_key, n_units, out):
+    """out[u, s]: lateral root cohesion of unit u, sample s, from stream n_units + u."""
+    for u in prange(prep.shape[0]):
+        key = _stream_key(run_key, n_units + u)
+        for s in range(samples):
+            out[u, s] = _quantile_at(prep, u, 0, _uniform01(_counter_key(key, s)))
+
+
+def _encode_lateral(lateral, n_units):
+    """Encoded rows (n_units, 1, 5) of the lateral root cohesion, truncated to >= 0."""
+    if isinstance(lateral, (Parameter, int, float, np.integer, np.floating)):
+        values = [lateral] * n_units
+    else:
+        try:
+            values = list(lateral)
+        except TypeError:
+            raise InputError("lateral_root_cohesion_kpa: expected a number, a Parameter or one "
+                             "per soil unit") from None
+        if len(values) != n_units:
+            raise InputError(f"lateral_root_cohesion_kpa: {len(values)} values for "
+                             f"{n_units} soil units; give one per unit")
+    out = np.empty((n_units, 1, 5))
+    for u, v in enumerate(values):
+        name = f"unit {u} lateral_root_cohesion_kpa"
+        if isinstance(v, Parameter):
+            par = Parameter(v.kind, v.a, v.b, v.low, v.high, name=name)
+        else:
+            par = fixed(v, name=name)
+        # same physical range as the basal root cohesion: [0, inf)
+        out[u, 0] = _physical(par, "root_cohesion_kpa").encode()
+    return out
+
+
+def _samples_and_seed(samples, seed):
+    try:
+        n = int(samples)
+    except (TypeError, ValueError):
+        raise InputError(f"samples: expected an integer >= 1, got {samples!r}") from None
+    if n < 1 or n != samples:
+        raise InputError(f"samples: expected an integer >= 1, got {samples!r}")
+    try:
+        s = int(seed)
+    except (TypeError, ValueError):
+        raise InputError(f"seed: expected an integer in [0, 2**64), got {seed!r}") from None
+    if s != seed or not 0 <= s < 2**64:
+        raise InputError(f"seed: expected an integer in [0, 2**64), got {seed!r}")
+    return n, s
+
+
+def cluster_parameter_draws(table, lateral_root_cohesion_kpa, *, samples, seed):
+    """Per-unit parameter draws used by :func:`cluster_failure_probability`.
+
+    Parameters
+    ----------
+    table : numpy.ndarray, shape (n_units, 7, 5)
+        Encoded soil parameters (:func:`slopescreen.probability.encode_table`).
+    lateral_root_cohesion_kpa : float, Parameter or sequence
+        Lateral root cohesion of each unit, kPa (one value or Parameter for
+        all units, or one per unit).
+    samples : int
+        Number of samples N (>= 1).
+    seed : int
+        Seed in [0, 2**64).
+
+    Returns
+    -------
+    draws : numpy.ndarray, shape (n_units, 7, N)
+        Values in :data:`slopescreen.probability.PARAMETER_ORDER` (depth m,
+        c' kPa, basal c_r kPa, phi' degrees, gamma kN/m^3, K m/day,
+        diffusivity m^2/s; NaN where a parameter is absent).
+    lateral : numpy.ndarray, shape (n_units, N)
+        Lateral root cohesion, kPa.
+
+    Raises
+    ------
+    InputError
+        A bad table, lateral cohesion, sample count or seed.
+
+    Notes
+    -----
+    Counter-based generator: the draw of parameter p of unit u in sample s
+    is the inverse CDF at a uniform number keyed by (seed, stream u,
+    counter s * 7 + p), the same as the stability stage's draws with
+    ``correlation="unit"``; the lateral root cohesion uses stream
+    n_units + u, counter s. Results are reproducible bit for bit and do
+    not depend on the number of threads.
+
+    Examples
+    --------
+    >>> from slopescreen.parameters import normal
+    >>> from slopescreen.probability import encode_table
+    >>> t = encode_table([{"depth_m": 1.0, "cohesion_kpa": 0.0, "root_cohesion_kpa": 0.0,
+    ...     "friction_deg": normal(35.0, 2.0), "unit_weight_kn_m3": 18.0,
+    ...     "conductivity_m_per_day": 1.0}])
+    >>> d, lat = cluster_parameter_draws(t, 3.0, samples=4, seed=1)
+    >>> d.shape, lat.shape, float(lat[0, 0])
+    ((1, 7, 4), (1, 4), 3.0)
+    """
+    encoded, _ = _checked_table(table, False)
+    n, s = _samples_and_seed(samples, seed)
+    n_units = encoded.shape[0]
+    prep = _prepare_table(encoded)
+    prep_lat = _prepare_table(_encode_lateral(lateral_root_cohesion_kpa, n_units))
+    unit_key = np.uint64(_mix64(np.uint64(_seed_key(np.uint64(s))) ^ _UNIT_DOMAIN))
+    draws = np.empty((n_units, _N_PAR + 1, n), dtype=np.float64)
+    _unit_draws_kernel(prep, n, unit_key, draws)
+    lateral = np.empty((n_units, n), dtype=np.float64)
+    _lateral_draws_kernel(prep_lat, n, unit_key, n_units, lateral)
+    return np.ascontiguousarray(draws[:, :_N_PAR]), lateral
+
+
+@njit
+def _sample_values(out, r, c, s, unit, draws, lateral, slope, sca, wet_fixed, steady, q, down):
+    """Face inputs of cell (r, c) in sample s (see ``_face_force``)."""
+    u = unit[r, c]
+    z = draws[u, _DEPTH, s]
+    if steady:
+        th = _rad(slope[r, c])
+        w = _wetness_point(q * sca[r, c], draws[u, _COND, s], z, math.sin(th), math.cos(th))
+    else:
+        w = wet_fixed[r, c]
+    gamma = draws[u, _GAMMA, s]
+    out[0] = z
+    out[1] = w
+    out[2] = gamma
+    out[3] = gamma
+    out[4] = draws[u, _COH, s]
+    out[5] = lateral[u, s]
+    out[6] = draws[u, _PHI, s]
+    out[7] = down[0, r, c]
+    out[8] = down[1, r, c]
+
+
+@njit_parallel
+def _cluster_fs_kernel(ptr, cells_r, cells_c, slope, down, unit, valid, sca, wet_fixed, steady,
+                       q, draws, lateral, dx, dy, eta, jaky_full, out):
+    rows, cols = unit.shape
+    n_c = ptr.size - 1
+    samples = out.shape[1]
+    area = dx * dy
+    for j in prange(n_c):
+        own = np.empty(9)
+        nb = np.empty(9)
+        lo, hi = ptr[j], ptr[j + 1]
+        r0 = rows
+        c0 = cols
+        r1 = 0
+        c1 = 0
+        for t in range(lo, hi):
+            r0 = min(r0, cells_r[t])
+            r1 = max(r1, cells_r[t] + 1)
+            c0 = min(c0, cells_c[t])
+            c1 = max(c1, cells_c[t] + 1)
+        member = np.zeros((r1 - r0, c1 - c0), dtype=np.bool_)
+        for t in range(lo, hi):
+            member[cells_r[t] - r0, cells_c[t] - c0] = True
+        for s in range(samples):
+            num = 0.0
+            den = 0.0
+            for t in range(lo, hi):
+                r = cells_r[t]
+                c = cells_c[t]
+                _sample_values(own, r, c, s, unit, draws, lateral, slope, sca, wet_fixed, steady,
+                               q, down)
+                d_i, r_i, _ = _basal_forces(slope[r, c], own[0], own[1], own[2], own[3], own[4],
+                                            draws[unit[r, c], _ROOT, s], own[6], area)
+                num += r_i
+                den += d_i
+                for k in range(4):
+                    rr = r + (0, -1, 0, 1)[k]
+                    cc = c + (1, 0, -1, 0)[k]
+                    inside = 0 <= rr < rows and 0 <= cc < cols
+                    if (inside and r0 <= rr < r1 and c0 <= cc < c1
+                            and member[rr - r0, cc - c0]):
+                        continue  # an inner face: no margin force
+                    has_nb = inside and valid[rr, cc]
+                    if has_nb:
+                        _sample_values(nb, rr, cc, s, unit, draws, lateral, slope, sca,
+                                       wet_fixed, steady, q, down)
+                    length = dy if k % 2 == 0 else dx
+                    w, h = _face_force(k, length, own, nb, has_nb, eta, jaky_full)
+                    num += w
+                    den += h
+            if den <= 0.0 or num >= FS_CAP * den:
+                out[j, s] = FS_CAP
+            else:
+                out[j, s] = max(0.0, num / den)
+
+
+def _cluster_cells(clusters, shape):
+    """(ids, CSR pointer, rows, cols) of the clusters: a label raster or a list of masks."""
+    if isinstance(clusters, np.ndarray) and clusters.ndim == 2 and np.issubdtype(
+            clusters.dtype, np.integer):
+        if clusters.shape != shape:
+            raise InputError(f"clusters: label raster of shape {clusters.shape} does not match "
+                             f"the grid {shape}")
+        flat = clusters.ravel()
+        cells = np.flatnonzero(flat > 0)
+        labs = flat[cells]
+        order = np.argsort(labs, kind="stable")
+        cells, labs = cells[order], labs[order]
+        ids, starts = np.unique(labs, return_index=True)
+        ptr = np.append(starts, labs.size).astype(np.int64)
+        rr, cc = np.divmod(cells, shape[1])
+        return ids.astype(np.int32), ptr, rr.astype(np.int64), cc.astype(np.int64)
+    masks = [np.asarray(m, dtype=bool) for m in clusters]
+    ptr = [0]
+    rs, cs = [], []
+    for i, m in enumerate(masks):
+        if m.shape != shape:
+            raise InputError(f"clusters: mask {i} has shape {m.shape}, expected the grid {shape}")
+        if not m.any():
+            raise InputError(f"clusters: mask {i} holds no cell")
+        r, c = np.nonzero(m)
+        rs.append(r)
+        cs.append(c)
+        ptr.append(ptr[-1] + r.size)
+    rr = np.concatenate(rs).astype(np.int64) if rs else np.zeros(0, np.int64)
+    cc = np.concatenate(cs).astype(np.int64) if cs else np.zeros(0, np.int64)
+    return (np.arange(1, len(masks) + 1, dtype=np.int32), np.asarray(ptr, dtype=np.int64), rr,
+            cc)
+
+
+def cluster_failure_probability(clusters, slope_deg, aspect_deg, unit_index, table, *,
+                                lateral_root_cohesion_kpa, dx, dy, rain=None, sca_m=None,
+                                wetness=None, samples=400, seed=0, passive_fraction=0.5,
+                                jaky_full=False, keep_samples=False):
+    """Probability that each cluster fails, from Monte Carlo samples of the soil parameters.
+
+    Parameters
+    ----------
+    clusters : numpy.ndarray of int or sequence of bool arrays
+        A label raster (cluster ids > 0, 0 elsewhere; e.g.
+        ``ClusterResult.labels``) or a list of grid-shaped masks (clusters
+        may overlap, e.g. rows of the size-resolved table).
+    slope_deg : array_like, shape (rows, cols)
+        Slope, degrees in [0, 90); NaN is nodata.
+    aspect_deg : array_like, shape (rows, cols)
+        Downslope direction, degrees clockwise from north (NaN on flats).
+    unit_index : array_like of int, shape (rows, cols)
+        Row of ``table`` of each cell's soil unit; -1 is nodata.
+    table : numpy.ndarray, shape (n_units, 7, 5)
+        Encoded soil parameters of the stability stage.
+    lateral_root_cohesion_kpa : float, Parameter or sequence
+        Lateral root cohesion per unit (scenario key of the same name), kPa.
+    dx, dy : float
+        Cell sizes, m.
+    rain : SteadyRain, optional
+        Steady case: wetness recomputed per sample (needs ``sca_m``).
+    sca_m : array_like, optional
+        Specific catchment area a, m (steady case).
+    wetness : array_like, optional
+        Fixed wetness W in [0, 1] (any other case, e.g. a storm's wetness at
+        its least FS). Give either ``rain`` and ``sca_m`` or ``wetness``.
+    samples : int
+        Number of samples N (>= 1).
+    seed : int
+        Seed in [0, 2**64); the same seed gives bit-identical results with
+        any number of threads.
+    passive_fraction : float
+        Share of Rankine passive resistance at the toe, in [0, 1].
+    jaky_full : bool
+        Jaky's full K_0 on the sides.
+    keep_samples : bool
+        Also return every FS sample.
+
+    Returns
+    -------
+    ClusterProbability
+
+    Raises
+    ------
+    InputError
+        Shapes that differ, values out of range, a cluster cell without a
+        soil unit or with nodata, both or neither of ``rain`` and
+        ``wetness``.
+
+    Notes
+    -----
+    Per sample s, with parameters drawn once per soil unit (module text)::
+
+        FS_s(S) = (R_s(S) + B_s(S)) / (D_s(S) + H_s(S))
+        P_f = (1/N) sum_s 1[FS_s < 1],   s.e. = sqrt(P_f (1 - P_f) / N)
+
+    R, D per cell and B, H per margin face as in
+    :func:`~slopescreen.clusters.forces.cluster_forces` (one bulk unit
+    weight, as in the stability stage's Monte Carlo). P_f is conditional on
+    the assumed distributions and on the cluster's shape, which is held
+    fixed.
+
+    References
+    ----------
+    Baecher, G.B., Christian, J.T. (2003). Reliability and Statistics in
+    Geotechnical Engineering. Wiley.
+    Milledge, D.G., Bellugi, D., McKean, J.A., Densmore, A.L., Dietrich,
+    W.E. (2014). J. Geophys. Res. Earth Surface 119, 2481-2504.
+    doi 10.1002/2014JF003135
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> from slopescreen.parameters import normal
+    >>> from slopescreen.probability import encode_table
+    >>> t = encode_table([{"depth_m": 1.0, "cohesion_kpa": 0.0, "root_cohesion_kpa": 0.0,
+    ...     "friction_deg": normal(33.0, 3.0), "unit_weight_kn_m3": 18.0,
+    ...     "conductivity_m_per_day": 1.0}])
+    >>> lab = np.zeros((6, 6), np.int32); lab[1:5, 1:4] = 1
+    >>> res = cluster_failure_probability(lab, np.full((6, 6), 30.0), np.full((6, 6), 180.0),
+    ...     np.zeros((6, 6), int), t, lateral_root_cohesion_kpa=1.0, dx=5.0, dy=5.0,
+    ...     wetness=0.3, samples=200, seed=3)
+    >>> res.ids.tolist(), float(res.p_f[0])
+    ([1], 0.32)
+    """
+    slope, _ = _checks.surface(slope_deg, name="slope_deg", min_size=1)
+    dx, dy = _checks.cell_size(dx, dy)
+    _field(slope, "slope_deg", 0.0, 90.0, open_high=True)
+    shape = slope.shape
+    slope = np.ascontiguousarray(slope, dtype=np.float64)
+    aspect = np.asarray(aspect_deg, dtype=np.float64)
+    if aspect.shape != shape:
+        raise InputError(f"aspect_deg: shape {aspect.shape} does not match slope_deg {shape}")
+    if np.isinf(aspect).any():
+        raise InputError("aspect_deg: holds infinite values; use NaN for no direction")
+    unit = np.asarray(unit_index)
+    if unit.shape != shape or not np.issubdtype(unit.dtype, np.integer):
+        raise InputError(f"unit_index: expected an integer array of shape {shape}")
+    encoded, _ = _checked_table(table, False)
+    n_units = encoded.shape[0]
+    if unit.size and (unit.min() < -1 or unit.max() >= n_units):
+        raise InputError(f"unit_index: values must lie in [-1, {n_units - 1}], got "
+                         f"[{unit.min()}, {unit.max()}]")
+    n, s = _samples_and_seed(samples, seed)
+    eta = float(_field(passive_fraction, "passive_fraction", 0.0, 1.0, allow_nan=False))
+    valid = np.isfinite(slope) & (unit >= 0)
+    if (rain is None) == (wetness is None):
+        raise InputError("rain, wetness: give either a SteadyRain with sca_m (wetness per "
+                         "sample) or a fixed wetness raster, not both or neither")
+    if rain is not None:
+        if not isinstance(rain, SteadyRain):
+            raise InputError(f"rain: only a SteadyRain is re-evaluated per sample, got "
+                             f"{type(rain).__name__}; pass the case's wetness raster instead")
+        if sca_m is None:
+            raise InputError("sca_m: a steady rain case needs the specific catchment area")
+        sca = np.asarray(_field(sca_m, "sca_m", 0.0, math.inf), dtype=np.float64)
+        if sca.shape != shape:
+            raise InputError(f"sca_m: shape {sca.shape} does not match slope_deg {shape}")
+        valid &= np.isfinite(sca)
+        wet = np.zeros((1, 1))
+        steady, q = True, rain.recharge_mm_per_day * 1e-3
+    else:
+        w = np.asarray(_field(wetness, "wetness", 0.0, 1.0), dtype=np.float64)
+        try:
+            wet = np.ascontiguousarray(np.broadcast_to(w, shape))
+        except ValueError:
+            raise InputError(f"wetness: shape {w.shape} does not broadcast to {shape}") from None
+        valid &= np.isfinite(wet)
+        sca = np.zeros((1, 1))
+        steady, q = False, 0.0
+    ids, ptr, rr, cc = _cluster_cells(clusters, shape)
+    if rr.size and not valid[rr, cc].all():
+        raise InputError("clusters: some cluster cells have no soil unit or hold nodata "
+                         "(slope, wetness or catchment area)")
+    draws, lateral = cluster_parameter_draws(encoded, lateral_root_cohesion_kpa, samples=n,
+                                             seed=s)
+    down = downslope_vectors(slope, aspect)
+    out = np.empty((ids.size, n), dtype=np.float64)
+    _cluster_fs_kernel(ptr, rr, cc, slope, down, unit.astype(np.int64), valid, sca, wet,
+                       steady, q, draws, lateral, dx, dy, eta, bool(jaky_full), out)
+    p = (out < 1.0).mean(axis=1) if ids.size else np.zeros(0)
+    se = np.sqrt(p * (1.0 - p) / n)
+    med = np.median(out, axis=1) if ids.size else np.zeros(0)
+    return ClusterProbability(ids, p, se, med, out if keep_samples else None)

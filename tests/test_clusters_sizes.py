@@ -1,0 +1,147 @@
+"""API behaviour of the size-resolved search: the checked solver wrapper, bands, candidates."""
+
+import math
+
+import cvxpy as cp
+import numpy as np
+import pytest
+
+from slopescreen.clusters import cluster_forces, failure_clusters
+from slopescreen.clusters._solve import solve_checked
+from slopescreen.clusters.band import least_stable_in_band
+from slopescreen.clusters.sizes import (
+    SIZE_COLUMNS,
+    area_bands,
+    candidate_windows,
+    size_resolved_clusters,
+)
+from slopescreen.errors import InputError, SolverError
+
+SOIL = dict(cohesion_kpa=0.5, root_cohesion_kpa=0.5, lateral_root_cohesion_kpa=2.0,
+            friction_deg=34.0, unit_weight_kn_m3=18.5)
+
+
+def _forces(rows=12, cols=12):
+    slope = np.full((rows, cols), 30.0)
+    slope[3:8, 4:8] = 45.0
+    slope[0, 0] = np.nan
+    return cluster_forces(slope, np.full((rows, cols), 180.0), 1.0, 0.6, dx=5.0, dy=5.0, **SOIL)
+
+
+def test_solver_wrapper_raises_on_infeasible_and_unbounded():
+    x = cp.Variable(2)
+    with pytest.raises(SolverError, match="infeasible"):
+        solve_checked(cp.Problem(cp.Minimize(cp.sum(x)), [x >= 1, x <= 0]))
+    with pytest.raises(SolverError, match="unbounded"):
+        solve_checked(cp.Problem(cp.Minimize(cp.sum(x)), [x <= 0]))
+    with pytest.raises(SolverError, match="minimisation"):
+        solve_checked(cp.Problem(cp.Maximize(cp.sum(x)), [x <= 0]))
+
+
+def test_solver_wrapper_reports_a_time_limit_stop():
+    # a random multidimensional knapsack that HiGHS needs seconds to prove (seeded)
+    rng = np.random.default_rng(0)
+    n, m = 70, 12
+    a = rng.integers(20, 100, (m, n))
+    b = a.sum(axis=1) // 2
+    c = rng.integers(20, 100, n) + a.mean(0).round()
+    x = cp.Variable(n, boolean=True)
+    prob = cp.Problem(cp.Minimize(-c @ x), [a @ x <= b])
+    out = solve_checked(prob, time_limit_s=0.3)
+    assert out.status == "time_limit"
+    assert out.dual_bound <= out.value   # a lower bound on the optimum
+    xv = np.round(x.value)
+    assert (a @ xv <= b).all() and -c @ xv == pytest.approx(out.value)
+    with pytest.raises(SolverError, match="time_limit_s"):
+        solve_checked(prob, time_limit_s=-1.0)
+
+
+def test_area_bands():
+    assert area_bands(25.0, 2500.0, 25.0, 1) == [(1, 100)]
+    bands = area_bands(25.0, 2500.0, 25.0, 3)
+    cells = [k for lo, hi in bands for k in range(lo, hi + 1)]
+    assert cells == list(range(1, 101))      # disjoint and complete
+    assert area_bands(0.0, 60.0, 25.0, [(30.0, 60.0)]) == [(2, 2)]
+    with pytest.raises(InputError, match="whole number"):
+        area_bands(30.0, 40.0, 25.0)
+    with pytest.raises(InputError, match="bands"):
+        area_bands(25.0, 100.0, 25.0, 0)
+
+
+def test_candidate_windows_from_clusters_and_bound_map():
+    slope = np.full((30, 30), 28.0)
+    slope[3:7, 3:6] = 47.0
+    slope[20:25, 22:26] = 47.0
+    kw = dict(dx=5.0, dy=5.0, aspect_deg=np.full((30, 30), 180.0), **SOIL)
+    res = failure_clusters(slope, 1.0, 0.3, bound=False, **kw)
+    assert res.labels.max() == 2
+    wins = candidate_windows(res.labels.shape, labels=res.labels, window_cells=10)
+    assert len(wins) == 2
+    for i, (r0, r1, c0, c1) in enumerate(wins, start=1):
+        assert r1 - r0 == 10 and c1 - c0 == 10 and 0 <= r0 and r1 <= 30 and c1 <= 30
+        rr, cc = np.nonzero(res.labels == i)
+        assert r0 <= rr.min() and rr.max() < r1 and c0 <= cc.min() and cc.max() < c1
+    with pytest.raises(InputError, match="labels"):
+        candidate_windows((30, 30), labels=np.zeros((3, 3), int))
+
+
+def test_band_without_any_set_and_bad_inputs():
+    f = _forces()
+    res = least_stable_in_band(f, (0, 3, 0, 3), min_area_m2=250.0, max_area_m2=500.0)
+    assert res.method == "none" and math.isnan(res.fs) and not res.mask.any()
+    with pytest.raises(InputError, match="time_limit_s"):
+        least_stable_in_band(f, (0, 6, 0, 6), min_area_m2=25.0, max_area_m2=50.0,
+                             time_limit_s=0.0)
+    with pytest.raises(InputError, match="window"):
+        least_stable_in_band(f, (0, 20, 0, 6), min_area_m2=25.0, max_area_m2=50.0)
+
+
+def test_size_resolved_table_and_untouched_inputs():
+    f = _forces()
+    before = [a.copy() for a in (f.driving, f.resisting, f.face_resistance, f.face_thrust)]
+    res = size_resolved_clusters(f, candidates=[(0, 12, 0, 12), (2, 10, 2, 10)],
+                                 min_area_m2=50.0, max_area_m2=600.0, bands=2, time_limit_s=5.0)
+    for a, b in zip(before, (f.driving, f.resisting, f.face_resistance, f.face_thrust)):
+        np.testing.assert_array_equal(a, b)
+    assert tuple(res.table) == SIZE_COLUMNS
+    assert len(res.masks) == 4 and (res.table["candidate"] == [0, 0, 1, 1]).all()
+    assert (res.table["band"] == [0, 1, 0, 1]).all()
+    assert res.table["proven"].all()
+    assert (res.table["area_m2"] == res.table["n_cells"] * 25.0).all()
+    assert not res.grid_mask(0, f.valid.shape)[0, 0]   # nodata never joins
+
+
+def test_stage_with_size_resolved_search_and_probability():
+    from slopescreen.parameters import normal
+    from slopescreen.probability import encode_table
+
+    slope = np.full((16, 16), 29.0)
+    slope[4:9, 5:9] = 46.0
+    aspect = np.full((16, 16), 180.0)
+    unit = {"depth_m": 1.0, "cohesion_kpa": 0.5, "root_cohesion_kpa": normal(0.5, 0.2),
+            "friction_deg": normal(34.0, 2.0), "unit_weight_kn_m3": 18.5,
+            "conductivity_m_per_day": 2.0}
+    unc = dict(unit_index=np.zeros((16, 16), int), table=encode_table([unit]),
+               lateral_root_cohesion_kpa=2.0, samples=200, seed=4)
+    res = failure_clusters(slope, 1.0, 0.3, dx=5.0, dy=5.0, aspect_deg=aspect,
+                           bound_window_cells=8, bound_stride_cells=4, min_area_m2=50.0,
+                           max_area_m2=500.0, size_resolved=True, size_bands=2,
+                           size_time_limit_s=5.0, size_window_cells=10, size_n_least=2,
+                           uncertainty=unc, **SOIL)
+    assert res.labels.max() == 1
+    p = res.table["probability"][0]
+    assert 0.0 < p <= 1.0 and res.table["probability_se"][0] == pytest.approx(
+        np.sqrt(p * (1 - p) / 200))
+    sizes = res.size_resolved
+    t = sizes.table
+    assert len(t["fs"]) == 2 * len(np.unique(t["candidate"])) >= 4
+    found = t["n_cells"] > 0
+    assert np.isfinite(t["probability"][found]).all()
+    assert ((t["probability"][found] >= 0) & (t["probability"][found] <= 1)).all()
+    # without the option the result keeps its former form
+    plain = failure_clusters(slope, 1.0, 0.3, dx=5.0, dy=5.0, aspect_deg=aspect, bound=False,
+                             **SOIL)
+    assert plain.size_resolved is None and np.isnan(plain.table["probability"]).all()
+    with pytest.raises(InputError, match="area range"):
+        failure_clusters(slope, 1.0, 0.3, dx=5.0, dy=5.0, aspect_deg=aspect, bound=False,
+                         size_resolved=True, **SOIL)

@@ -1,0 +1,215 @@
+"""Probability that a cluster fails, checked against exact answers.
+
+A rectangular slab whose FS is linear in a root cohesion (block force balance worked by hand,
+METHODS.md section 9): P(FS < 1) is a normal (or truncated normal) probability from
+scipy.stats, and the Monte Carlo estimate must lie within 4 standard errors of it.
+"""
+
+import math
+
+import numba
+import numpy as np
+import pytest
+from scipy import optimize, stats
+
+from slopescreen.clusters import cluster_factor_of_safety, cluster_forces
+from slopescreen.clusters.probability import cluster_failure_probability, cluster_parameter_draws
+from slopescreen.hydrology import SteadyRain
+from slopescreen.parameters import lognormal, normal, uniform
+from slopescreen.probability import encode_table
+
+GW = 9.81
+THETA, PHI, GAMMA, Z, ETA = 38.0, 33.0, 17.0, 1.3, 0.5
+DX, DY = 4.0, 5.0
+
+
+def _slab_terms(nr, nc, w, c_lat):
+    """Hand force balance of an nr x nc slab facing south, c' = 0, bulk unit weight.
+
+    Returns (resistance without basal roots, driving + active, basal root coefficient),
+    all kN, so that FS = (res0 + c_r * coef) / drive.
+    """
+    t, p = math.radians(THETA), math.radians(PHI)
+    hw = w * Z
+    col = GAMMA * Z
+    u = GW * hw * math.cos(t) ** 2
+    area = nr * nc * DX * DY
+    drive = col * area * math.sin(t)
+    basal0 = (col * math.cos(t) ** 2 - u) * math.tan(p) * area / math.cos(t)
+    s = math.sin(p)
+    ka, kp, k0 = (1 - s) / (1 + s), (1 + s) / (1 - s), 1 - s
+    dry = Z - hw
+    sv = GAMMA * dry ** 2 / 2 + GAMMA * dry * hw + (GAMMA - GW) * hw ** 2 / 2
+    width, length = nc * DX, nr * DY          # toe and head run east-west, sides north-south
+    toe = ETA * kp * sv * width
+    head = c_lat * Z * width
+    active = ka * sv * width                  # c' = 0: no tension zone
+    sides = 2 * length * (c_lat * Z + k0 * math.tan(p) * sv)
+    return basal0 + toe + head + sides, drive + active, area / math.cos(t)
+
+
+def _grid(nr=5, nc=4, rows=12, cols=10):
+    lab = np.zeros((rows, cols), np.int32)
+    lab[3:3 + nr, 2:2 + nc] = 1
+    return lab, np.full((rows, cols), THETA), np.full((rows, cols), 180.0)
+
+
+def _unit(**kw):
+    base = {"depth_m": Z, "cohesion_kpa": 0.0, "root_cohesion_kpa": 0.0, "friction_deg": PHI,
+            "unit_weight_kn_m3": GAMMA, "conductivity_m_per_day": 1.0}
+    base.update(kw)
+    return base
+
+
+def _run(lab, slope, aspect, units, lateral, samples, seed=11, **kw):
+    unit = np.zeros(lab.shape, int) if "unit_index" not in kw else kw.pop("unit_index")
+    return cluster_failure_probability(lab, slope, aspect, unit, encode_table(units),
+                                       lateral_root_cohesion_kpa=lateral, dx=DX, dy=DY,
+                                       samples=samples, seed=seed, passive_fraction=ETA, **kw)
+
+
+def test_basal_root_cohesion_truncated_normal_slab():
+    lab, slope, aspect = _grid()
+    res0, drive, coef = _slab_terms(5, 4, 0.6, 6.0)
+    c_star = (drive - res0) / coef            # FS = 1 at c_r = c*
+    assert c_star > 0
+    mean, sd = c_star + 0.8, 2.0              # truncated at 0 (physical range)
+    res = _run(lab, slope, aspect, [_unit(root_cohesion_kpa=normal(mean, sd))], 6.0, 4000,
+               wetness=0.6)
+    # scipy.stats.truncnorm: the normal conditioned on c_r >= 0
+    exact = stats.truncnorm.cdf(c_star, (0 - mean) / sd, np.inf, loc=mean, scale=sd)
+    assert 0.05 < exact < 0.95
+    assert abs(res.p_f[0] - exact) < 4 * math.sqrt(exact * (1 - exact) / 4000)
+    assert res.standard_error[0] == pytest.approx(math.sqrt(res.p_f[0] * (1 - res.p_f[0]) / 4000))
+
+
+def test_lateral_root_cohesion_normal_slab():
+    # FS is linear in the lateral root cohesion too (sides and head): the scenario key that the
+    # encoded table lacks, drawn from its own streams
+    lab, slope, aspect = _grid(6, 3)
+    r_a, d_a, coef = _slab_terms(6, 3, 0.8, 0.0)
+    r_b, _, _ = _slab_terms(6, 3, 0.8, 1.0)
+    per_kpa = r_b - r_a                        # resistance per kPa of lateral root cohesion
+    c_star = (d_a - r_a - 3.0 * coef) / per_kpa    # basal roots fixed at 3 kPa
+    mean, sd = c_star + 1.5, 4.0
+    res = _run(lab, slope, aspect, [_unit(root_cohesion_kpa=3.0)], normal(mean, sd), 4000,
+               wetness=0.8)
+    exact = stats.truncnorm.cdf(c_star, (0 - mean) / sd, np.inf, loc=mean, scale=sd)
+    assert 0.05 < exact < 0.95
+    assert abs(res.p_f[0] - exact) < 4 * math.sqrt(exact * (1 - exact) / 4000)
+
+
+def test_two_units_inside_one_cluster():
+    # the slab spans two soil units (west and east halves): each unit's basal root cohesion is
+    # drawn once per sample and shared by its cells, so FS < 1 <=> a1 c1 + a2 c2 < gamma, a
+    # normal variable (scipy.stats.norm; truncation at 0 is > 8 sd away and ignored)
+    lab, slope, aspect = _grid(5, 4)
+    unit = np.zeros(lab.shape, int)
+    unit[:, 4:] = 1                           # columns 2-3 unit 0, columns 4-5 unit 1
+    res0, drive, coef = _slab_terms(5, 4, 1.0, 5.0)
+    a1 = a2 = coef / 2
+    threshold = drive - res0
+    cbar = threshold / coef                   # mean basal root cohesion at FS = 1
+    s1, s2 = 0.4, 0.3
+    m1, m2 = cbar + 0.15 + 0.6, cbar + 0.15 - 0.6
+    assert m2 > 8 * s2 and m1 > 8 * s1        # truncation at 0 negligible
+    mu = a1 * m1 + a2 * m2
+    sigma = math.hypot(a1 * s1, a2 * s2)
+    units = [_unit(root_cohesion_kpa=normal(m1, s1)), _unit(root_cohesion_kpa=normal(m2, s2))]
+    res = _run(lab, slope, aspect, units, 5.0, 4000, wetness=1.0, unit_index=unit)
+    exact = stats.norm.cdf((threshold - mu) / sigma)
+    assert 0.05 < exact < 0.95
+    assert abs(res.p_f[0] - exact) < 4 * math.sqrt(exact * (1 - exact) / 4000)
+
+
+def test_steady_rain_wetness_from_sampled_conductivity():
+    # W = q a / (K z sin cos) per sample; FS falls as W rises, so FS < 1 <=> K < K*, with W* from
+    # the hand balance (brentq) and P(K < K*) of the lognormal from scipy.stats.norm
+    lab, slope, aspect = _grid(5, 4)
+    sca = np.full(lab.shape, 60.0)
+    q = 40.0  # mm/day
+
+    def fs_of(w):
+        r, d, _ = _slab_terms(5, 4, w, 5.0)
+        return r / d - 1.0
+
+    assert fs_of(0.0) > 0 > fs_of(1.0)
+    assert np.all(np.diff([fs_of(w) for w in np.linspace(0.0, 1.0, 101)]) < 0)  # monotone
+    w_star = optimize.brentq(fs_of, 0.0, 1.0, xtol=1e-14)
+    t = math.radians(THETA)
+    k_star = q * 1e-3 * 60.0 / (w_star * Z * math.sin(t) * math.cos(t))
+    median, sd_log = k_star * 1.3, 0.6
+    res = _run(lab, slope, aspect, [_unit(conductivity_m_per_day=lognormal(median, sd_log))],
+               5.0, 4000, rain=SteadyRain(q), sca_m=sca)
+    exact = stats.norm.cdf((math.log(k_star) - math.log(median)) / sd_log)
+    assert 0.05 < exact < 0.95
+    assert abs(res.p_f[0] - exact) < 4 * math.sqrt(exact * (1 - exact) / 4000)
+
+
+def test_every_sample_equals_the_force_model():
+    # the defining property: each FS sample is cluster_factor_of_safety of cluster_forces built
+    # from that sample's per-unit draws (two units, an irregular cluster, varied terrain)
+    rng = np.random.default_rng(4)
+    rows, cols = 9, 8
+    slope = rng.uniform(25, 45, (rows, cols))
+    aspect = rng.uniform(150, 220, (rows, cols))
+    unit = np.zeros((rows, cols), int)
+    unit[:, 4:] = 1
+    unit[0, 0] = -1
+    lab = np.zeros((rows, cols), np.int32)
+    lab[2:7, 2:6] = 1
+    lab[4, 6] = 1
+    lab[2, 2] = 0
+    units = [_unit(depth_m=uniform(0.8, 1.5), cohesion_kpa=uniform(0.0, 3.0),
+                   root_cohesion_kpa=normal(2.0, 1.0), friction_deg=normal(34.0, 2.0),
+                   unit_weight_kn_m3=uniform(16.0, 20.0)),
+             _unit(depth_m=1.1, cohesion_kpa=1.0, friction_deg=uniform(30.0, 38.0))]
+    lateral = [uniform(1.0, 5.0), normal(3.0, 1.0)]
+    wet = rng.uniform(0.2, 0.9, (rows, cols))
+    res = _run(lab, slope, aspect, units, lateral, 5, seed=2, unit_index=unit, wetness=wet,
+               keep_samples=True)
+    draws, lat = cluster_parameter_draws(encode_table(units), lateral, samples=5, seed=2)
+    for s in range(5):
+        per = {k: np.where(unit >= 0, draws[np.maximum(unit, 0), i, s], np.nan)
+               for i, k in enumerate(("depth_m", "cohesion_kpa", "root_cohesion_kpa",
+                                      "friction_deg", "unit_weight_kn_m3"))}
+        f = cluster_forces(slope, aspect, per["depth_m"], wet, dx=DX, dy=DY,
+                           cohesion_kpa=per["cohesion_kpa"],
+                           root_cohesion_kpa=per["root_cohesion_kpa"],
+                           lateral_root_cohesion_kpa=np.where(unit >= 0,
+                                                              lat[np.maximum(unit, 0), s], np.nan),
+                           friction_deg=per["friction_deg"],
+                           unit_weight_kn_m3=per["unit_weight_kn_m3"], passive_fraction=ETA)
+        assert res.fs_samples[0, s] == pytest.approx(cluster_factor_of_safety(f, lab == 1),
+                                                     rel=1e-12)
+
+
+def test_reproducible_bit_for_bit_and_thread_independent():
+    lab, slope, aspect = _grid()
+    lab[9:11, 6:9] = 2
+    units = [_unit(root_cohesion_kpa=normal(5.0, 2.0), friction_deg=normal(33.0, 2.0))]
+    args = (lab, slope, aspect, units, normal(4.0, 1.5), 300)
+    a = _run(*args, seed=5, wetness=0.6, keep_samples=True)
+    b = _run(*args, seed=5, wetness=0.6, keep_samples=True)
+    assert np.array_equal(a.fs_samples, b.fs_samples) and np.array_equal(a.p_f, b.p_f)
+    before = numba.get_num_threads()
+    try:
+        numba.set_num_threads(1)
+        c = _run(*args, seed=5, wetness=0.6, keep_samples=True)
+    finally:
+        numba.set_num_threads(before)
+    assert np.array_equal(a.fs_samples, c.fs_samples)
+    d = _run(*args, seed=6, wetness=0.6, keep_samples=True)
+    assert not np.array_equal(a.fs_samples, d.fs_samples)
+    assert a.ids.tolist() == [1, 2]
+
+
+def test_lateral_stream_is_independent_of_the_table_streams():
+    # same distribution for basal and lateral root cohesion: separate streams give
+    # uncorrelated draws (|r| < 4 / sqrt(N)) with the same mean (4 standard errors)
+    t = encode_table([_unit(root_cohesion_kpa=normal(5.0, 1.0))])
+    draws, lat = cluster_parameter_draws(t, normal(5.0, 1.0), samples=5000, seed=9)
+    r = np.corrcoef(draws[0, 2], lat[0])[0, 1]
+    assert abs(r) < 4 / math.sqrt(5000)
+    assert abs(lat[0].mean() - 5.0) < 4 / math.sqrt(5000)
+    assert not np.array_equal(draws[0, 2], lat[0])

@@ -1,0 +1,233 @@
+"""Size-resolved cluster search checked against outside references.
+
+Brute force over every connected subset of grids up to 4 x 5 (each band's optimum), the
+exact cut without size limits, scipy.ndimage for connectivity, and the scaling property of
+the convex relaxation (METHODS.md section 9.1: blind to the upper area limit).
+"""
+
+import math
+
+import numpy as np
+import pytest
+from scipy import ndimage
+
+from slopescreen.clusters import cluster_factor_of_safety, cluster_forces, least_stable_in_window
+from slopescreen.clusters.band import WindowBands, least_stable_in_band, relaxation_bound
+from slopescreen.clusters.heuristic import band_terms, local_search, set_ratio
+from slopescreen.clusters.sizes import size_resolved_clusters
+
+CELL = 25.0  # 5 m x 5 m cells
+STEPS = ((0, 1), (-1, 0), (0, -1), (1, 0))  # east, north, west, south
+
+
+def _instance(seed, rows, cols, realistic=True):
+    rng = np.random.default_rng(seed)
+    if realistic:
+        # a hollow facing roughly south, steeper and wetter down the middle
+        c = np.arange(cols) - (cols - 1) / 2
+        slope = 30 + 13 * np.exp(-(c[None, :] ** 2) / 2) + rng.normal(0, 2, (rows, cols))
+        aspect = 180 + 15 * np.sign(c)[None, :] + rng.normal(0, 5, (rows, cols))
+        wet = np.clip(0.2 + 0.8 * np.exp(-(c[None, :] ** 2)) + 0 * slope, 0, 1)
+        depth = 1.0 + 0.3 * rng.random((rows, cols))
+        kw = dict(cohesion_kpa=0.5, root_cohesion_kpa=0.5, lateral_root_cohesion_kpa=2.0,
+                  friction_deg=33.0, unit_weight_kn_m3=18.5)
+    else:
+        slope = rng.uniform(15, 50, (rows, cols))
+        aspect = rng.uniform(0, 360, (rows, cols))
+        wet = rng.random((rows, cols))
+        depth = rng.uniform(0.5, 2.0, (rows, cols))
+        kw = dict(cohesion_kpa=rng.uniform(0, 3, (rows, cols)),
+                  root_cohesion_kpa=rng.uniform(0, 2, (rows, cols)),
+                  lateral_root_cohesion_kpa=rng.uniform(0, 6, (rows, cols)),
+                  friction_deg=rng.uniform(28, 40, (rows, cols)),
+                  unit_weight_kn_m3=rng.uniform(16, 20, (rows, cols)))
+    return cluster_forces(slope, aspect % 360, depth, wet, dx=5.0, dy=5.0, passive_fraction=0.5,
+                          **kw)
+
+
+def _connected_subsets(rows, cols):
+    """Every 4-connected set of cells of a rows x cols grid, as bit masks (grown cell by cell)."""
+    n = rows * cols
+    nb = [0] * n
+    for p in range(n):
+        r, c = divmod(p, cols)
+        for dr, dc in STEPS:
+            if 0 <= r + dr < rows and 0 <= c + dc < cols:
+                nb[p] |= 1 << ((r + dr) * cols + c + dc)
+    seen = {1 << p for p in range(n)}
+    frontier = list(seen)
+    while frontier:
+        grown = []
+        for s in frontier:
+            border, t = 0, s
+            while t:
+                low = t & -t
+                border |= nb[low.bit_length() - 1]
+                t ^= low
+            border &= ~s
+            while border:
+                low = border & -border
+                u = s | low
+                if u not in seen:
+                    seen.add(u)
+                    grown.append(u)
+                border ^= low
+        frontier = grown
+    return sorted(seen)
+
+
+def _brute(forces, sets):
+    """FS of every set (bit masks) summed face by face in plain numpy; returns (x, fs)."""
+    rows, cols = forces.valid.shape
+    n = rows * cols
+    x = ((np.array(sets, dtype=np.int64)[:, None] >> np.arange(n)) & 1).astype(bool)
+    num = x @ forces.resisting.ravel()
+    den = x @ forces.driving.ravel()
+    for p in range(n):
+        r, c = divmod(p, cols)
+        for k, (dr, dc) in enumerate(STEPS):
+            rr, cc = r + dr, c + dc
+            inside = 0 <= rr < rows and 0 <= cc < cols
+            margin = x[:, p] & (~x[:, rr * cols + cc] if inside else True)
+            num = num + margin * forces.face_resistance[k, r, c]
+            den = den + margin * forces.face_thrust[k, r, c]
+    return x, num / den
+
+
+@pytest.fixture(scope="module")
+def subsets_4x5():
+    return _connected_subsets(4, 5)
+
+
+def test_connected_subset_enumeration_matches_ndimage():
+    # scipy.ndimage.label as the outside check of the enumeration on a 3 x 3 grid
+    sets = set(_connected_subsets(3, 3))
+    for s in range(1, 2 ** 9):
+        mask = ((s >> np.arange(9)) & 1).astype(bool).reshape(3, 3)
+        assert (ndimage.label(mask)[1] == 1) == (s in sets)
+
+
+@pytest.mark.parametrize("seed, realistic, bands", [
+    (1, True, [(2, 4), (7, 11)]),
+    (2, False, [(3, 6), (12, 20)]),
+    (3, True, [(1, 1), (5, 9)]),
+    (4, False, [(2, 2), (9, 14)]),
+])
+def test_band_optimum_equals_brute_force_4x5(subsets_4x5, seed, realistic, bands):
+    f = _instance(seed, 4, 5, realistic)
+    x, fs = _brute(f, subsets_4x5)
+    size = x.sum(axis=1)
+    state = WindowBands(f, (0, 4, 0, 5))
+    for kmin, kmax in bands:
+        sel = (size >= kmin) & (size <= kmax)
+        best = float(fs[sel].min())
+        res = least_stable_in_band(f, (0, 4, 0, 5), min_area_m2=kmin * CELL,
+                                   max_area_m2=kmax * CELL, time_limit_s=20.0, state=state)
+        assert res.proven and res.method in ("cut", "relaxation", "milp")
+        assert res.fs == pytest.approx(best, rel=1e-9)
+        assert res.lower_bound <= res.fs and res.lower_bound >= best * (1 - 1e-6)
+        # the answer is a connected set of the band, and its FS recomputed from scratch
+        assert ndimage.label(res.mask)[1] == 1 and kmin <= res.mask.sum() <= kmax
+        assert cluster_factor_of_safety(f, res.mask) == pytest.approx(res.fs, rel=1e-12)
+        # the relaxation is a lower bound on the band optimum
+        assert res.relaxation_bound <= best * (1 + 1e-7) or math.isnan(res.relaxation_bound)
+
+
+def test_milp_dinkelbach_from_a_poor_start_reaches_brute_force(subsets_4x5):
+    # start the MILP from a deliberately poor connected set: Dinkelbach must walk to the optimum
+    f = _instance(5, 4, 5, True)
+    x, fs = _brute(f, subsets_4x5)
+    size = x.sum(axis=1)
+    kmin, kmax = 6, 9
+    sel = np.flatnonzero((size >= kmin) & (size <= kmax))
+    best = float(fs[sel].min())
+    worst = sel[np.argmax(fs[sel])]
+    start = x[worst].reshape(4, 5)
+    res = least_stable_in_band(f, (0, 4, 0, 5), min_area_m2=kmin * CELL, max_area_m2=kmax * CELL,
+                               heuristic=(start, float(fs[worst]), 0), time_limit_s=20.0)
+    assert res.method == "milp" and res.proven and res.milp_solves >= 3
+    assert res.fs == pytest.approx(best, rel=1e-9)
+    assert res.heuristic_fs == pytest.approx(float(fs[worst]), rel=1e-12)
+
+
+def test_connectivity_is_enforced_when_the_band_favours_pieces():
+    # two weak cells far apart on strong ground: the best pair is disconnected (brute force
+    # over every subset), the best connected pair is a weak cell with a strong neighbour
+    slope = np.full((3, 5), 22.0)
+    slope[1, 0] = slope[1, 4] = 48.0
+    wet = np.zeros((3, 5))
+    wet[1, 0] = wet[1, 4] = 1.0
+    f = cluster_forces(slope, np.full((3, 5), 180.0), 1.0, wet, dx=5.0, dy=5.0,
+                       cohesion_kpa=0.0, root_cohesion_kpa=0.0, lateral_root_cohesion_kpa=0.5,
+                       friction_deg=35.0, unit_weight_kn_m3=18.0)
+    every = list(range(1, 2 ** 15))
+    x, fs = _brute(f, every)
+    pairs = x.sum(axis=1) == 2
+    conn = np.array([ndimage.label(m.reshape(3, 5))[1] == 1 for m in x])
+    best_any = float(fs[pairs].min())
+    best_conn = float(fs[pairs & conn].min())
+    assert best_any < best_conn
+    res = least_stable_in_band(f, (0, 3, 0, 5), min_area_m2=2 * CELL, max_area_m2=2 * CELL)
+    assert res.proven and res.fs == pytest.approx(best_conn, rel=1e-9)
+
+
+def test_unlimited_band_equals_the_exact_cut():
+    # band [0, inf): the answer is the window's least-stable cluster by exact cuts, and the
+    # relaxation LP (HiGHS) equals it
+    for seed, realistic in ((6, True), (7, False)):
+        f = _instance(seed, 9, 8, realistic)
+        cut = least_stable_in_window(f, (0, 9, 0, 8))
+        res = least_stable_in_band(f, (0, 9, 0, 8), min_area_m2=0.0, max_area_m2=math.inf)
+        comp = ndimage.label(cut.mask)[1]
+        assert comp == 1 and res.method == "cut" and res.proven
+        assert res.fs == pytest.approx(cut.least_fs, rel=1e-12)
+        state = WindowBands(f, (0, 9, 0, 8))
+        rb = relaxation_bound(state.ensure_model(res.fs), 1, 72)
+        assert rb == pytest.approx(cut.least_fs, rel=1e-7)
+
+
+def test_relaxation_is_blind_to_the_upper_limit_only():
+    # METHODS.md 9.1: FS(alpha x) = FS(x), so A_max never moves the bound; A_min does
+    f = _instance(8, 8, 8, True)
+    state = WindowBands(f, (0, 8, 0, 8))
+    model = state.ensure_model(2.0)
+    by_max = [relaxation_bound(model, 10, k) for k in (10, 20, 40, 64)]
+    assert max(by_max) - min(by_max) <= 1e-7 * by_max[0]
+    by_min = [relaxation_bound(model, k, 64) for k in (1, 10, 30, 50, 64)]
+    assert all(b <= a * (1 + 1e-9) for a, b in zip(by_min[1:], by_min[:-1]))
+    assert by_min[-1] > by_min[0] * (1 + 1e-3)
+    # with kmin = all 64 cells the only set is the whole window: the bound is its FS
+    whole = cluster_factor_of_safety(f, np.ones((8, 8), bool))
+    assert by_min[-1] == pytest.approx(whole, rel=1e-7)
+
+
+def test_local_search_keeps_sets_connected_and_in_band():
+    f = _instance(9, 10, 10, False)
+    terms = band_terms(f)
+    start = np.zeros((10, 10), bool)
+    start[2:8, 2:8] = True
+    for kmin, kmax in ((3, 5), (40, 60), (10, 10)):
+        mask, fs = local_search(terms, start, kmin, kmax)
+        assert ndimage.label(mask)[1] == 1 and kmin <= mask.sum() <= kmax
+        n, d = set_ratio(terms, mask)
+        assert fs == pytest.approx(n / d, rel=1e-9)
+        assert fs == pytest.approx(cluster_factor_of_safety(f, mask), rel=1e-9)
+
+
+def test_size_resolved_table_rows_are_real_clusters():
+    f = _instance(10, 14, 12, True)
+    windows = [(0, 10, 0, 10), (4, 14, 2, 12)]
+    res = size_resolved_clusters(f, candidates=windows, min_area_m2=50.0, max_area_m2=1500.0,
+                                 bands=3, time_limit_s=10.0)
+    t = res.table
+    assert len(t["fs"]) == 6
+    for i in range(6):
+        mask = res.grid_mask(i, f.valid.shape)
+        assert ndimage.label(mask)[1] == 1
+        assert t["band_min_m2"][i] <= mask.sum() * CELL <= t["band_max_m2"][i]
+        assert cluster_factor_of_safety(f, mask) == pytest.approx(t["fs"][i], rel=1e-12)
+        assert t["lower_bound"][i] <= t["fs"][i]
+        assert t["proven"][i] == (t["lower_bound"][i] >= t["fs"][i] * (1 - 1e-6))
+        r0, r1, c0, c1 = t["row0"][i], t["row1"][i], t["col0"][i], t["col1"][i]
+        assert not mask[:r0].any() and not mask[r1:].any()
+        assert not mask[:, :c0].any() and not mask[:, c1:].any()
