@@ -190,18 +190,29 @@ def test_failing_clusters_product(tmp_path, capsys):
     from slopescreen.vectors import read_layer
 
     rain = '\n[[rain]]\nname = "very wet"\nsteady_mm_per_day = 400\n'
-    extra = "\n[clusters]\nmin_area_m2 = 25\nmax_area_m2 = 2500\npassive_fraction = 0.5\n"
-    manifest = run_ok(capsys, write_case(tmp_path, rain=rain, extra=extra, gradient=0.85))
+    extra = ("\n[clusters]\nmin_area_m2 = 25\nmax_area_m2 = 2500\npassive_fraction = 0.5\n"
+             "size_windows = 1\nsize_time_limit_s = 3\n[uncertainty]\nsamples = 100\nseed = 2\n")
+    soil = SOIL.replace("friction_deg = 35.0", "friction_deg = { normal = [35.0, 2.0] }")
+    manifest = run_ok(capsys, write_case(tmp_path, rain=rain, extra=extra, gradient=0.85, soil=soil))
     keys = {p["key"] for p in manifest["products"]}
     assert {"clusters", "cluster_fs_bound", "cluster_labels"} <= keys
     [entry] = [p for p in manifest["products"] if p["key"] == "clusters"]
     assert entry["kind"] == "vector" and entry["path"].endswith(".gpkg")
-    geoms, cols, meta = read_layer(tmp_path / "out" / entry["path"])
+    geoms, cols, meta = read_layer(tmp_path / "out" / entry["path"], layer="clusters")
     assert len(geoms) >= 1
     assert np.all(cols["fs"] < 1.0)
+    p = cols["failure_probability"]
+    assert np.all((p >= 0.0) & (p <= 1.0))  # Monte Carlo over the parameter distributions
     np.testing.assert_allclose(cols["area_m2"], cols["n_cells"] * 25.0)
     np.testing.assert_allclose([g.area for g in geoms], cols["area_m2"])
     assert "licensed" in meta["CAUTION"]
     labels, _ = product(manifest, tmp_path / "out", "cluster_labels", "very wet")
     assert set(np.unique(labels[np.isfinite(labels)])) - {0.0} == set(cols["id"].astype(float))
     assert not any(item["section"] == "clusters" for item in manifest["not_run"])
+    # the size-resolved answers: least-stable connected cluster in the area band, with bounds
+    sgeoms, scols, _ = read_layer(tmp_path / "out" / entry["path"], layer="size_resolved")
+    assert len(sgeoms) >= 1
+    assert np.all(scols["area_m2"] >= 25.0) and np.all(scols["area_m2"] <= 2500.0)
+    assert np.all(scols["lower_bound"] <= scols["fs"] + 1e-9)
+    proven = scols["proven"].astype(bool)
+    np.testing.assert_allclose(scols["lower_bound"][proven], scols["fs"][proven], rtol=1e-5)

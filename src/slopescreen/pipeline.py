@@ -146,6 +146,7 @@ class _Writer:
         self.grid = grid
         self.products: list[Product] = []
         self.cluster_records: list[dict] = []  # attribute rows of clusters.gpkg, for the report
+        self.size_records: list[dict] = []
 
     def raster(self, key, array, *, units, description, rain=None, name=None, tags=None):
         name = name or (f"{key}_{rain.slug}.tif" if rain is not None else f"{key}.tif")
@@ -301,9 +302,16 @@ def _stability(scenario: Scenario, inputs: Inputs, slope_deg, sca, w: "_Writer",
                      description="Infinite-slope factor of safety (median parameters)")
         if collector is not None:
             depth = least.depth_m if case.is_storm else m["depth_m"]
+            sampled = unc is not None or _varies(units)
+            cluster_unc = None if not sampled else dict(
+                unit_index=index, table=table,
+                lateral_root_cohesion_kpa=[u.lateral_root_cohesion_kpa for u in units],
+                samples=(unc or _default_uncertainty()).samples,
+                seed=(unc or _default_uncertainty()).seed,
+                rain=None if case.is_storm else rain, sca_m=None if case.is_storm else a)
             with stages.stage(f"clusters: {case.name}"):
                 _clusters_for_case(scenario, inputs, case, slope, depth, wet, m, index, units,
-                                   w, collector)
+                                   w, collector, cluster_unc)
         if unc is None and not _varies(units):
             continue
         unc = unc or _default_uncertainty()
@@ -324,9 +332,18 @@ def _stability(scenario: Scenario, inputs: Inputs, slope_deg, sca, w: "_Writer",
             collector.write(w)
 
 
-CLUSTER_FIELDS = ("id", "rain", "fs", "area_m2", "volume_m3", "mean_depth_m", "length_m",
-                  "width_m", "n_cells", "min_cell_fs", "lower_bound", "proven", "in_area_band")
+CLUSTER_FIELDS = ("id", "rain", "fs", "failure_probability", "area_m2", "volume_m3",
+                  "mean_depth_m", "length_m", "width_m", "n_cells", "min_cell_fs", "lower_bound",
+                  "proven", "in_area_band")
 """Attributes of the ``clusters`` layer, in order (units in the names; fs is dimensionless)."""
+
+SIZE_FIELDS = ("id", "rain", "band_min_m2", "band_max_m2", "fs", "failure_probability",
+               "lower_bound", "relaxation_bound", "heuristic_fs", "proven", "method", "area_m2",
+               "volume_m3", "mean_depth_m", "length_m", "width_m", "n_cells", "min_cell_fs",
+               "seconds")
+"""Attributes of the ``size_resolved`` layer: the least-stable cluster per window and area band."""
+
+_TABLE_NAMES = {"failure_probability": "probability"}
 
 
 class _ClusterCollector:
@@ -337,6 +354,36 @@ class _ClusterCollector:
         self.polygons: dict = {}
         self.records: list[dict] = []
         self.next_id = 1
+        self.size_polygons: dict = {}
+        self.size_records: list[dict] = []
+
+    @staticmethod
+    def _row(table, i, fields) -> dict:
+        row = {}
+        for key in fields:
+            value = table[_TABLE_NAMES.get(key, key)][i]
+            if key in ("n_cells",):
+                row[key] = int(value)
+            elif key in ("proven", "in_area_band"):
+                row[key] = bool(value)
+            elif key == "method":
+                row[key] = str(value)
+            else:
+                row[key] = float(value)
+        return row
+
+    def add_sizes(self, case_name: str, sizes) -> None:
+        """Add the size-resolved answers of one case (rows with a cluster only)."""
+        from .vectors import label_polygons
+
+        for i, mask in enumerate(sizes.masks):
+            if not mask.any():
+                continue
+            new_id = len(self.size_records) + 1
+            grid_mask = sizes.grid_mask(i, self.grid.shape)
+            self.size_polygons[new_id] = label_polygons(grid_mask.astype(np.int32), self.grid)[1]
+            self.size_records.append({"id": new_id, "rain": case_name}
+                                     | self._row(sizes.table, i, SIZE_FIELDS[2:]))
 
     def add(self, case_name: str, result) -> np.ndarray:
         """Add one case's clusters; return its label raster with layer-wide ids."""
@@ -351,16 +398,8 @@ class _ClusterCollector:
         polys = label_polygons(labels, self.grid)
         for i in range(n):
             new_id = int(table["id"][i]) + offset
-            row = {"id": new_id, "rain": case_name}
-            for key in CLUSTER_FIELDS[2:]:
-                value = table[key][i]
-                if key == "n_cells":
-                    row[key] = int(value)
-                elif key in ("proven", "in_area_band"):
-                    row[key] = bool(value)
-                else:
-                    row[key] = float(value)
-            self.records.append(row)
+            self.records.append({"id": new_id, "rain": case_name}
+                                | self._row(table, i, CLUSTER_FIELDS[2:]))
             self.polygons[new_id] = polys[new_id]
         self.next_id += n
         return labels
@@ -371,11 +410,17 @@ class _ClusterCollector:
         name = "clusters.gpkg"
         write_polygons(w.staging / name, self.polygons, self.records, self.grid, layer="clusters",
                        caution=SHORT, metadata={"FIELDS": ", ".join(CLUSTER_FIELDS)})
+        if self.size_records:
+            write_polygons(w.staging / name, self.size_polygons, self.size_records, self.grid,
+                           layer="size_resolved", caution=SHORT, add_layer=True,
+                           metadata={"FIELDS": ", ".join(SIZE_FIELDS)})
         w.file("clusters", name, kind="vector", units="attributes carry their units in their names")
         w.cluster_records = list(self.records)
+        w.size_records = list(self.size_records)
 
 
-def _clusters_for_case(scenario, inputs, case, slope, depth, wet, m, index, units, w, collector):
+def _clusters_for_case(scenario, inputs, case, slope, depth, wet, m, index, units, w, collector,
+                       uncertainty=None):
     """Failing multi-cell clusters of one rain case, and the cluster FS bound raster."""
     from .clusters import failure_clusters
 
@@ -388,8 +433,13 @@ def _clusters_for_case(scenario, inputs, case, slope, depth, wet, m, index, unit
         cohesion_kpa=m["cohesion_kpa"], root_cohesion_kpa=m["root_cohesion_kpa"],
         lateral_root_cohesion_kpa=lateral, friction_deg=m["friction_deg"],
         unit_weight_kn_m3=m["unit_weight_kn_m3"], passive_fraction=c.passive_fraction,
-        min_area_m2=c.min_area_m2, max_area_m2=c.max_area_m2)
+        min_area_m2=c.min_area_m2, max_area_m2=c.max_area_m2,
+        size_resolved=c.size_windows > 0, size_bands=c.size_bands,
+        size_time_limit_s=c.size_time_limit_s, size_max_clusters=c.size_windows,
+        size_n_least=min(2, c.size_windows), uncertainty=uncertainty)
     labels = collector.add(case.name, result)
+    if result.size_resolved is not None:
+        collector.add_sizes(case.name, result.size_resolved)
     extent = result.bound_extent_cells
     w.raster("cluster_fs_bound", result.cluster_fs_bound, units="1", rain=case,
              description=f"Proven lower bound on the FS of any cluster up to {extent} x {extent} "
@@ -583,7 +633,8 @@ def _report(scenario: Scenario, inputs: Inputs, slope_deg, w: _Writer, stages, s
         ctx = html.ReportContext(manifest=manifest, read=read, cell_area_m2=grid.cell_area_m2,
                                  slope_deg=slope_deg, aspect_deg=aspect, unit_index=unit_index,
                                  unit_labels=unit_labels, maps=images,
-                                 tables={"clusters": w.cluster_records})
+                                 tables={"clusters": w.cluster_records,
+                                         "size_resolved": w.size_records})
         text = html.render_report(ctx)
         w.blob("report", "report.html", text.encode("utf-8"), kind="html", units="n/a")
 

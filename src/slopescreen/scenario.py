@@ -119,6 +119,9 @@ class Clusters:
     min_area_m2: float
     max_area_m2: float
     passive_fraction: float = 0.5
+    size_windows: int = 0
+    size_bands: int = 1
+    size_time_limit_s: float = 10.0
 
 
 @dataclass(frozen=True)
@@ -476,14 +479,20 @@ def _parse_uncertainty(table, ctx: Ctx, base: Path):
 
 
 def _parse_clusters(table, ctx: Ctx, base: Path):
-    check_keys(table, ctx, {"min_area_m2", "max_area_m2", "passive_fraction"},
+    check_keys(table, ctx, {"min_area_m2", "max_area_m2", "passive_fraction", "size_windows",
+                            "size_bands", "size_time_limit_s"},
                required=("min_area_m2", "max_area_m2"))
     lo = get_number(table, "min_area_m2", ctx, low=0.0, low_open=True)
     hi = get_number(table, "max_area_m2", ctx, low=0.0, low_open=True)
     if lo > hi:
         raise ctx.child("min_area_m2").fail(f"{lo:g} is greater than max_area_m2 {hi:g}")
     passive = get_number(table, "passive_fraction", ctx, default=0.5, low=0.0, high=1.0)
-    return {"clusters": Clusters(min_area_m2=lo, max_area_m2=hi, passive_fraction=passive)}
+    return {"clusters": Clusters(
+        min_area_m2=lo, max_area_m2=hi, passive_fraction=passive,
+        size_windows=get_int(table, "size_windows", ctx, default=0, low=0, high=1000),
+        size_bands=get_int(table, "size_bands", ctx, default=1, low=1, high=8),
+        size_time_limit_s=get_number(table, "size_time_limit_s", ctx, default=10.0, low=0.0,
+                                     high=3600.0, low_open=True))}
 
 
 def _parse_corridor(table, ctx: Ctx, base: Path):

@@ -52,7 +52,7 @@ def label_polygons(labels: np.ndarray, grid: Grid) -> dict[int, object]:
 
 
 def write_polygons(path, polygons: dict, records: list[dict], grid: Grid, *, layer: str,
-                   caution: str, metadata: dict | None = None) -> Path:
+                   caution: str, metadata: dict | None = None, add_layer: bool = False) -> Path:
     """Write polygons with attributes as one GeoPackage layer, atomically.
 
     Parameters
@@ -72,6 +72,9 @@ def write_polygons(path, polygons: dict, records: list[dict], grid: Grid, *, lay
         Screening caution, stored in the layer metadata as ``CAUTION``.
     metadata : dict, optional
         More layer metadata (text values).
+    add_layer : bool
+        Add the layer to an existing GeoPackage at ``path`` (written in place;
+        use it only on a file that is itself still in a staging folder).
 
     Returns
     -------
@@ -107,6 +110,10 @@ def write_polygons(path, polygons: dict, records: list[dict], grid: Grid, *, lay
         else:
             columns.append(np.array(["" if v is None else str(v) for v in values], dtype=object))
     meta = {"CAUTION": caution} | {k: str(v) for k, v in (metadata or {}).items()}
+    if add_layer:
+        write(str(path), wkb, columns, names, layer=layer, driver="GPKG",
+              geometry_type="MultiPolygon", crs=grid.crs.to_wkt(), layer_metadata=meta)
+        return path
     tmp = path.with_name(f".{path.stem}.partial{path.suffix}")
     try:
         write(str(tmp), wkb, columns, names, layer=layer, driver="GPKG",
@@ -118,8 +125,10 @@ def write_polygons(path, polygons: dict, records: list[dict], grid: Grid, *, lay
     return path
 
 
-def read_layer(path) -> tuple[list, dict, dict]:
+def read_layer(path, layer=None) -> tuple[list, dict, dict]:
     """Read a GeoPackage layer back: (shapely geometries, columns by name, layer metadata).
+
+    ``layer`` names the layer (default: the first).
 
     A convenience for tests and notebooks.
     """
@@ -127,8 +136,12 @@ def read_layer(path) -> tuple[list, dict, dict]:
     from pyogrio import read_info
     from pyogrio.raw import read
 
-    meta, _fids, geometry, field_data = read(str(path))
+    if layer is None:
+        from pyogrio import list_layers
+
+        layer = str(list_layers(str(path))[0][0])
+    meta, _fids, geometry, field_data = read(str(path), layer=layer)
     geoms = [shapely.from_wkb(g) for g in geometry]
     columns = {name: values for name, values in zip(meta["fields"], field_data)}
-    info = read_info(str(path))
+    info = read_info(str(path), layer=layer)
     return geoms, columns, dict(info.get("layer_metadata") or {}) | {"crs": meta["crs"]}

@@ -109,7 +109,8 @@ def failure_clusters(slope_deg, depth_m, wetness, *, dx, dy, aspect_deg, cohesio
                      min_area_m2=None, max_area_m2=None, tile_cells=200, halo_cells=24,
                      bound_window_cells=40, bound_stride_cells=20, bound=True,
                      size_resolved=False, size_bands=1, size_time_limit_s=10.0,
-                     size_window_cells=40, size_n_least=4, uncertainty=None):
+                     size_window_cells=40, size_n_least=4, size_max_clusters=None,
+                     uncertainty=None):
     """Failing multi-cell clusters of one rain case and the cluster FS bound raster.
 
     Parameters
@@ -160,6 +161,9 @@ def failure_clusters(slope_deg, depth_m, wetness, *, dx, dy, aspect_deg, cohesio
         Side of the windows centred on failing clusters, cells.
     size_n_least : int
         Least-stable bound-map windows added as candidates (needs ``bound``).
+    size_max_clusters : int, optional
+        Search only the windows of this many failing clusters, the least
+        stable first (default: every failing cluster).
     uncertainty : dict, optional
         Fill the ``probability`` columns by
         :func:`~slopescreen.clusters.probability.cluster_failure_probability`:
@@ -246,7 +250,13 @@ def failure_clusters(slope_deg, depth_m, wetness, *, dx, dy, aspect_deg, cohesio
         if min_area_m2 is None or max_area_m2 is None:
             raise InputError("min_area_m2, max_area_m2: the size-resolved search needs the "
                              "scenario's area range ([clusters] min_area_m2, max_area_m2)")
-        cands = candidate_windows(forces.valid.shape, labels=out_labels, windows=windows,
+        chosen = out_labels
+        if size_max_clusters is not None and len(table["id"]) > size_max_clusters:
+            order = np.argsort(table["fs"], kind="stable")[:int(size_max_clusters)]
+            keep_ids = np.zeros(len(table["id"]) + 1, dtype=bool)
+            keep_ids[np.asarray(table["id"])[order]] = True
+            chosen = np.where(keep_ids[out_labels], out_labels, 0).astype(out_labels.dtype)
+        cands = candidate_windows(forces.valid.shape, labels=chosen, windows=windows,
                                   window_cells=size_window_cells, n_least=size_n_least)
         sizes = size_resolved_clusters(forces, candidates=cands, min_area_m2=min_area_m2,
                                        max_area_m2=max_area_m2, bands=size_bands,

@@ -67,13 +67,15 @@ def _cluster_blocks(ctx: ReportContext, entries):
     if least:
         blocks.append(table(
             "The least stable clusters (up to 15)",
-            ["id", "rain case", "FS", "area", "volume", "length × width", "cells", "proven",
-             "in the area band"],
-            [[str(r["id"]), r["rain"], f"{r['fs']:.3f}", f"{r['area_m2']:,.0f}{NBSP}m²",
+            ["id", "rain case", "FS", "P(fail)", "area", "volume", "length × width", "cells",
+             "proven", "in the area band"],
+            [[str(r["id"]), r["rain"], f"{r['fs']:.3f}",
+              "—" if r["failure_probability"] != r["failure_probability"]
+              else f"{r['failure_probability']:.2f}", f"{r['area_m2']:,.0f}{NBSP}m²",
               f"{r['volume_m3']:,.0f}{NBSP}m³", f"{r['length_m']:.0f} × {r['width_m']:.0f}{NBSP}m",
               str(r["n_cells"]), "yes" if r["proven"] else "no",
               "yes" if r["in_area_band"] else "no"] for r in least],
-            [False, False, True, True, True, True, True, False, False]))
+            [False, False, True, True, True, True, True, True, False, False]))
     bound = [e for e in entries if e["key"] == "cluster_fs_bound"]
     if bound:
         blocks.append(para(
@@ -81,10 +83,17 @@ def _cluster_blocks(ctx: ReportContext, entries):
             "of every cluster up to the stated extent that contains the cell; where it is at "
             "least 1, no such cluster can fail under that rain case. Its maps are in the "
             "sections of each rain case.", lead="Bound:"))
-    blocks.append(note(
-        "Not in this version: the size-resolved search for the least stable cluster inside the "
-        "scenario's area band, and the probability that each cluster fails given the parameter "
-        "distributions.", lead="Limits."))
+    sized = ctx.tables.get("size_resolved", [])
+    if sized:
+        blocks.append(table(
+            "Least stable connected cluster per searched window and area band",
+            ["rain case", "area band", "FS", "proven lower bound", "proven", "area", "P(fail)"],
+            [[r["rain"], f"{r['band_min_m2']:,.0f}–{r['band_max_m2']:,.0f}{NBSP}m²",
+              f"{r['fs']:.3f}", f"{r['lower_bound']:.3f}", "yes" if r["proven"] else
+              f"no ({r['method']})", f"{r['area_m2']:,.0f}{NBSP}m²",
+              "—" if r["failure_probability"] != r["failure_probability"]
+              else f"{r['failure_probability']:.2f}"] for r in sized[:20]],
+            [False, True, True, True, False, True, True]))
     return blocks
 
 
