@@ -56,7 +56,12 @@ from ..parameters import (
     _uniform01,
     fixed,
 )
-from ..probability.monte_carlo import _UNIT_DOMAIN, _prepare_table, _unit_draws_kernel
+from ..probability.monte_carlo import (
+    _UNIT_DOMAIN,
+    _prepare_table,
+    _unit_draws_kernel,
+    samples_and_seed,
+)
 from ..probability.table import (
     _COH,
     _COND,
@@ -123,22 +128,6 @@ def _encode_lateral(lateral, n_units):
     return out
 
 
-def _samples_and_seed(samples, seed):
-    try:
-        n = int(samples)
-    except (TypeError, ValueError):
-        raise InputError(f"samples: expected an integer >= 1, got {samples!r}") from None
-    if n < 1 or n != samples:
-        raise InputError(f"samples: expected an integer >= 1, got {samples!r}")
-    try:
-        s = int(seed)
-    except (TypeError, ValueError):
-        raise InputError(f"seed: expected an integer in [0, 2**64), got {seed!r}") from None
-    if s != seed or not 0 <= s < 2**64:
-        raise InputError(f"seed: expected an integer in [0, 2**64), got {seed!r}")
-    return n, s
-
-
 def cluster_parameter_draws(table, lateral_root_cohesion_kpa, *, samples, seed):
     """Per-unit parameter draws used by :func:`cluster_failure_probability`.
 
@@ -189,7 +178,7 @@ def cluster_parameter_draws(table, lateral_root_cohesion_kpa, *, samples, seed):
     ((1, 7, 4), (1, 4), 3.0)
     """
     encoded, _ = _checked_table(table, False)
-    n, s = _samples_and_seed(samples, seed)
+    n, s = samples_and_seed(samples, seed)
     n_units = encoded.shape[0]
     prep = _prepare_table(encoded)
     prep_lat = _prepare_table(_encode_lateral(lateral_root_cohesion_kpa, n_units))
@@ -421,7 +410,7 @@ def cluster_failure_probability(clusters, slope_deg, aspect_deg, unit_index, tab
     if unit.size and (unit.min() < -1 or unit.max() >= n_units):
         raise InputError(f"unit_index: values must lie in [-1, {n_units - 1}], got "
                          f"[{unit.min()}, {unit.max()}]")
-    n, s = _samples_and_seed(samples, seed)
+    n, s = samples_and_seed(samples, seed)
     eta = float(_field(passive_fraction, "passive_fraction", 0.0, 1.0, allow_nan=False))
     valid = np.isfinite(slope) & (unit >= 0)
     if (rain is None) == (wetness is None):

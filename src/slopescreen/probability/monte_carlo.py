@@ -181,6 +181,29 @@ def _failure_probability_kernel(slope, sca, unit, prep, draws, unit_mode, rain_k
             se_out[i] = math.sqrt(pf * (1.0 - pf) / samples)
 
 
+def samples_and_seed(samples, seed):
+    """Validate a Monte Carlo sample count (>= 1) and seed (in [0, 2**64)); return them as ints.
+
+    Raises
+    ------
+    InputError
+        Naming ``samples`` or ``seed``.
+    """
+    try:
+        n = int(samples)
+    except (TypeError, ValueError):
+        raise InputError(f"samples: expected an integer >= 1, got {samples!r}") from None
+    if n < 1 or n != samples:
+        raise InputError(f"samples: expected an integer >= 1, got {samples!r}")
+    try:
+        s = int(seed)
+    except (TypeError, ValueError):
+        raise InputError(f"seed: expected an integer in [0, 2**64), got {seed!r}") from None
+    if s != seed or not 0 <= s < 2**64:
+        raise InputError(f"seed: expected an integer in [0, 2**64), got {seed!r}")
+    return n, s
+
+
 def failure_probability(
     slope_deg,
     sca_m,
@@ -268,18 +291,7 @@ def failure_probability(
     shape, slope, sca, unit, encoded, _, rain_kind, rain_vec, nd = _grid_inputs(
         slope_deg, sca_m, unit_index, table, rain, n_depths
     )
-    try:
-        n = int(samples)
-    except (TypeError, ValueError):
-        raise InputError(f"samples: expected an integer >= 1, got {samples!r}") from None
-    if n < 1 or n != samples:
-        raise InputError(f"samples: expected an integer >= 1, got {samples!r}")
-    try:
-        s = int(seed)
-    except (TypeError, ValueError):
-        raise InputError(f"seed: expected an integer in [0, 2**64), got {seed!r}") from None
-    if s != seed or not 0 <= s < 2**64:
-        raise InputError(f"seed: expected an integer in [0, 2**64), got {seed!r}")
+    n, s = samples_and_seed(samples, seed)
     if correlation not in ("cell", "unit"):
         raise InputError(f"correlation: expected 'cell' or 'unit', got {correlation!r}")
     prep = _prepare_table(encoded)
