@@ -455,6 +455,15 @@ def _table_keys(unit):
     return [k for k in PARAMETER_ORDER if getattr(unit, k) is not None]
 
 
+def _effective_uncertainty(scenario: Scenario) -> dict | None:
+    """The probability settings a run used (defaults when only distributions ask for it)."""
+    if scenario.uncertainty is not None:
+        return vars(scenario.uncertainty)
+    if scenario.soil is not None and _varies(list(scenario.soil.units.values())):
+        return vars(_default_uncertainty())
+    return None
+
+
 def _default_uncertainty():
     from .scenario import Uncertainty
 
@@ -665,7 +674,7 @@ def _manifest(scenario: Scenario, grid: Grid, products, timings, started) -> dic
         "conventions": CONVENTIONS,
         "soil": _soil_record(scenario),
         "rain": [{k: v for k, v in vars(r).items() if v is not None} for r in scenario.rain],
-        "uncertainty": None if scenario.uncertainty is None else vars(scenario.uncertainty),
+        "uncertainty": _effective_uncertainty(scenario),
         "stage_seconds": timings,
     }
 
