@@ -39,19 +39,12 @@ def test_solver_wrapper_raises_on_infeasible_and_unbounded():
 
 
 def test_solver_wrapper_reports_a_time_limit_stop():
-    # a random multidimensional knapsack that HiGHS needs seconds to prove (seeded)
-    rng = np.random.default_rng(0)
-    n, m = 70, 12
-    a = rng.integers(20, 100, (m, n))
-    b = a.sum(axis=1) // 2
-    c = rng.integers(20, 100, n) + a.mean(0).round()
-    x = cp.Variable(n, boolean=True)
-    prob = cp.Problem(cp.Minimize(-c @ x), [a @ x <= b])
+    prob, x, a, b = _knapsack()
     out = solve_checked(prob, time_limit_s=0.3)
     assert out.status == "time_limit"
     assert out.dual_bound <= out.value   # a lower bound on the optimum
     xv = np.round(x.value)
-    assert (a @ xv <= b).all() and -c @ xv == pytest.approx(out.value)
+    assert (a @ xv <= b).all() and prob.objective.value == pytest.approx(out.value)
     with pytest.raises(SolverError, match="time_limit_s"):
         solve_checked(prob, time_limit_s=-1.0)
 
@@ -145,3 +138,48 @@ def test_stage_with_size_resolved_search_and_probability():
     with pytest.raises(InputError, match="area range"):
         failure_clusters(slope, 1.0, 0.3, dx=5.0, dy=5.0, aspect_deg=aspect, bound=False,
                          size_resolved=True, **SOIL)
+
+
+def _knapsack():
+    # a random multidimensional knapsack that HiGHS needs seconds to prove (seeded)
+    rng = np.random.default_rng(0)
+    n, m = 70, 12
+    a = rng.integers(20, 100, (m, n))
+    b = a.sum(axis=1) // 2
+    c = rng.integers(20, 100, n) + a.mean(0).round()
+    x = cp.Variable(n, boolean=True)
+    return cp.Problem(cp.Minimize(-c @ x), [a @ x <= b]), x, a, b
+
+
+def test_solver_process_is_killed_past_its_limit_and_keeps_the_start(monkeypatch):
+    # HiGHS does not look at the clock in every phase (its root cut rounds can overrun a
+    # 3 s limit by 30 s); the wrapper kills the child process instead. Here the wait is cut
+    # below HiGHS's own limit so that the kill path runs every time.
+    from slopescreen.clusters import _highs_process
+
+    prob, x, a, b = _knapsack()
+    first = solve_checked(prob, time_limit_s=0.3)
+    held = x.value.copy()
+    kills = _highs_process._PROCESS.kills
+    monkeypatch.setattr(_highs_process, "grace_s", lambda t: 0.05 - float(t))
+    out = solve_checked(prob, time_limit_s=30.0, warm_start=True)
+    assert _highs_process._PROCESS.kills == kills + 1
+    assert out.status == "time_limit"
+    assert out.dual_bound == -math.inf          # nothing proven by a killed solve
+    assert out.value == pytest.approx(first.value)
+    np.testing.assert_array_equal(x.value, held)  # the variables hold the start point
+    with pytest.raises(SolverError, match="overran"):
+        solve_checked(cp.Problem(prob.objective, prob.constraints), time_limit_s=30.0)
+    monkeypatch.undo()
+    again = solve_checked(prob, time_limit_s=0.3, warm_start=True)  # a fresh child answers
+    assert again.value <= first.value + 1e-9 and (a @ np.round(x.value) <= b).all()
+
+
+def test_solver_process_keeps_the_highs_banner_off_stdout(capfd):
+    from slopescreen.clusters import _highs_process
+
+    _highs_process._PROCESS.close()    # the banner is printed when a child starts
+    x = cp.Variable(2, boolean=True)
+    solve_checked(cp.Problem(cp.Minimize(x[0] - 2 * x[1]), [cp.sum(x) <= 1]))
+    out, _ = capfd.readouterr()
+    assert out == ""

@@ -1,15 +1,18 @@
 """One checked entry point for every cvxpy solve of the clusters package (STYLE.md point 8).
 
-cvxpy reports an infeasible or failed problem through ``problem.status`` and
-leaves ``inf`` or ``None`` in the values; a MILP stopped by its time limit
-comes back as ``user_limit`` with a warning. :func:`solve_checked` turns
-every status into one of two outcomes or an exception:
+cvxpy builds the problem (the modelling layer); HiGHS solves it in a child
+process that is killed when it overruns its time limit
+(:mod:`slopescreen.clusters._highs_process`); cvxpy maps the answer back to
+the variables. :func:`solve_checked` turns every outcome into one of two
+or an exception:
 
 * ``"optimal"``: HiGHS proved optimality (within the gap options passed).
 * ``"time_limit"``: only when a time limit was set, HiGHS stopped on it and
   holds a feasible point (always so when the solve is warm-started from a
   feasible point). The caller gets the point and HiGHS's dual bound and must
-  report the answer as unproven.
+  report the answer as unproven. When HiGHS did not stop within the grace
+  period the child is killed; the answer is then the warm-start point with
+  no dual bound (``-inf``), also reported as ``"time_limit"``.
 
 Anything else (infeasible, unbounded, solver error, ``optimal_inaccurate``,
 a limit other than the time limit, a stop without a feasible point) raises
@@ -19,16 +22,31 @@ that are feasible and bounded, so such a status is a fault, never an answer.
 
 import math
 import warnings
+import weakref
+from types import SimpleNamespace
 from typing import NamedTuple
 
 import cvxpy as cp
+import numpy as np
 
 from ..errors import SolverError
+from ._highs_process import solve_in_child
 
 __all__ = ["SolveOutcome", "solve_checked"]
 
 # HighsInfo.primal_solution_status: 2 = a feasible point is held
 _FEASIBLE_POINT = 2
+
+# HiGHS model status -> plain words for messages
+_STATUS_WORDS = {"kInfeasible": "infeasible", "kUnbounded": "unbounded",
+                 "kUnboundedOrInfeasible": "infeasible or unbounded",
+                 "kTimeLimit": "time limit", "kIterationLimit": "iteration limit",
+                 "kSolutionLimit": "solution limit", "kObjectiveBound": "objective bound",
+                 "kObjectiveTarget": "objective target", "kModelError": "model error",
+                 "kSolveError": "solve error", "kNotset": "not set", "kOptimal": "optimal"}
+
+# the column vector of the last point held for each problem, the warm start of the next solve
+_LAST_POINT = weakref.WeakKeyDictionary()
 
 
 class SolveOutcome(NamedTuple):
@@ -52,23 +70,30 @@ def solve_checked(problem, *, time_limit_s=None, warm_start=False, **options):
     problem : cvxpy.Problem
         A linear or mixed-integer linear minimisation.
     time_limit_s : float, optional
-        Wall-clock limit handed to HiGHS, s (> 0). Without it a stop on a
-        limit is an error.
+        Wall-clock limit handed to HiGHS, s (> 0); the process is killed
+        when it has not answered by the limit plus
+        :func:`~slopescreen.clusters._highs_process.grace_s`. Without it
+        a stop on a limit is an error.
     warm_start : bool
-        Hand the previous solution of this problem object to HiGHS as a
-        starting point (cvxpy keeps it between solves of one problem).
+        Hand the last point held for this problem object to HiGHS as a
+        starting point (kept between solves of one problem; it must still
+        be feasible, as when only the objective changed).
     **options
         Further HiGHS options (``mip_abs_gap``, ``mip_rel_gap``, ...).
 
     Returns
     -------
     SolveOutcome
+        The variables of ``problem`` hold the point, as after
+        ``problem.solve``.
 
     Raises
     ------
     SolverError
         Any status other than proven optimal, or a time-limit stop without
-        a feasible point; a non-finite objective; a maximisation.
+        a feasible point (a killed solve without a warm start among them);
+        a non-finite objective; a maximisation; a solver process that
+        cannot be started or ends unexpectedly.
 
     Notes
     -----
@@ -100,36 +125,88 @@ def solve_checked(problem, *, time_limit_s=None, warm_start=False, **options):
         if not (isinstance(time_limit_s, (int, float)) and time_limit_s > 0):
             raise SolverError(f"time_limit_s: expected a positive number, got {time_limit_s!r}")
         opts["time_limit"] = float(time_limit_s)
-    with warnings.catch_warnings():
-        # a time-limit stop is reported as user_limit with a warning; it is
-        # checked explicitly below instead
-        warnings.filterwarnings("ignore", message="Solution may be inaccurate")
-        try:
-            problem.solve(solver=cp.HIGHS, warm_start=warm_start, **opts)
-        except cp.error.SolverError as exc:
-            raise SolverError(f"HiGHS failed: {exc}") from None
-    status = problem.status
-    stats = problem.solver_stats
-    info = stats.extra_stats if stats is not None else None
-    seconds = float(stats.solve_time) if stats is not None and stats.solve_time else 0.0
-    value = problem.value
-    if status == cp.OPTIMAL:
+    try:
+        data, chain, inverse = problem.get_problem_data(cp.HIGHS)
+    except cp.error.SolverError as exc:
+        raise SolverError(f"HiGHS cannot take this problem: {exc}") from None
+    start = _LAST_POINT.get(problem) if warm_start else None
+    request = _request(data, opts, start)
+    try:
+        reply, wall = solve_in_child(request, time_limit_s)
+    except RuntimeError as exc:
+        raise SolverError(str(exc)) from None
+    if reply is None:
+        # killed after its time limit and the grace period: the answer is the start point
+        if start is None:
+            raise SolverError(f"HiGHS overran its time limit of {time_limit_s:g} s with no "
+                              f"starting point to fall back on; the answer cannot be used")
+        reply = _stopped_at(request, start, wall)
+    status = reply["model_status"]
+    info = SimpleNamespace(**reply["info"])
+    if status == "kOptimal":
         outcome = "optimal"
-    elif (status == cp.USER_LIMIT and time_limit_s is not None and info is not None
-          and int(info.primal_solution_status) == _FEASIBLE_POINT
-          and seconds >= 0.9 * float(time_limit_s)):
+    elif (status == "kTimeLimit" and time_limit_s is not None
+          and int(info.primal_solution_status) == _FEASIBLE_POINT):
         outcome = "time_limit"
     else:
-        raise SolverError(f"HiGHS returned status {status!r} (expected optimal, or a time-limit "
-                          f"stop holding a feasible point); the answer cannot be used")
+        word = _STATUS_WORDS.get(status, "unknown")
+        raise SolverError(f"HiGHS returned status {word!r} ({status}; expected optimal, or a "
+                          f"time-limit stop holding a feasible point); the answer cannot be used")
+    results = {"solution": SimpleNamespace(col_value=reply["col_value"],
+                                           row_dual=reply["row_dual"]),
+               "info": info, "model_status": status, "run_time": reply["run_time"]}
+    with warnings.catch_warnings():
+        # a time-limit stop is reported as user_limit with a warning; it is
+        # checked explicitly above instead
+        warnings.filterwarnings("ignore", message="Solution may be inaccurate")
+        problem.unpack_results(results, chain, inverse)
+    _LAST_POINT[problem] = np.asarray(reply["col_value"], dtype=np.float64)
+    value = problem.value
     if value is None or not math.isfinite(float(value)):
         raise SolverError(f"HiGHS returned a non-finite objective {value!r} with status {status}")
     value = float(value)
     dual = value
-    if info is not None and problem.is_mixed_integer():
+    if problem.is_mixed_integer():
         # cvxpy adds its constant offset to the value, not to HiGHS's bound
         offset = value - float(info.objective_function_value)
         dual = float(info.mip_dual_bound) + offset
         if not math.isfinite(dual):
             dual = -math.inf
-    return SolveOutcome(outcome, value, dual, seconds)
+    return SolveOutcome(outcome, value, dual, float(reply["run_time"]))
+
+
+def _request(data, options, start):
+    """The standard form HiGHS takes, from cvxpy's problem data (as cvxpy's own HiGHS interface)."""
+    dims = data["dims"]
+    if dims.exp or dims.soc or dims.psd or dims.p3d:
+        raise SolverError("problem: only linear constraints can be passed to HiGHS")
+    a = data["A"].tocsc()
+    b = np.asarray(data["b"], dtype=np.float64)
+    n_eq = int(dims.zero)
+    lower = np.concatenate([b[:n_eq], np.full(b.size - n_eq, -np.inf)])
+    n = a.shape[1]
+    lb, ub = data["lower_bounds"], data["upper_bounds"]
+    col_lower = np.full(n, -np.inf) if lb is None else np.array(lb, dtype=np.float64)
+    col_upper = np.full(n, np.inf) if ub is None else np.array(ub, dtype=np.float64)
+    boolean = np.asarray(data["bool_vars_idx"], dtype=np.int64)
+    if boolean.size:
+        col_lower[boolean] = np.maximum(col_lower[boolean], 0.0)
+        col_upper[boolean] = np.minimum(col_upper[boolean], 1.0)
+    integer = np.union1d(boolean, np.asarray(data["int_vars_idx"], dtype=np.int64))
+    return {"c": np.asarray(data["c"], dtype=np.float64), "a_indptr": a.indptr,
+            "a_indices": a.indices, "a_data": a.data, "shape": a.shape, "row_lower": lower,
+            "row_upper": b, "col_lower": col_lower, "col_upper": col_upper,
+            "integer_cols": integer, "options": options,
+            "start": None if start is None else np.asarray(start, dtype=np.float64)}
+
+
+def _stopped_at(request, start, wall):
+    """The reply of a solve stopped by killing its process: the start point, no dual bound."""
+    info = {"objective_function_value": float(request["c"] @ start),
+            "mip_dual_bound": -math.inf, "mip_gap": math.inf, "mip_node_count": 0,
+            "primal_solution_status": _FEASIBLE_POINT, "dual_solution_status": 0,
+            "simplex_iteration_count": 0, "ipm_iteration_count": 0,
+            "crossover_iteration_count": 0, "pdlp_iteration_count": 0,
+            "qp_iteration_count": 0}
+    return {"model_status": "kTimeLimit", "run_time": float(wall), "col_value": start,
+            "row_dual": np.zeros(request["shape"][0]), "info": info}
