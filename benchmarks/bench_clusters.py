@@ -121,13 +121,20 @@ def size_resolved(args):
     # warm-up: numba kernels of the heuristic and cvxpy's first canonicalisation
     size_resolved_clusters(f, candidates=[(0, 12, 0, 12)], min_area_m2=25.0, max_area_m2=300.0,
                            bands=2, time_limit_s=2.0)
-    t0 = time.perf_counter()
-    out = size_resolved_clusters(f, candidates=cands, min_area_m2=25.0, max_area_m2=2500.0,
-                                 bands=args.size_bands, time_limit_s=args.size_time_limit)
-    total = time.perf_counter() - t0
-    t = out.table
+    # one call per window, timed from outside: the answers of a window are all kept (one call
+    # over every window lists a cluster that answers a band in several windows once)
+    per_window = []
+    parts = []
+    for w in cands:
+        t0 = time.perf_counter()
+        parts.append(size_resolved_clusters(f, candidates=[w], min_area_m2=25.0,
+                                            max_area_m2=2500.0, bands=args.size_bands,
+                                            time_limit_s=args.size_time_limit).table)
+        per_window.append(time.perf_counter() - t0)
+    per_window = np.array(per_window)
+    total = float(per_window.sum())
+    t = {k: np.concatenate([part[k] for part in parts]) for k in parts[0]}
     secs = t["seconds"]
-    per_window = np.array([secs[t["candidate"] == i].sum() for i in range(len(cands))])
     print(f"size-resolved program: {len(cands)} windows 40x40 ({len(picked)} around failing "
           f"clusters, {len(cands) - len(picked)} least-stable), bands (cells) {bands}, "
           f"time limit {args.size_time_limit:g} s per band; total {total:.1f} s")
@@ -141,31 +148,72 @@ def size_resolved(args):
               f"{secs[sel].max():.2f} s, proven {int(t['proven'][sel].sum())}/{int(sel.sum())}, "
               f"methods {methods}, worst bound gap {np.nanmax(gaps):.2%}, heuristic = final in "
               f"{int(np.sum(np.isclose(t['heuristic_fs'][sel], t['fs'][sel], rtol=1e-9)))}")
+    stress(args.size_time_limit)
     probability(slope, aspect, wet, res.labels)
 
 
+def stress(limit):
+    """A window where nearly every cell fails (steep wet plane): the time limit must hold.
+
+    HiGHS's root cut rounds do not look at the clock; the solver process is killed after the
+    limit plus its grace, so the band's wall time stays near limit + grace.
+    """
+    from slopescreen.clusters._highs_process import _PROCESS, grace_s
+
+    rows, cols = 40, 30
+    slope = np.full((rows, cols), np.degrees(np.arctan(0.85)))
+    aspect = np.full((rows, cols), 180.0)
+    f = cluster_forces(slope, aspect, 1.0, 1.0, dx=5.0, dy=5.0, cohesion_kpa=2.0,
+                       root_cohesion_kpa=1.0, lateral_root_cohesion_kpa=0.0, friction_deg=35.0,
+                       unit_weight_kn_m3=18.0)
+    kills = _PROCESS.kills
+    t0 = time.perf_counter()
+    out = size_resolved_clusters(f, candidates=[(0, rows, 0, cols)], min_area_m2=25.0,
+                                 max_area_m2=2500.0, bands=1, time_limit_s=limit)
+    dt = time.perf_counter() - t0
+    t = out.table
+    print(f"stress window {rows}x{cols} (FS < 1 on every cell): {dt:.1f} s for one band with a "
+          f"{limit:g} s limit (limit + grace {limit + grace_s(limit):.1f} s); solver processes "
+          f"killed {_PROCESS.kills - kills}; method {t['method'][0]}, FS {t['fs'][0]:.3f}, "
+          f"lower bound {t['lower_bound'][0]:.3f}")
+
+
 def probability(slope, aspect, wet, labels, samples=400):
-    """Monte Carlo probability that each failing cluster fails: seconds for N samples."""
+    """Monte Carlo probability that each failing cluster fails: seconds for N samples.
+
+    Three ways of getting the wetness per sample: held fixed (the reference), the steady
+    M&D state and Iverson's storm head, each recomputed from the drawn parameters.
+    """
     from slopescreen.clusters.probability import cluster_failure_probability
-    from slopescreen.parameters import normal, uniform
+    from slopescreen.hydrology import SteadyRain, StormRain
+    from slopescreen.parameters import lognormal, normal, uniform
     from slopescreen.probability import encode_table
 
     table = encode_table([{"depth_m": uniform(1.0, 1.4), "cohesion_kpa": normal(1.0, 0.3),
                            "root_cohesion_kpa": uniform(0.5, 1.5),
                            "friction_deg": normal(34.0, 2.0), "unit_weight_kn_m3": 18.5,
-                           "conductivity_m_per_day": 2.0}])
+                           "conductivity_m_per_day": lognormal(2.0, 0.5),
+                           "diffusivity_m2_per_s": 5e-5}])
     unit = np.zeros(labels.shape, dtype=np.int64)
-    kw = dict(lateral_root_cohesion_kpa=uniform(2.0, 6.0), dx=5.0, dy=5.0, wetness=wet,
-              samples=samples, seed=7)
+    sca = np.full(labels.shape, 80.0)
+    cases = {"fixed wetness": dict(wetness=wet),
+             "steady rain": dict(rain=SteadyRain(60.0), sca_m=sca),
+             "storm": dict(rain=StormRain(15.0, 12.0, 0.8))}
     small = np.zeros(labels.shape, np.int32)
     small[:3, :3] = 1
-    cluster_failure_probability(small, slope, aspect, unit, table, **kw)  # compilation
-    t0 = time.perf_counter()
-    res = cluster_failure_probability(labels, slope, aspect, unit, table, **kw)
-    dt = time.perf_counter() - t0
     cells = int((labels > 0).sum())
-    print(f"cluster failure probability: {res.ids.size} clusters ({cells} cells) x {samples} "
-          f"samples in {dt:.2f} s; median P_f {np.median(res.p_f):.2f}")
+    ref = None
+    for name, extra in cases.items():
+        kw = dict(lateral_root_cohesion_kpa=uniform(2.0, 6.0), dx=5.0, dy=5.0, samples=samples,
+                  seed=7, **extra)
+        cluster_failure_probability(small, slope, aspect, unit, table, **kw)  # compilation
+        t0 = time.perf_counter()
+        res = cluster_failure_probability(labels, slope, aspect, unit, table, **kw)
+        dt = time.perf_counter() - t0
+        ref = ref or dt
+        print(f"cluster failure probability ({name}): {res.ids.size} clusters ({cells} cells) "
+              f"x {samples} samples in {dt:.2f} s ({dt / ref:.2f}x fixed wetness); median P_f "
+              f"{np.median(res.p_f):.2f}")
 
 
 if __name__ == "__main__":

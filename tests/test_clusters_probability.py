@@ -69,8 +69,10 @@ def test_bad_inputs_raise():
         _call(lab, slope, aspect, t)
     with pytest.raises(InputError, match="either"):
         _call(lab, slope, aspect, t, wetness=0.5, rain=SteadyRain(10.0), sca_m=np.ones((10, 10)))
-    with pytest.raises(InputError, match="SteadyRain"):
+    with pytest.raises(InputError, match="diffusivity_m2_per_s"):   # a storm needs D0
         _call(lab, slope, aspect, t, rain=StormRain(10.0, 8.0, 1.0))
+    with pytest.raises(InputError, match="SteadyRain or a StormRain"):
+        _call(lab, slope, aspect, t, rain=0.5)
     with pytest.raises(InputError, match="sca_m"):
         _call(lab, slope, aspect, t, rain=SteadyRain(10.0))
     with pytest.raises(InputError, match="lateral_root_cohesion_kpa"):

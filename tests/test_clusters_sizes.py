@@ -78,6 +78,21 @@ def test_candidate_windows_from_clusters_and_bound_map():
         candidate_windows((30, 30), labels=np.zeros((3, 3), int))
 
 
+def test_candidate_windows_in_priority_order_skip_covered_clusters():
+    lab = np.zeros((60, 60), np.int32)
+    lab[10:13, 10:13] = 1
+    lab[14:16, 14:16] = 2          # inside the window of cluster 1
+    lab[40:44, 45:49] = 3
+    lab[50:52, 5:8] = 4
+    wins = candidate_windows(lab.shape, labels=lab, window_cells=20, order=[3, 1, 2, 4],
+                             max_clusters=2)
+    assert len(wins) == 2
+    assert wins[0][0] <= 40 and 44 <= wins[0][1] and wins[0][2] <= 45 and 49 <= wins[0][3]
+    assert wins[1][0] <= 10 and 13 <= wins[1][1]        # cluster 1, then the limit
+    every = candidate_windows(lab.shape, labels=lab, window_cells=20, order=[1, 2, 3, 4])
+    assert len(every) == 3                              # cluster 2 is covered by 1's window
+
+
 def test_band_without_any_set_and_bad_inputs():
     f = _forces()
     res = least_stable_in_band(f, (0, 3, 0, 3), min_area_m2=250.0, max_area_m2=500.0)
@@ -97,8 +112,16 @@ def test_size_resolved_table_and_untouched_inputs():
     for a, b in zip(before, (f.driving, f.resisting, f.face_resistance, f.face_thrust)):
         np.testing.assert_array_equal(a, b)
     assert tuple(res.table) == SIZE_COLUMNS
-    assert len(res.masks) == 4 and (res.table["candidate"] == [0, 0, 1, 1]).all()
-    assert (res.table["band"] == [0, 1, 0, 1]).all()
+    # the large band's answer of the inner window is the outer window's cluster: listed once
+    assert len(res.masks) == 3 and (res.table["candidate"] == [0, 0, 1]).all()
+    assert (res.table["band"] == [0, 1, 0]).all()
+    alone = size_resolved_clusters(f, candidates=[(2, 10, 2, 10)], min_area_m2=50.0,
+                                   max_area_m2=600.0, bands=2, time_limit_s=5.0)
+    np.testing.assert_array_equal(alone.grid_mask(1, f.valid.shape),
+                                  res.grid_mask(1, f.valid.shape))
+    keys = {(int(b), res.grid_mask(i, f.valid.shape).tobytes())
+            for i, b in enumerate(res.table["band"])}
+    assert len(keys) == len(res.masks)     # no cluster twice in one band
     assert res.table["proven"].all()
     assert (res.table["area_m2"] == res.table["n_cells"] * 25.0).all()
     assert not res.grid_mask(0, f.valid.shape)[0, 0]   # nodata never joins
@@ -127,7 +150,11 @@ def test_stage_with_size_resolved_search_and_probability():
         np.sqrt(p * (1 - p) / 200))
     sizes = res.size_resolved
     t = sizes.table
-    assert len(t["fs"]) == 2 * len(np.unique(t["candidate"])) >= 4
+    # at most one row per window and band, each (band, cluster) once
+    assert len(np.unique(t["candidate"])) >= 2 and len(t["fs"]) <= 2 * len(np.unique(
+        t["candidate"]))
+    assert len({(int(b), sizes.grid_mask(i, slope.shape).tobytes())
+                for i, b in enumerate(t["band"])}) == len(t["fs"])
     found = t["n_cells"] > 0
     assert np.isfinite(t["probability"][found]).all()
     assert ((t["probability"][found] >= 0) & (t["probability"][found] <= 1)).all()

@@ -14,7 +14,7 @@ from scipy import optimize, stats
 
 from slopescreen.clusters import cluster_factor_of_safety, cluster_forces
 from slopescreen.clusters.probability import cluster_failure_probability, cluster_parameter_draws
-from slopescreen.hydrology import SteadyRain
+from slopescreen.hydrology import SteadyRain, StormRain, storm_pressure_head
 from slopescreen.parameters import lognormal, normal, uniform
 from slopescreen.probability import encode_table
 
@@ -141,6 +141,42 @@ def test_steady_rain_wetness_from_sampled_conductivity():
     median, sd_log = k_star * 1.3, 0.6
     res = _run(lab, slope, aspect, [_unit(conductivity_m_per_day=lognormal(median, sd_log))],
                5.0, 4000, rain=SteadyRain(q), sca_m=sca)
+    exact = stats.norm.cdf((math.log(k_star) - math.log(median)) / sd_log)
+    assert 0.05 < exact < 0.95
+    assert abs(res.p_f[0] - exact) < 4 * math.sqrt(exact * (1 - exact) / 4000)
+
+
+def test_storm_wetness_from_sampled_conductivity():
+    # Iverson (2000): the head at the soil base, highest over time (found here by scipy's bounded
+    # scalar search over time of the public head function, not by the kernel's peak formula),
+    # W = psi / (Z cos^2). The rise scales with I/K (I < K), so FS < 1 <=> K < K* (brentq on
+    # the hand balance) and P(K < K*) of the lognormal comes from scipy.stats.norm.
+    lab, slope, aspect = _grid(5, 4)
+    rain = StormRain(20.0, 24.0, Z)           # mm/h (0.48 m/day), h, water table at the base
+    d0 = 2e-4                                  # m^2/s
+    cos2 = math.cos(math.radians(THETA)) ** 2
+
+    def wetness(k_m_per_day):
+        def minus_head(t):
+            return -float(storm_pressure_head(
+                Z, t, slope_deg=THETA, water_table_depth_m=Z,
+                intensity_m_per_s=rain.intensity_m_per_s,
+                conductivity_m_per_s=k_m_per_day / 86400.0, diffusivity_m2_per_s=d0,
+                duration_s=rain.duration_s))
+        best = optimize.minimize_scalar(minus_head, bounds=(0.0, 40.0 * rain.duration_s),
+                                        method="bounded", options={"xatol": 1e-3})
+        return min(1.0, max(0.0, -best.fun / (Z * cos2)))
+
+    def fs_minus_one(log_k):
+        r, d, _ = _slab_terms(5, 4, wetness(math.exp(log_k)), 20.0)
+        return r / d - 1.0
+
+    lo, hi = math.log(0.5), math.log(50.0)   # W = 1 (head at its cap) at the low end
+    assert fs_minus_one(lo) < 0 < fs_minus_one(hi)
+    k_star = math.exp(optimize.brentq(fs_minus_one, lo, hi, xtol=1e-12))
+    median, sd_log = k_star * 1.4, 0.7
+    units = [_unit(conductivity_m_per_day=lognormal(median, sd_log), diffusivity_m2_per_s=d0)]
+    res = _run(lab, slope, aspect, units, 20.0, 4000, rain=rain)
     exact = stats.norm.cdf((math.log(k_star) - math.log(median)) / sd_log)
     assert 0.05 < exact < 0.95
     assert abs(res.p_f[0] - exact) < 4 * math.sqrt(exact * (1 - exact) / 4000)

@@ -308,7 +308,7 @@ def _stability(scenario: Scenario, inputs: Inputs, slope_deg, sca, w: "_Writer",
                 lateral_root_cohesion_kpa=[u.lateral_root_cohesion_kpa for u in units],
                 samples=(unc or _default_uncertainty()).samples,
                 seed=(unc or _default_uncertainty()).seed,
-                rain=None if case.is_storm else rain, sca_m=None if case.is_storm else a)
+                rain=rain, sca_m=None if case.is_storm else a)
             with stages.stage(f"clusters: {case.name}"):
                 _clusters_for_case(scenario, inputs, case, slope, depth, wet, m, index, units,
                                    w, collector, cluster_unc)

@@ -114,12 +114,16 @@ class Clusters:
     ``min_area_m2``/``max_area_m2`` bound the size-resolved search;
     ``passive_fraction`` is the share of full Rankine passive resistance
     counted at the toe (full passive pressure needs large strains).
+    ``size_windows`` windows around the least-stable failing clusters are
+    searched per rain case (0: no size-resolved search), in ``size_bands``
+    geometric area bands, each with ``size_time_limit_s`` for its
+    mixed-integer solves.
     """
 
     min_area_m2: float
     max_area_m2: float
     passive_fraction: float = 0.5
-    size_windows: int = 0
+    size_windows: int = 5
     size_bands: int = 1
     size_time_limit_s: float = 10.0
 
@@ -489,7 +493,7 @@ def _parse_clusters(table, ctx: Ctx, base: Path):
     passive = get_number(table, "passive_fraction", ctx, default=0.5, low=0.0, high=1.0)
     return {"clusters": Clusters(
         min_area_m2=lo, max_area_m2=hi, passive_fraction=passive,
-        size_windows=get_int(table, "size_windows", ctx, default=0, low=0, high=1000),
+        size_windows=get_int(table, "size_windows", ctx, default=5, low=0, high=1000),
         size_bands=get_int(table, "size_bands", ctx, default=1, low=1, high=8),
         size_time_limit_s=get_number(table, "size_time_limit_s", ctx, default=10.0, low=0.0,
                                      high=3600.0, low_open=True))}

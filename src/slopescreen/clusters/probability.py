@@ -27,12 +27,17 @@ streams n_units + u.
 
 Wetness
 -------
-For a steady rain case the wetness of each cell is recomputed per sample
-from the drawn conductivity and depth, as in the stability stage
-(W = min(1, q a / (K z sin cos))). For any other case (e.g. a storm) a
-wetness raster is passed and held fixed while depth, strength and weight
-vary: the storm's pressure-head response to the drawn parameters is not
-propagated (a stated limitation).
+The wetness of each cell is recomputed per sample from the drawn
+parameters, as in the stability stage's Monte Carlo. Steady rain:
+W = min(1, q a / (K z sin cos)). Storm (Iverson 2000): the pressure head at
+the drawn soil base z where it peaks within the storm's horizon, with the
+drawn K_s and D_0, and W = psi / (z cos^2 theta) clipped to [0, 1], as
+the deterministic storm map converts it. Each cell takes its own peak
+time (the same per-cell envelope as the deterministic storm clusters,
+conservative for a cluster whose cells peak at different times); the slip
+surface is the soil base, as in the stability stage's storm Monte Carlo.
+A fixed wetness raster may be passed instead (held while depth, strength
+and weight vary).
 """
 
 import math
@@ -43,7 +48,7 @@ import numpy as np
 from .. import _checks
 from .._numba import njit, njit_parallel, prange
 from ..errors import InputError
-from ..hydrology import SteadyRain, _wetness_point
+from ..hydrology import SteadyRain, StormRain, _peak_head, _wetness_point
 from ..parameters import (
     Parameter,
     _counter_key,
@@ -62,10 +67,12 @@ from ..probability.monte_carlo import (
     _unit_draws_kernel,
     samples_and_seed,
 )
+from ..probability._inputs import _STEADY, _STORM, _rain_vector
 from ..probability.table import (
     _COH,
     _COND,
     _DEPTH,
+    _DIFF,
     _GAMMA,
     _N_PAR,
     _PHI,
@@ -190,14 +197,24 @@ def cluster_parameter_draws(table, lateral_root_cohesion_kpa, *, samples, seed):
     return np.ascontiguousarray(draws[:, :_N_PAR]), lateral
 
 
+_FIXED = -1  # rain kind: the wetness raster is held
+
+
 @njit
-def _sample_values(out, r, c, s, unit, draws, lateral, slope, sca, wet_fixed, steady, q, down):
+def _sample_values(out, r, c, s, unit, draws, lateral, slope, sca, wet_fixed, rain_kind, rain,
+                   down):
     """Face inputs of cell (r, c) in sample s (see ``_face_force``)."""
     u = unit[r, c]
     z = draws[u, _DEPTH, s]
-    if steady:
+    if rain_kind == _STEADY:
         th = _rad(slope[r, c])
-        w = _wetness_point(q * sca[r, c], draws[u, _COND, s], z, math.sin(th), math.cos(th))
+        w = _wetness_point(rain[0] * sca[r, c], draws[u, _COND, s], z, math.sin(th),
+                           math.cos(th))
+    elif rain_kind == _STORM:
+        cos_t = math.cos(_rad(slope[r, c]))
+        _, psi, _ = _peak_head(z, cos_t, rain[2], rain[0], draws[u, _COND, s] / 86400.0,
+                               draws[u, _DIFF, s], rain[1], rain[3], rain[4])
+        w = min(1.0, max(0.0, psi / (z * cos_t * cos_t)))
     else:
         w = wet_fixed[r, c]
     gamma = draws[u, _GAMMA, s]
@@ -213,8 +230,8 @@ def _sample_values(out, r, c, s, unit, draws, lateral, slope, sca, wet_fixed, st
 
 
 @njit_parallel
-def _cluster_fs_kernel(ptr, cells_r, cells_c, slope, down, unit, valid, sca, wet_fixed, steady,
-                       q, draws, lateral, dx, dy, eta, jaky_full, out):
+def _cluster_fs_kernel(ptr, cells_r, cells_c, slope, down, unit, valid, sca, wet_fixed,
+                       rain_kind, rain, draws, lateral, dx, dy, eta, jaky_full, out):
     rows, cols = unit.shape
     n_c = ptr.size - 1
     samples = out.shape[1]
@@ -241,8 +258,8 @@ def _cluster_fs_kernel(ptr, cells_r, cells_c, slope, down, unit, valid, sca, wet
             for t in range(lo, hi):
                 r = cells_r[t]
                 c = cells_c[t]
-                _sample_values(own, r, c, s, unit, draws, lateral, slope, sca, wet_fixed, steady,
-                               q, down)
+                _sample_values(own, r, c, s, unit, draws, lateral, slope, sca, wet_fixed,
+                               rain_kind, rain, down)
                 d_i, r_i, _ = _basal_forces(slope[r, c], own[0], own[1], own[2], own[3], own[4],
                                             draws[unit[r, c], _ROOT, s], own[6], area)
                 num += r_i
@@ -257,7 +274,7 @@ def _cluster_fs_kernel(ptr, cells_r, cells_c, slope, down, unit, valid, sca, wet
                     has_nb = inside and valid[rr, cc]
                     if has_nb:
                         _sample_values(nb, rr, cc, s, unit, draws, lateral, slope, sca,
-                                       wet_fixed, steady, q, down)
+                                       wet_fixed, rain_kind, rain, down)
                     length = dy if k % 2 == 0 else dx
                     w, h = _face_force(k, length, own, nb, has_nb, eta, jaky_full)
                     num += w
@@ -326,13 +343,15 @@ def cluster_failure_probability(clusters, slope_deg, aspect_deg, unit_index, tab
         Lateral root cohesion per unit (scenario key of the same name), kPa.
     dx, dy : float
         Cell sizes, m.
-    rain : SteadyRain, optional
-        Steady case: wetness recomputed per sample (needs ``sca_m``).
+    rain : SteadyRain or StormRain, optional
+        The rain case: wetness recomputed per sample from the drawn
+        parameters (a steady case needs ``sca_m``; a storm needs the
+        diffusivity in ``table``).
     sca_m : array_like, optional
         Specific catchment area a, m (steady case).
     wetness : array_like, optional
-        Fixed wetness W in [0, 1] (any other case, e.g. a storm's wetness at
-        its least FS). Give either ``rain`` and ``sca_m`` or ``wetness``.
+        Fixed wetness W in [0, 1], held over the samples. Give either
+        ``rain`` or ``wetness``.
     samples : int
         Number of samples N (>= 1).
     seed : int
@@ -354,7 +373,7 @@ def cluster_failure_probability(clusters, slope_deg, aspect_deg, unit_index, tab
     InputError
         Shapes that differ, values out of range, a cluster cell without a
         soil unit or with nodata, both or neither of ``rain`` and
-        ``wetness``.
+        ``wetness``, a storm without diffusivity.
 
     Notes
     -----
@@ -405,7 +424,13 @@ def cluster_failure_probability(clusters, slope_deg, aspect_deg, unit_index, tab
     unit = np.asarray(unit_index)
     if unit.shape != shape or not np.issubdtype(unit.dtype, np.integer):
         raise InputError(f"unit_index: expected an integer array of shape {shape}")
-    encoded, _ = _checked_table(table, False)
+    if (rain is None) == (wetness is None):
+        raise InputError("rain, wetness: give either a rain case (wetness per sample) or a "
+                         "fixed wetness raster, not both or neither")
+    if rain is not None and not isinstance(rain, (SteadyRain, StormRain)):
+        raise InputError(f"rain: expected a SteadyRain or a StormRain, got "
+                         f"{type(rain).__name__}")
+    encoded, _ = _checked_table(table, isinstance(rain, StormRain))
     n_units = encoded.shape[0]
     if unit.size and (unit.min() < -1 or unit.max() >= n_units):
         raise InputError(f"unit_index: values must lie in [-1, {n_units - 1}], got "
@@ -413,30 +438,25 @@ def cluster_failure_probability(clusters, slope_deg, aspect_deg, unit_index, tab
     n, s = samples_and_seed(samples, seed)
     eta = float(_field(passive_fraction, "passive_fraction", 0.0, 1.0, allow_nan=False))
     valid = np.isfinite(slope) & (unit >= 0)
-    if (rain is None) == (wetness is None):
-        raise InputError("rain, wetness: give either a SteadyRain with sca_m (wetness per "
-                         "sample) or a fixed wetness raster, not both or neither")
-    if rain is not None:
-        if not isinstance(rain, SteadyRain):
-            raise InputError(f"rain: only a SteadyRain is re-evaluated per sample, got "
-                             f"{type(rain).__name__}; pass the case's wetness raster instead")
-        if sca_m is None:
-            raise InputError("sca_m: a steady rain case needs the specific catchment area")
-        sca = np.asarray(_field(sca_m, "sca_m", 0.0, math.inf), dtype=np.float64)
-        if sca.shape != shape:
-            raise InputError(f"sca_m: shape {sca.shape} does not match slope_deg {shape}")
-        valid &= np.isfinite(sca)
-        wet = np.zeros((1, 1))
-        steady, q = True, rain.recharge_mm_per_day * 1e-3
-    else:
+    wet = np.zeros((1, 1))
+    sca = np.zeros((1, 1))
+    if rain is None:
         w = np.asarray(_field(wetness, "wetness", 0.0, 1.0), dtype=np.float64)
         try:
             wet = np.ascontiguousarray(np.broadcast_to(w, shape))
         except ValueError:
             raise InputError(f"wetness: shape {w.shape} does not broadcast to {shape}") from None
         valid &= np.isfinite(wet)
-        sca = np.zeros((1, 1))
-        steady, q = False, 0.0
+        rain_kind, rain_vec = _FIXED, np.zeros(5)
+    else:
+        rain_kind, rain_vec = _rain_vector(rain)
+    if rain_kind == _STEADY:
+        if sca_m is None:
+            raise InputError("sca_m: a steady rain case needs the specific catchment area")
+        sca = np.asarray(_field(sca_m, "sca_m", 0.0, math.inf), dtype=np.float64)
+        if sca.shape != shape:
+            raise InputError(f"sca_m: shape {sca.shape} does not match slope_deg {shape}")
+        valid &= np.isfinite(sca)
     ids, ptr, rr, cc = _cluster_cells(clusters, shape)
     if rr.size and not valid[rr, cc].all():
         raise InputError("clusters: some cluster cells have no soil unit or hold nodata "
@@ -446,7 +466,7 @@ def cluster_failure_probability(clusters, slope_deg, aspect_deg, unit_index, tab
     down = downslope_vectors(slope, aspect)
     out = np.empty((ids.size, n), dtype=np.float64)
     _cluster_fs_kernel(ptr, rr, cc, slope, down, unit.astype(np.int64), valid, sca, wet,
-                       steady, q, draws, lateral, dx, dy, eta, bool(jaky_full), out)
+                       rain_kind, rain_vec, draws, lateral, dx, dy, eta, bool(jaky_full), out)
     p = (out < 1.0).mean(axis=1) if ids.size else np.zeros(0)
     se = np.sqrt(p * (1.0 - p) / n)
     med = np.median(out, axis=1) if ids.size else np.zeros(0)

@@ -99,7 +99,8 @@ def _window_around(r, c, size, rows, cols):
     return (r0, r0 + h, c0, c0 + w)
 
 
-def candidate_windows(shape, *, labels=None, windows=None, window_cells=40, n_least=4):
+def candidate_windows(shape, *, labels=None, windows=None, window_cells=40, n_least=4,
+                      order=None, max_clusters=None):
     """Candidate windows for the size-resolved search.
 
     Parameters
@@ -109,7 +110,8 @@ def candidate_windows(shape, *, labels=None, windows=None, window_cells=40, n_le
     labels : numpy.ndarray of int, optional
         Failing clusters (ids 1..n, 0 elsewhere), e.g.
         ``ClusterResult.labels``: one window centred on each cluster's
-        bounding box.
+        bounding box, except for a cluster whose bounding box lies inside a
+        window already chosen (that window was searched and holds it).
     windows : list of WindowResult, optional
         Windows of the FS bound map: the ``n_least`` with the least FS are
         added as they are.
@@ -117,11 +119,17 @@ def candidate_windows(shape, *, labels=None, windows=None, window_cells=40, n_le
         Side of the windows centred on clusters, cells (clipped to the grid).
     n_least : int
         How many of the least-stable bound-map windows to add.
+    order : sequence of int, optional
+        Cluster ids in the order they are taken (e.g. least FS first);
+        default id order.
+    max_clusters : int, optional
+        Most windows centred on clusters (default: one per cluster not
+        already covered).
 
     Returns
     -------
     list of tuple
-        Distinct (r0, r1, c0, c1), clusters first, in order of id, then the
+        Distinct (r0, r1, c0, c1), clusters first, in ``order``, then the
         bound-map windows from least FS up.
 
     Raises
@@ -144,12 +152,21 @@ def candidate_windows(shape, *, labels=None, windows=None, window_cells=40, n_le
         lab = np.asarray(labels)
         if lab.shape != (rows, cols) or not np.issubdtype(lab.dtype, np.integer):
             raise InputError(f"labels: expected an integer array of shape {(rows, cols)}")
-        for sl in ndimage.find_objects(lab):
-            if sl is None:
+        boxes = ndimage.find_objects(lab)
+        ids = range(1, len(boxes) + 1) if order is None else [int(i) for i in order]
+        limit = len(boxes) if max_clusters is None else int(max_clusters)
+        taken = 0
+        for i in ids:
+            sl = boxes[i - 1] if 1 <= i <= len(boxes) else None
+            if sl is None or taken >= limit:
+                continue
+            if any(w[0] <= sl[0].start and sl[0].stop <= w[1] and w[2] <= sl[1].start
+                   and sl[1].stop <= w[3] for w in out):
                 continue
             r = (sl[0].start + sl[0].stop - 1) // 2
             c = (sl[1].start + sl[1].stop - 1) // 2
             out.append(_window_around(r, c, int(window_cells), rows, cols))
+            taken += 1
     if windows is not None:
         ranked = sorted((w for w in windows if np.isfinite(w.least_fs)),
                         key=lambda w: w.least_fs)
@@ -193,7 +210,9 @@ def size_resolved_clusters(forces, *, candidates, min_area_m2, max_area_m2, band
         bound (it sees the lower area limit only); ``proven`` is True when
         ``lower_bound`` meets ``fs`` within a relative 1e-6; ``method`` says
         what settled it ("cut", "relaxation", "milp"; "time_limit" for an
-        unproven answer; "none" when no set exists).
+        unproven answer; "none" when no set exists). A cluster that is the
+        answer of a band in several windows is listed once, with the first
+        window.
 
     Raises
     ------
@@ -242,6 +261,7 @@ def size_resolved_clusters(forces, *, candidates, min_area_m2, max_area_m2, band
                          f"{time_limit_s!r}")
     out = {k: [] for k in SIZE_COLUMNS}
     masks = []
+    found = set()
     for ci, window in enumerate(candidates):
         st = WindowBands(forces, window)
         # heuristics first, so that one model serves every band (built for the largest lam)
@@ -262,6 +282,11 @@ def size_resolved_clusters(forces, *, candidates, min_area_m2, max_area_m2, band
             m = res.mask
             r0, r1, c0, c1 = st.window
             if m.any():
+                rr, cc = np.nonzero(m)
+                key = (bi, (rr + r0).tobytes(), (cc + c0).tobytes())
+                if key in found:
+                    continue  # the same cluster already answers this band in another window
+                found.add(key)
                 n = int(m.sum())
                 depth = st.sub.depth_m[m]
                 length, width = _extent(st.sub, m)

@@ -162,15 +162,16 @@ def failure_clusters(slope_deg, depth_m, wetness, *, dx, dy, aspect_deg, cohesio
     size_n_least : int
         Least-stable bound-map windows added as candidates (needs ``bound``).
     size_max_clusters : int, optional
-        Search only the windows of this many failing clusters, the least
-        stable first (default: every failing cluster).
+        Search at most this many windows centred on failing clusters, the
+        least stable first; a cluster inside a window already chosen adds
+        none (default: every cluster not so covered).
     uncertainty : dict, optional
         Fill the ``probability`` columns by
         :func:`~slopescreen.clusters.probability.cluster_failure_probability`:
         keys ``unit_index``, ``table``, ``lateral_root_cohesion_kpa``,
-        ``samples``, ``seed`` and, for a steady case, ``rain`` and ``sca_m``
-        (wetness recomputed per sample); without ``rain`` the ``wetness``
-        given here is held fixed.
+        ``samples``, ``seed`` and ``rain`` (a SteadyRain with ``sca_m``, or
+        a StormRain: wetness recomputed per sample); without ``rain`` the
+        ``wetness`` given here is held fixed.
 
     Returns
     -------
@@ -250,14 +251,12 @@ def failure_clusters(slope_deg, depth_m, wetness, *, dx, dy, aspect_deg, cohesio
         if min_area_m2 is None or max_area_m2 is None:
             raise InputError("min_area_m2, max_area_m2: the size-resolved search needs the "
                              "scenario's area range ([clusters] min_area_m2, max_area_m2)")
-        chosen = out_labels
-        if size_max_clusters is not None and len(table["id"]) > size_max_clusters:
-            order = np.argsort(table["fs"], kind="stable")[:int(size_max_clusters)]
-            keep_ids = np.zeros(len(table["id"]) + 1, dtype=bool)
-            keep_ids[np.asarray(table["id"])[order]] = True
-            chosen = np.where(keep_ids[out_labels], out_labels, 0).astype(out_labels.dtype)
-        cands = candidate_windows(forces.valid.shape, labels=chosen, windows=windows,
-                                  window_cells=size_window_cells, n_least=size_n_least)
+        # windows around the least-stable failing clusters first; a cluster inside a window
+        # already chosen adds none
+        order = np.asarray(table["id"])[np.argsort(table["fs"], kind="stable")]
+        cands = candidate_windows(forces.valid.shape, labels=out_labels, windows=windows,
+                                  window_cells=size_window_cells, n_least=size_n_least,
+                                  order=order, max_clusters=size_max_clusters)
         sizes = size_resolved_clusters(forces, candidates=cands, min_area_m2=min_area_m2,
                                        max_area_m2=max_area_m2, bands=size_bands,
                                        time_limit_s=size_time_limit_s)

@@ -38,7 +38,13 @@ from .iverson import (
 )
 from .rain import _INF, SteadyRain, StormRain, _positive
 from .steady import _steady_wetness_kernel, _wetness_point, steady_wetness
-from .storm import StormMinimum, _storm_min_point, _storm_minimum_kernel, storm_minimum
+from .storm import (
+    StormMinimum,
+    _peak_head,
+    _storm_min_point,
+    _storm_minimum_kernel,
+    storm_minimum,
+)
 
 __all__ = [
     "SteadyRain",

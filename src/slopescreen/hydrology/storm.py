@@ -23,12 +23,30 @@ from .rain import _INF, _positive
 
 
 @njit
+def _peak_head(z, cos_a, d, intensity, k, d0, duration, steady_ratio, horizon):
+    """(t, psi, capped) at vertical depth z where the head peaks within [0, horizon].
+
+    The head at a depth rises monotonically up to its post-storm peak
+    (:func:`_peak_star`), so it is highest at min(peak, horizon); without
+    rain the initial head holds (t = 0).
+    """
+    t = 0.0
+    if intensity > 0.0 and duration > 0.0:
+        tz = z * z / (4.0 * d0 * cos_a * cos_a)
+        t = _peak_star(duration / tz) * tz
+        if t > horizon:
+            t = horizon
+    psi, capped = _head_point(z, t, cos_a, d, intensity, k, d0, duration, steady_ratio)
+    return t, psi, capped
+
+
+@njit
 def _storm_min_point(soil_depth, n_depths, sin_a, cos_a, d, intensity, k, d0, duration,
                      steady_ratio, horizon, cohesion, tan_phi, gamma, count_suction, want_time):
     """Least FS over Z in {z k/n, k = 1..n} and t in [0, horizon] for one cell.
 
     Returns (fs, depth, time, cap_bound). For each depth the head rises
-    monotonically up to its post-storm peak (:func:`_peak_star`), so the
+    monotonically up to its post-storm peak (:func:`_peak_head`), so the
     least FS over time is at min(peak, horizon). With ``want_time`` and the
     cap bound, the time returned is the first at which the head reaches the
     cap (the FS stays at its least value from then until the head falls).
@@ -39,21 +57,14 @@ def _storm_min_point(soil_depth, n_depths, sin_a, cos_a, d, intensity, k, d0, du
         or math.isnan(tan_phi) or math.isnan(gamma) or math.isnan(steady_ratio)
     ):
         return math.nan, math.nan, math.nan, False
-    cos2 = cos_a * cos_a
-    rains = intensity > 0.0 and duration > 0.0
     best_fs = _INF
     best_z = math.nan
     best_t = math.nan
     best_cap = False
     for j in range(1, n_depths + 1):
         z = soil_depth * j / n_depths
-        tz = z * z / (4.0 * d0 * cos2)
-        t = 0.0
-        if rains:
-            t = _peak_star(duration / tz) * tz
-            if t > horizon:
-                t = horizon
-        psi, capped = _head_point(z, t, cos_a, d, intensity, k, d0, duration, steady_ratio)
+        t, psi, capped = _peak_head(z, cos_a, d, intensity, k, d0, duration, steady_ratio,
+                                    horizon)
         fs = _storm_fs_point(z, psi, sin_a, cos_a, cohesion, tan_phi, gamma, count_suction)
         if fs < best_fs:
             best_fs = fs
