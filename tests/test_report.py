@@ -381,3 +381,20 @@ def test_bad_input_prints_one_line_without_quiet(tmp_path, capsys):
     assert main(["run", str(p)]) == 2
     err = capsys.readouterr().err
     assert len(err.strip().splitlines()) == 1 and "dem.tif" in err
+
+
+def test_size_resolved_answers_are_explained_with_their_proof_status():
+    fs = np.full((4, 5), 0.9, dtype=np.float32)
+    manifest = {"title": "t", "version": "0", "scenario_sha256": "abc", "created": "now",
+                "products": [{"key": "clusters", "rain": None, "path": "clusters.gpkg",
+                              "kind": "vector", "units": "attributes"}],
+                "rain": [{"name": "r", "steady_mm_per_day": 5.0}], "not_run": []}
+    row = {"rain": "r", "band_min_m2": 100.0, "band_max_m2": 400.0, "fs": 0.81,
+           "lower_bound": 0.79, "proven": False, "method": "time_limit", "area_m2": 300.0,
+           "failure_probability": 0.7}
+    rows = [row, row | {"fs": 0.85, "lower_bound": 0.85, "proven": True, "method": "cut"}]
+    ctx = report_html.ReportContext(manifest=manifest, read=lambda e: fs, cell_area_m2=1.0,
+                                    maps=[], tables={"clusters": [], "size_resolved": rows})
+    text = report_html.render_report(ctx)
+    assert "By size:" in text and "(1 of 2 answers)" in text
+    assert "no (time_limit)" in text and "0.790" in text

@@ -151,3 +151,16 @@ def test_several_units_need_a_map(folder):
                           "friction_deg = 30.0\nunit_weight_kn_m3 = 18.0\n"
                           "conductivity_m_per_day = 1.0\n[[rain]]")
     expect_error(folder, text, "soil.map", "2 soil units")
+
+
+def test_clusters_defaults_and_limits(folder):
+    s = load(folder, BASE + "[clusters]\nmin_area_m2 = 50\nmax_area_m2 = 2000\n")
+    c = s.clusters
+    assert (c.passive_fraction, c.size_windows, c.size_bands, c.size_time_limit_s) == (
+        0.5, 5, 1, 10.0)   # the size-resolved search runs unless size_windows = 0
+    assert load(folder, BASE + "[clusters]\nmin_area_m2 = 50\nmax_area_m2 = 2000\n"
+                "size_windows = 0\n").clusters.size_windows == 0
+    expect_error(folder, BASE + "[clusters]\nmin_area_m2 = 50\nmax_area_m2 = 2000\n"
+                 "size_time_limit_s = 0\n", "clusters.size_time_limit_s")
+    expect_error(folder, BASE + "[clusters]\nmin_area_m2 = 500\nmax_area_m2 = 200\n",
+                 "clusters.min_area_m2")

@@ -85,6 +85,15 @@ def _cluster_blocks(ctx: ReportContext, entries):
             "sections of each rain case.", lead="Bound:"))
     sized = ctx.tables.get("size_resolved", [])
     if sized:
+        unproven = sum(1 for r in sized if not r["proven"])
+        blocks.append(para(
+            "In windows of 40 × 40 cells around the least stable failing clusters (and the least "
+            "stable windows of the bound map), the least stable connected cluster was searched "
+            "for in each area band by an exact mixed-integer program. The lower bound is proven "
+            "for every connected cluster of that band inside the window; where the answer is not "
+            "proven, the time limit stopped the search and a less stable cluster of that band may "
+            f"exist between the bound and the answer ({unproven} of {len(sized)} answers).",
+            lead="By size:"))
         blocks.append(table(
             "Least stable connected cluster per searched window and area band",
             ["rain case", "area band", "FS", "proven lower bound", "proven", "area", "P(fail)"],
