@@ -396,5 +396,5 @@ def test_size_resolved_answers_are_explained_with_their_proof_status():
     ctx = report_html.ReportContext(manifest=manifest, read=lambda e: fs, cell_area_m2=1.0,
                                     maps=[], tables={"clusters": [], "size_resolved": rows})
     text = report_html.render_report(ctx)
-    assert "By size:" in text and "(1 of 2 answers)" in text
+    assert "By size:" in text and "Not proven: 1 of 2 answers." in text
     assert "no (time_limit)" in text and "0.790" in text

@@ -92,7 +92,8 @@ def _cluster_blocks(ctx: ReportContext, entries):
             "for in each area band by an exact mixed-integer program. The lower bound is proven "
             "for every connected cluster of that band inside the window; where the answer is not "
             "proven, the time limit stopped the search and a less stable cluster of that band may "
-            f"exist between the bound and the answer ({unproven} of {len(sized)} answers).",
+            f"exist between the bound and the answer. Not proven: {unproven} of {len(sized)} "
+            "answers.",
             lead="By size:"))
         blocks.append(table(
             "Least stable connected cluster per searched window and area band",
