@@ -1,7 +1,7 @@
 """The docs cover every scenario key and every product, map style and report section.
 
 The keys are taken from the validator's own source (every ``check_keys`` call of
-``scenario.py``, read with the standard library's ``ast``) and from the registries of the
+the ``scenario`` package, read with the standard library's ``ast``) and from the registries of the
 report, so a key or product added without docs fails here.
 """
 
@@ -20,14 +20,18 @@ DOCS = ROOT / "docs"
 
 
 def validator_keys():
-    """Every key name accepted by a ``check_keys`` call in scenario.py."""
-    tree = ast.parse(Path(scenario.__file__).read_text(encoding="utf-8"))
+    """Every key name accepted by a ``check_keys`` call in the scenario package."""
     keys = set(scenario.TOP_LEVEL_KEYS) | set(scenario.SECTION_PARSERS) | set(scenario.SOIL_PROPERTIES)
-    for node in ast.walk(tree):
-        if isinstance(node, ast.Call) and getattr(node.func, "id", None) == "check_keys":
-            for arg in node.args[2:3]:
-                if isinstance(arg, ast.Set):
-                    keys |= {e.value for e in arg.elts if isinstance(e, ast.Constant)}
+    calls = 0
+    for source in sorted(Path(scenario.__file__).parent.glob("*.py")):
+        tree = ast.parse(source.read_text(encoding="utf-8"))
+        for node in ast.walk(tree):
+            if isinstance(node, ast.Call) and getattr(node.func, "id", None) == "check_keys":
+                calls += 1
+                for arg in node.args[2:3]:
+                    if isinstance(arg, ast.Set):
+                        keys |= {e.value for e in arg.elts if isinstance(e, ast.Constant)}
+    assert calls >= 8                                          # every section parser was read
     return keys | {"label"}
 
 

@@ -1,0 +1,154 @@
+"""The typed scenario: frozen dataclasses in SI units, built by the section parsers."""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Any
+
+from .fields import slugify
+
+
+ROUTING_METHODS = ("dinf", "mfd", "d8")
+"""Accepted values of ``[routing].method``."""
+
+
+VERTICAL_UNITS = {"metre": 1.0, "foot": 0.3048, "us_survey_foot": 1200.0 / 3937.0}
+"""Accepted values of ``dem_vertical_unit`` and their size in metres."""
+
+
+@dataclass(frozen=True)
+class Routing:
+    """Flow routing options (``[routing]``)."""
+
+    method: str = "dinf"
+    mfd_exponent: float = 1.1
+
+
+@dataclass(frozen=True)
+class SoilUnit:
+    """Soil and vegetation properties of one soil unit (``[soil.units.CODE]``).
+
+    Every property is a :class:`slopescreen.parameters.Parameter` (fixed or a
+    distribution), in the unit its name states.
+    """
+
+    code: int
+    label: str
+    depth_m: Any
+    cohesion_kpa: Any
+    root_cohesion_kpa: Any
+    lateral_root_cohesion_kpa: Any
+    friction_deg: Any
+    unit_weight_kn_m3: Any
+    conductivity_m_per_day: Any
+    diffusivity_m2_per_s: Any
+
+
+@dataclass(frozen=True)
+class Soil:
+    """The ``[soil]`` section: an optional unit map and one table per unit."""
+
+    map: Path | None
+    units: dict[int, SoilUnit]
+
+
+@dataclass(frozen=True)
+class RainCase:
+    """One ``[[rain]]`` case: steady recharge or a storm (Iverson 2000).
+
+    Exactly one of ``steady_mm_per_day`` and ``storm_mm_per_h`` is set.
+    """
+
+    name: str
+    steady_mm_per_day: float | None = None
+    storm_mm_per_h: float | None = None
+    duration_h: float | None = None
+    water_table_depth_m: float | None = None
+
+    @property
+    def is_storm(self) -> bool:
+        """True for a storm case, False for steady recharge."""
+        return self.storm_mm_per_h is not None
+
+    @property
+    def slug(self) -> str:
+        """File-name-safe form of the case name (lower case, ``-`` separated)."""
+        return slugify(self.name)
+
+
+@dataclass(frozen=True)
+class Uncertainty:
+    """``[uncertainty]``: how the probability of failure is estimated."""
+
+    samples: int = 400
+    seed: int = 0
+    correlation: str = "cell"
+    method: str = "monte_carlo"
+
+
+@dataclass(frozen=True)
+class Clusters:
+    """``[clusters]``: multi-cell failure clusters.
+
+    ``min_area_m2``/``max_area_m2`` bound the size-resolved search;
+    ``passive_fraction`` is the share of full Rankine passive resistance
+    counted at the toe (full passive pressure needs large strains).
+    ``size_windows`` windows around the least-stable failing clusters are
+    searched per rain case (0: no size-resolved search), in ``size_bands``
+    geometric area bands, each with ``size_time_limit_s`` for its
+    mixed-integer solves.
+    """
+
+    min_area_m2: float
+    max_area_m2: float
+    passive_fraction: float = 0.5
+    size_windows: int = 5
+    size_bands: int = 1
+    size_time_limit_s: float = 10.0
+
+
+@dataclass(frozen=True)
+class Corridor:
+    """``[corridor]``: road or pipeline centreline and segment length."""
+
+    centreline: Path
+    segment_m: float
+
+
+@dataclass(frozen=True)
+class Inventory:
+    """``[inventory]``: mapped landslides to compare the map with."""
+
+    landslides: Path
+
+
+@dataclass(frozen=True)
+class Scenario:
+    """A validated scenario. Paths are absolute; values are in SI units."""
+
+    path: Path
+    sha256: str
+    title: str
+    dem: Path
+    output: Path
+    dem_vertical_unit: str | None
+    routing: Routing
+    soil: Soil | None = None
+    rain: tuple[RainCase, ...] = ()
+    uncertainty: Uncertainty | None = None
+    clusters: Clusters | None = None
+    corridor: Corridor | None = None
+    inventory: Inventory | None = None
+    extra: dict = field(default_factory=dict)
+
+    def input_files(self) -> list[Path]:
+        """Every input file the scenario names (never written by a run)."""
+        files = [self.path, self.dem]
+        if self.soil is not None and self.soil.map is not None:
+            files.append(self.soil.map)
+        if self.corridor is not None:
+            files.append(self.corridor.centreline)
+        if self.inventory is not None:
+            files.append(self.inventory.landslides)
+        return files

@@ -1,0 +1,173 @@
+"""One parser per optional section of the scenario, registered in :data:`SECTION_PARSERS`."""
+
+from __future__ import annotations
+
+from pathlib import Path
+from typing import Any, Callable
+
+from .fields import (
+    SOIL_PROPERTIES,
+    Ctx,
+    check_keys,
+    get_int,
+    get_number,
+    get_path,
+    get_string,
+    parse_parameter,
+)
+from .model import (
+    ROUTING_METHODS,
+    Clusters,
+    Corridor,
+    Inventory,
+    RainCase,
+    Routing,
+    Soil,
+    SoilUnit,
+    Uncertainty,
+)
+
+
+def _parse_routing(table, ctx: Ctx, base: Path):
+    check_keys(table, ctx, {"method", "mfd_exponent"})
+    method = get_string(table, "method", ctx, default="dinf", choices=ROUTING_METHODS)
+    exponent = get_number(table, "mfd_exponent", ctx, default=1.1, low=0.0, high=20.0, low_open=True)
+    if "mfd_exponent" in table and method != "mfd":
+        raise ctx.child("mfd_exponent").fail('applies only to method = "mfd"')
+    return {"routing": Routing(method=method, mfd_exponent=exponent)}
+
+
+def _parse_soil_unit(table, ctx: Ctx, code: int) -> SoilUnit:
+    allowed = set(SOIL_PROPERTIES) | {"label"}
+    required = [k for k, spec in SOIL_PROPERTIES.items() if spec[5]]
+    check_keys(table, ctx, allowed, required)
+    label = get_string(table, "label", ctx, default=f"unit {code}")
+    values = {}
+    from .. import parameters as P
+
+    for key, (low, high, low_open, wlo, whi, _req, default) in SOIL_PROPERTIES.items():
+        if key in table:
+            values[key] = parse_parameter(table[key], ctx.child(key), low=low, high=high,
+                                          low_open=low_open, warn_low=wlo, warn_high=whi)
+        elif default is not None:
+            values[key] = P.fixed(default)
+        else:
+            values[key] = None
+    return SoilUnit(code=code, label=label, **values)
+
+
+def _parse_soil(table, ctx: Ctx, base: Path):
+    check_keys(table, ctx, {"map", "units"}, required=("units",))
+    soil_map = get_path(table, "map", ctx)
+    units_table = table["units"]
+    uctx = ctx.child("units")
+    if not isinstance(units_table, dict) or not units_table:
+        raise uctx.fail("expected at least one table [soil.units.CODE]")
+    units = {}
+    for key, unit_table in units_table.items():
+        c = uctx.child(key)
+        try:
+            code = int(key)
+        except ValueError:
+            raise c.fail("unit code must be a whole number (the value in the soil map)") from None
+        if not -2**31 <= code < 2**31:
+            raise c.fail("unit code is out of the 32-bit integer range")
+        units[code] = _parse_soil_unit(unit_table, c, code)
+    if soil_map is None and len(units) != 1:
+        raise ctx.child("map").fail(
+            f"{len(units)} soil units are given but no map says where each lies; "
+            "add map = \"soil_units.tif\" or keep exactly one unit")
+    return {"soil": Soil(map=soil_map, units=units)}
+
+
+def _parse_rain(table, ctx: Ctx, base: Path):
+    if not isinstance(table, list) or not table:
+        raise ctx.fail("expected one or more [[rain]] tables")
+    cases = []
+    names = set()
+    for i, item in enumerate(table):
+        c = ctx.child(i)
+        check_keys(item, c, {"name", "steady_mm_per_day", "storm_mm_per_h", "duration_h",
+                             "water_table_depth_m"}, required=("name",))
+        name = get_string(item, "name", c, required=True)
+        if name in names:
+            raise c.child("name").fail(f"rain case name {name!r} is used twice; names must differ")
+        names.add(name)
+        steady = get_number(item, "steady_mm_per_day", c, low=0.0, high=5000.0, low_open=True)
+        storm = get_number(item, "storm_mm_per_h", c, low=0.0, high=1000.0, low_open=True)
+        if steady is None and storm is None:
+            raise c.fail("give steady_mm_per_day (steady recharge) or storm_mm_per_h with "
+                         "duration_h and water_table_depth_m (a storm)")
+        if steady is not None and storm is not None:
+            raise c.child("storm_mm_per_h").fail(
+                "a rain case is either steady (steady_mm_per_day) or a storm (storm_mm_per_h), not both")
+        if steady is not None:
+            for key in ("duration_h", "water_table_depth_m"):
+                if key in item:
+                    raise c.child(key).fail("applies only to a storm case (storm_mm_per_h)")
+            cases.append(RainCase(name=name, steady_mm_per_day=steady))
+        else:
+            duration = get_number(item, "duration_h", c, low=0.0, high=24.0 * 30, low_open=True,
+                                  required=True)
+            table_depth = get_number(item, "water_table_depth_m", c, low=0.0, high=20.0,
+                                     required=True)
+            cases.append(RainCase(name=name, storm_mm_per_h=storm, duration_h=duration,
+                                  water_table_depth_m=table_depth))
+    slugs = [r.slug for r in cases]
+    if len(set(slugs)) != len(slugs):
+        raise ctx.fail("two rain case names give the same file name; make them differ in letters or digits")
+    return {"rain": tuple(cases)}
+
+
+def _parse_uncertainty(table, ctx: Ctx, base: Path):
+    check_keys(table, ctx, {"samples", "seed", "correlation", "method"})
+    return {"uncertainty": Uncertainty(
+        samples=get_int(table, "samples", ctx, default=400, low=1, high=100_000),
+        seed=get_int(table, "seed", ctx, default=0, low=0, high=2**63 - 1),
+        correlation=get_string(table, "correlation", ctx, default="cell", choices=("cell", "unit")),
+        method=get_string(table, "method", ctx, default="monte_carlo",
+                          choices=("monte_carlo", "fosm")),
+    )}
+
+
+def _parse_clusters(table, ctx: Ctx, base: Path):
+    check_keys(table, ctx, {"min_area_m2", "max_area_m2", "passive_fraction", "size_windows",
+                            "size_bands", "size_time_limit_s"},
+               required=("min_area_m2", "max_area_m2"))
+    lo = get_number(table, "min_area_m2", ctx, low=0.0, low_open=True)
+    hi = get_number(table, "max_area_m2", ctx, low=0.0, low_open=True)
+    if lo > hi:
+        raise ctx.child("min_area_m2").fail(f"{lo:g} is greater than max_area_m2 {hi:g}")
+    passive = get_number(table, "passive_fraction", ctx, default=0.5, low=0.0, high=1.0)
+    return {"clusters": Clusters(
+        min_area_m2=lo, max_area_m2=hi, passive_fraction=passive,
+        size_windows=get_int(table, "size_windows", ctx, default=5, low=0, high=1000),
+        size_bands=get_int(table, "size_bands", ctx, default=1, low=1, high=8),
+        size_time_limit_s=get_number(table, "size_time_limit_s", ctx, default=10.0, low=0.0,
+                                     high=3600.0, low_open=True))}
+
+
+def _parse_corridor(table, ctx: Ctx, base: Path):
+    check_keys(table, ctx, {"centreline", "segment_m"}, required=("centreline",))
+    return {"corridor": Corridor(
+        centreline=get_path(table, "centreline", ctx, required=True),
+        segment_m=get_number(table, "segment_m", ctx, default=100.0, low=0.0, low_open=True),
+    )}
+
+
+def _parse_inventory(table, ctx: Ctx, base: Path):
+    check_keys(table, ctx, {"landslides"}, required=("landslides",))
+    return {"inventory": Inventory(landslides=get_path(table, "landslides", ctx, required=True))}
+
+
+SECTION_PARSERS: dict[str, Callable[[Any, Ctx, Path], dict]] = {
+    "routing": _parse_routing,
+    "soil": _parse_soil,
+    "rain": _parse_rain,
+    "uncertainty": _parse_uncertainty,
+    "clusters": _parse_clusters,
+    "corridor": _parse_corridor,
+    "inventory": _parse_inventory,
+}
+"""Parser of each optional section. A parser takes (value, context, scenario
+folder) and returns keyword arguments for :class:`Scenario`."""
