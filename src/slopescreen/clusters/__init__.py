@@ -10,10 +10,11 @@ resistance and, on head faces, an active thrust; METHODS.md section 9)::
 Modules: ``forces`` (force model; its numba kernels in ``_force_kernels``),
 ``cut`` (exact minimisation of g_lam by an s-t minimum cut with integer
 capacities), ``search`` (tiles with halos at lam = 1, Dinkelbach least-stable
-clusters in windows, the FS bound raster), ``heuristic`` (area-price sweep,
-greedy repair and local search for connected sets in an area band), ``band``
-(the exact mixed-integer program per window and area band, with the
-relaxation and MILP bounds; ``_solve`` checks every cvxpy solve), ``sizes``
+clusters in windows, the FS bound raster), ``heuristic`` (area-price sweep
+and greedy repair for connected sets in an area band; its single-cell moves in
+``local_search``), ``band`` (the exact mixed-integer program per window and
+area band, with the relaxation and MILP bounds; ``_solve`` checks every cvxpy
+solve and runs it in the killable child process of ``_highs_process``), ``sizes``
 (candidate windows, area bands, the size-resolved table), ``probability``
 (Monte Carlo probability that a found cluster fails) and ``stage`` (the stage
 function and the cluster table).
