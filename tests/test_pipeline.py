@@ -208,6 +208,12 @@ def test_failing_clusters_product(tmp_path, capsys):
     assert "licensed" in meta["CAUTION"]
     labels, _ = product(manifest, tmp_path / "out", "cluster_labels", "very wet")
     assert set(np.unique(labels[np.isfinite(labels)])) - {0.0} == set(cols["id"].astype(float))
+    # centroid = mean of the cell centres (equal square cells); conftest's grid origin
+    # (500000, 5100000), 5 m cells, north up
+    for k, cid in enumerate(cols["id"]):
+        rr, cc = np.nonzero(labels == cid)
+        assert cols["centroid_easting"][k] == pytest.approx(500000.0 + 5.0 * (cc.mean() + 0.5))
+        assert cols["centroid_northing"][k] == pytest.approx(5100000.0 - 5.0 * (rr.mean() + 0.5))
     assert not any(item["section"] == "clusters" for item in manifest["not_run"])
     # the size-resolved answers: least-stable connected cluster in the area band, with bounds
     sgeoms, scols, _ = read_layer(tmp_path / "out" / entry["path"], layer="size_resolved")

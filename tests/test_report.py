@@ -392,9 +392,11 @@ def test_size_resolved_answers_are_explained_with_their_proof_status():
     row = {"rain": "r", "band_min_m2": 100.0, "band_max_m2": 400.0, "fs": 0.81,
            "lower_bound": 0.79, "proven": False, "method": "time_limit", "area_m2": 300.0,
            "failure_probability": 0.7}
-    rows = [row, row | {"fs": 0.85, "lower_bound": 0.85, "proven": True, "method": "cut"}]
+    rows = [row, row | {"fs": 0.85, "lower_bound": 0.85, "proven": True, "method": "cut",
+                        "centroid_easting": 500012.4, "centroid_northing": 5099987.6}]
     ctx = report_html.ReportContext(manifest=manifest, read=lambda e: fs, cell_area_m2=1.0,
                                     maps=[], tables={"clusters": [], "size_resolved": rows})
     text = report_html.render_report(ctx)
     assert "By size:" in text and "Not proven: 1 of 2 answers." in text
     assert "no (time_limit)" in text and "0.790" in text
+    assert "centroid (E, N)" in text and "500,012, 5,099,988" in text   # "—" where absent

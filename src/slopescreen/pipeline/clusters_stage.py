@@ -11,14 +11,15 @@ from .staging import _Writer
 
 CLUSTER_FIELDS = ("id", "rain", "fs", "failure_probability", "area_m2", "volume_m3",
                   "mean_depth_m", "length_m", "width_m", "n_cells", "min_cell_fs", "lower_bound",
-                  "proven", "in_area_band")
-"""Attributes of the ``clusters`` layer, in order (units in the names; fs is dimensionless)."""
+                  "proven", "in_area_band", "centroid_easting", "centroid_northing")
+"""Attributes of the ``clusters`` layer, in order (units in the names; fs is dimensionless;
+the centroid is in the coordinates of the DEM's CRS)."""
 
 
 SIZE_FIELDS = ("id", "rain", "band_min_m2", "band_max_m2", "fs", "failure_probability",
                "lower_bound", "relaxation_bound", "heuristic_fs", "proven", "method", "area_m2",
                "volume_m3", "mean_depth_m", "length_m", "width_m", "n_cells", "min_cell_fs",
-               "seconds")
+               "seconds", "centroid_easting", "centroid_northing")
 """Attributes of the ``size_resolved`` layer: the least-stable cluster per window and area band."""
 
 
@@ -37,9 +38,13 @@ class _ClusterCollector:
         self.size_records: list[dict] = []
 
     @staticmethod
-    def _row(table, i, fields) -> dict:
+    def _row(table, i, fields, polygon) -> dict:
+        centre = polygon.centroid
         row = {}
         for key in fields:
+            if key in ("centroid_easting", "centroid_northing"):
+                row[key] = float(centre.x if key == "centroid_easting" else centre.y)
+                continue
             value = table[_TABLE_NAMES.get(key, key)][i]
             if key in ("n_cells",):
                 row[key] = int(value)
@@ -60,9 +65,10 @@ class _ClusterCollector:
                 continue
             new_id = len(self.size_records) + 1
             grid_mask = sizes.grid_mask(i, self.grid.shape)
-            self.size_polygons[new_id] = label_polygons(grid_mask.astype(np.int32), self.grid)[1]
+            polygon = label_polygons(grid_mask.astype(np.int32), self.grid)[1]
+            self.size_polygons[new_id] = polygon
             self.size_records.append({"id": new_id, "rain": case_name}
-                                     | self._row(sizes.table, i, SIZE_FIELDS[2:]))
+                                     | self._row(sizes.table, i, SIZE_FIELDS[2:], polygon))
 
     def add(self, case_name: str, result) -> np.ndarray:
         """Add one case's clusters; return its label raster with layer-wide ids."""
@@ -78,7 +84,7 @@ class _ClusterCollector:
         for i in range(n):
             new_id = int(table["id"][i]) + offset
             self.records.append({"id": new_id, "rain": case_name}
-                                | self._row(table, i, CLUSTER_FIELDS[2:]))
+                                | self._row(table, i, CLUSTER_FIELDS[2:], polys[new_id]))
             self.polygons[new_id] = polys[new_id]
         self.next_id += n
         return labels

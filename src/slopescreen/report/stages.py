@@ -38,6 +38,14 @@ class StageSection:
     build: Callable | None = None
 
 
+def _centre(row) -> str:
+    """Centroid of a cluster as "easting, northing" in the CRS's units ("—" when absent)."""
+    x, y = row.get("centroid_easting"), row.get("centroid_northing")
+    if x is None or y is None or x != x or y != y:
+        return "—"
+    return f"{x:,.0f}, {y:,.0f}"
+
+
 def _cluster_blocks(ctx: ReportContext, entries):
     """Failing multi-cell clusters per rain case: counts, sizes and the least stable."""
     rows = ctx.tables.get("clusters", [])
@@ -68,14 +76,14 @@ def _cluster_blocks(ctx: ReportContext, entries):
         blocks.append(table(
             "The least stable clusters (up to 15)",
             ["id", "rain case", "FS", "P(fail)", "area", "volume", "length × width", "cells",
-             "proven", "in the area band"],
+             "proven", "in the area band", "centroid (E, N)"],
             [[str(r["id"]), r["rain"], f"{r['fs']:.3f}",
               "—" if r["failure_probability"] != r["failure_probability"]
               else f"{r['failure_probability']:.2f}", f"{r['area_m2']:,.0f}{NBSP}m²",
               f"{r['volume_m3']:,.0f}{NBSP}m³", f"{r['length_m']:.0f} × {r['width_m']:.0f}{NBSP}m",
               str(r["n_cells"]), "yes" if r["proven"] else "no",
-              "yes" if r["in_area_band"] else "no"] for r in least],
-            [False, False, True, True, True, True, True, True, False, False]))
+              "yes" if r["in_area_band"] else "no", _centre(r)] for r in least],
+            [False, False, True, True, True, True, True, True, False, False, True]))
     bound = [e for e in entries if e["key"] == "cluster_fs_bound"]
     if bound:
         blocks.append(para(
@@ -97,13 +105,14 @@ def _cluster_blocks(ctx: ReportContext, entries):
             lead="By size:"))
         blocks.append(table(
             "Least stable connected cluster per searched window and area band",
-            ["rain case", "area band", "FS", "proven lower bound", "proven", "area", "P(fail)"],
+            ["rain case", "area band", "FS", "proven lower bound", "proven", "area", "P(fail)",
+             "centroid (E, N)"],
             [[r["rain"], f"{r['band_min_m2']:,.0f}–{r['band_max_m2']:,.0f}{NBSP}m²",
               f"{r['fs']:.3f}", f"{r['lower_bound']:.3f}", "yes" if r["proven"] else
               f"no ({r['method']})", f"{r['area_m2']:,.0f}{NBSP}m²",
               "—" if r["failure_probability"] != r["failure_probability"]
-              else f"{r['failure_probability']:.2f}"] for r in sized[:20]],
-            [False, True, True, True, False, True, True]))
+              else f"{r['failure_probability']:.2f}", _centre(r)] for r in sized[:20]],
+            [False, True, True, True, False, True, True, True]))
     return blocks
 
 
