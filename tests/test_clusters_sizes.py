@@ -210,3 +210,17 @@ def test_solver_process_keeps_the_highs_banner_off_stdout(capfd):
     solve_checked(cp.Problem(cp.Minimize(x[0] - 2 * x[1]), [cp.sum(x) <= 1]))
     out, _ = capfd.readouterr()
     assert out == ""
+
+
+def test_solver_process_is_told_where_numpy_and_highspy_live():
+    # the child appends these folders to its path (never prepends: nothing may shadow the
+    # standard library), so it imports the parent's numpy and highspy
+    from pathlib import Path
+
+    import highspy
+
+    from slopescreen.clusters._highs_process import _package_folders
+
+    folders = [Path(f) for f in _package_folders()]
+    assert any((f / "numpy").is_dir() for f in folders)
+    assert Path(highspy.__file__).resolve().parent.parent in [f.resolve() for f in folders]

@@ -10,7 +10,8 @@ clusters package runs here, in one long-lived child process: the parent
 waits at most the limit plus a grace period and kills the child when it
 has not answered (a new child is started for the next solve).
 
-The child is this file run as a script (``python -P _highs_process.py``):
+The child is this file run as a script (``python -P _highs_process.py FOLDER...``,
+the folders the parent found numpy and highspy in):
 it imports only the standard library, numpy and highspy, never the
 package, so it starts in a fraction of a second and cannot re-run a
 user's script (the trap of multiprocessing's spawn). Requests and replies
@@ -69,7 +70,7 @@ class HighsProcess:
         """How many solves were stopped by killing the child (for tests and logs)."""
 
     def _start(self):
-        cmd = [sys.executable, "-P", os.path.abspath(__file__)]
+        cmd = [sys.executable, "-P", os.path.abspath(__file__), *_package_folders()]
         self._proc = subprocess.Popen(cmd, stdin=subprocess.PIPE, stdout=subprocess.PIPE)
 
     def _stop(self, kill=False):
@@ -159,6 +160,25 @@ class HighsProcess:
             return reply
 
 
+def _package_folders():
+    """Folders the parent found numpy and highspy in, for the child to append to its path.
+
+    The child must import the same numpy and highspy as the parent even when the parent
+    found them on a path it added itself (a notebook's sys.path, a --target install).
+    Appended, never prepended, so that nothing there can shadow the standard library.
+    """
+    import importlib.util
+
+    folders = []
+    for name in ("numpy", "highspy"):
+        spec = importlib.util.find_spec(name)
+        if spec is not None and spec.origin:
+            folder = os.path.dirname(os.path.dirname(os.path.abspath(spec.origin)))
+            if folder not in folders:
+                folders.append(folder)
+    return folders
+
+
 _PROCESS = HighsProcess()
 atexit.register(_PROCESS.close)
 
@@ -244,6 +264,9 @@ def _solve_request(request):
 
 def _serve():
     """Answer requests from stdin on a private copy of stdout until stdin closes."""
+    for folder in sys.argv[1:]:
+        if folder not in sys.path:
+            sys.path.append(folder)
     out = os.fdopen(os.dup(1), "wb")
     null = os.open(os.devnull, os.O_WRONLY)
     os.dup2(null, 1)  # HiGHS prints its banner on the C stdout
