@@ -231,3 +231,44 @@ def test_size_resolved_table_rows_are_real_clusters():
         r0, r1, c0, c1 = t["row0"][i], t["row1"][i], t["col0"][i], t["col1"][i]
         assert not mask[:r0].any() and not mask[r1:].any()
         assert not mask[:, :c0].any() and not mask[:, c1:].any()
+
+
+def test_minimum_perimeter_of_cell_sets_by_brute_force():
+    # Harary and Harborth (1976), from memory: k grid cells have at least 2 ceil(2 sqrt k)
+    # margin faces, so at most 2k - ceil(2 sqrt k) inner faces. Checked here over every
+    # subset of a 4 x 4 grid, with equality for some set of each size (a near-square).
+    from slopescreen.clusters.band import _isoperimetric_line
+
+    s = np.arange(1, 2 ** 16)
+    x = ((s[:, None] >> np.arange(16)) & 1).astype(bool).reshape(-1, 4, 4)
+    k = x.reshape(-1, 16).sum(axis=1)
+    inner = (x[:, :, :-1] & x[:, :, 1:]).sum(axis=(1, 2)) + (x[:, :-1, :] & x[:, 1:, :]).sum(
+        axis=(1, 2))
+    most = np.array([inner[k == j].max() for j in range(1, 17)])
+    limit = np.array([2 * j - math.ceil(2 * math.sqrt(j) - 1e-12) for j in range(1, 17)])
+    np.testing.assert_array_equal(most, limit)
+    # the line of the cut lies below ceil(2 sqrt k) on every whole k of a band
+    for kmin, kmax in ((1, 1), (1, 16), (3, 7), (7, 24), (25, 87), (88, 312), (9, 9)):
+        a, b = _isoperimetric_line(kmin, kmax)
+        ks = np.arange(kmin, kmax + 1)
+        assert np.all(a + b * ks <= np.ceil(2 * np.sqrt(ks) - 1e-12) + 1e-9)
+
+
+@pytest.mark.parametrize("seed, realistic", [(1, True), (2, False), (5, True)])
+def test_perimeter_bound_is_valid_and_sees_the_upper_limit(subsets_4x5, seed, realistic):
+    # brute force over every connected subset: the perimeter-strengthened relaxation stays a
+    # lower bound of each band's optimum, is never below the plain relaxation, and (unlike
+    # it) rises as the upper limit falls
+    f = _instance(seed, 4, 5, realistic)
+    x, fs = _brute(f, subsets_4x5)
+    size = x.sum(axis=1)
+    model = WindowBands(f, (0, 4, 0, 5)).ensure_model(float(fs.max()))
+    strengthened = []
+    for kmin, kmax in ((1, 2), (1, 4), (2, 6), (3, 9), (1, 20)):
+        best = float(fs[(size >= kmin) & (size <= kmax)].min())
+        plain = relaxation_bound(model, kmin, kmax)
+        strong = relaxation_bound(model, kmin, kmax, perimeter=True)
+        assert plain <= strong * (1 + 1e-7) and strong <= best * (1 + 1e-7)
+        if kmin == 1:
+            strengthened.append(strong)
+    assert strengthened[0] > strengthened[-1] * (1 + 1e-3)    # kmax = 2 vs 20 cells
