@@ -224,3 +224,25 @@ def test_solver_process_is_told_where_numpy_and_highspy_live():
     folders = [Path(f) for f in _package_folders()]
     assert any((f / "numpy").is_dir() for f in folders)
     assert Path(highspy.__file__).resolve().parent.parent in [f.resolve() for f in folders]
+
+
+def test_solver_process_is_stopped_when_the_wait_is_interrupted(monkeypatch):
+    # Ctrl-C while HiGHS works in the child: the child is killed, not left solving alone
+    import queue as queue_module
+
+    from slopescreen.clusters import _highs_process
+
+    prob, _, _, _ = _knapsack()
+    solve_checked(prob, time_limit_s=0.3)            # a running child
+    child = _highs_process._PROCESS._proc
+    assert child is not None and child.poll() is None
+
+    def interrupted(self, block=True, timeout=None):
+        raise KeyboardInterrupt
+
+    monkeypatch.setattr(queue_module.Queue, "get", interrupted)
+    with pytest.raises(KeyboardInterrupt):
+        solve_checked(prob, time_limit_s=30.0)
+    monkeypatch.undo()
+    assert child.poll() is not None                    # the child has ended
+    assert solve_checked(prob, time_limit_s=0.3).status in ("optimal", "time_limit")

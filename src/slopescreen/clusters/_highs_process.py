@@ -150,6 +150,9 @@ class HighsProcess:
                 self._stop(kill=True)
                 reader.join()
                 return None
+            except BaseException:  # Ctrl-C while waiting: the solve must not go on alone
+                self._stop(kill=True)
+                raise
             if isinstance(reply, BaseException):
                 code = proc.poll()
                 self._stop(kill=True)
