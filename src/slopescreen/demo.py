@@ -398,6 +398,10 @@ seed = 7
 [clusters]
 min_area_m2 = 100
 max_area_m2 = 5000
+# least-stable connected cluster per area band, around the 5 least stable
+# failing clusters; size_bands = 3 splits the range (slower: see docs)
+size_windows = 5
+size_bands = 1
 
 [corridor]
 centreline = "verrow_road.geojson"
