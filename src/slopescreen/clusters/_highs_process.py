@@ -26,6 +26,7 @@ The problem is passed as plain arrays (the standard form HiGHS takes)::
 """
 
 import atexit
+import logging
 import os
 import pickle
 import queue
@@ -35,6 +36,8 @@ import threading
 import time
 
 __all__ = ["GRACE_S", "HighsProcess", "grace_s", "solve_in_child"]
+
+log = logging.getLogger("slopescreen.clusters")
 
 GRACE_S = 1.0
 """Fixed part of the grace period after a time limit, s (see :func:`grace_s`)."""
@@ -147,6 +150,8 @@ class HighsProcess:
                 reply = replies.get(timeout=wait_s)
             except queue.Empty:
                 self.kills += 1
+                log.info("HiGHS had not answered %.1f s after its request; solver process "
+                         "stopped (the answer is the best set held before this solve)", wait_s)
                 self._stop(kill=True)
                 reader.join()
                 return None
