@@ -21,6 +21,18 @@ _DC = (1, 0, -1, 0)
 
 
 @njit
+def _touches(mask, r, c):
+    """True when a 4-neighbour of cell (r, c) is in the set."""
+    h, w = mask.shape
+    for k in range(4):
+        rr = r + _DR[k]
+        cc = c + _DC[k]
+        if 0 <= rr < h and 0 <= cc < w and mask[rr, cc]:
+            return True
+    return False
+
+
+@njit
 def _ratio(n, d):
     if d <= 0.0:
         return math.inf
@@ -124,13 +136,7 @@ def _best_swap(cn, cd, pn, pd, valid, mask, n, d, art, disc, low, parent, it, st
         for c in range(w):
             if mask[r, c] or not valid[r, c]:
                 continue
-            touch = False
-            for k in range(4):
-                rr = r + _DR[k]
-                cc = c + _DC[k]
-                if 0 <= rr < h and 0 <= cc < w and mask[rr, cc]:
-                    touch = True
-            if not touch:
+            if not _touches(mask, r, c):
                 continue
             an, ad = _toggle_delta(cn, cd, pn, pd, mask, r, c)
             mask[r, c] = True
@@ -217,13 +223,7 @@ def _local_search_kernel(cn, cd, pn, pd, valid, mask, kmin, kmax, max_moves):
                         bn = n - dn
                         bd = d - dd
                 elif valid[r, c] and can_add and not must_remove:
-                    touch = False
-                    for k in range(4):
-                        rr = r + _DR[k]
-                        cc = c + _DC[k]
-                        if 0 <= rr < h and 0 <= cc < w and mask[rr, cc]:
-                            touch = True
-                    if not touch:
+                    if not _touches(mask, r, c):
                         continue
                     dn, dd = _toggle_delta(cn, cd, pn, pd, mask, r, c)
                     q = _ratio(n + dn, d + dd)
