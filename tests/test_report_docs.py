@@ -12,7 +12,7 @@ from pathlib import Path
 import pytest
 
 from slopescreen import scenario
-from slopescreen.report import html as report_html
+from slopescreen import products
 from slopescreen.report import maps
 
 ROOT = Path(__file__).resolve().parents[1]
@@ -45,11 +45,24 @@ def test_scenario_format_documents_every_key():
 
 def test_outputs_documents_every_product_and_map_style():
     text = (DOCS / "outputs.md").read_text(encoding="utf-8")
-    keys = set(maps.STYLES) | set(report_html.PRODUCT_TITLES) | {"storm_flags", "critical_recharge_class"}
+    keys = set(products.REGISTRY) | set(maps.STYLES)
     missing = sorted(k for k in keys if f"`{k}`" not in text)
     assert missing == []
     for field in ("not_run", "environment", "stage_seconds", "inputs_sha256"):
         assert f"`{field}`" in text
+
+
+def test_outputs_table_agrees_with_the_registry():
+    # every raster row of docs/outputs.md states the registry's units and per-rain flag
+    text = (DOCS / "outputs.md").read_text(encoding="utf-8")
+    rows = {m.group(1): (m.group(2).strip(), m.group(3).strip())
+            for m in re.finditer(r"^\| `(\w+)` \| ([^|]+) \| ([^|]+) \|", text, re.M)}
+    rasters = [p for p in products.PRODUCTS if p.kind == "raster"]
+    assert len(rasters) >= 12
+    for p in rasters:
+        per_rain, units = rows[p.key]
+        assert units == p.units, p.key
+        assert (per_rain != "no") == p.per_rain, p.key
 
 
 @pytest.mark.parametrize("doc", ["scenario-format.md", "outputs.md", "methods.md", "cautions.md"])

@@ -21,6 +21,7 @@ import rasterio
 from rasterio.errors import RasterioIOError
 from rasterio.crs import CRS
 from rasterio.transform import Affine
+from rasterio.windows import Window
 
 from .errors import InputWarning, RasterError
 
@@ -31,6 +32,9 @@ NODATA = np.float32(-9999.0)
 
 CODE_NODATA = 0
 """Nodata value of uint8 class bands (class 0 means 'no data')."""
+
+BLOCK = 256
+"""Tile size of every product; products are written one row of tiles at a time."""
 
 _FOOT = 0.3048
 _US_SURVEY_FOOT = 1200.0 / 3937.0
@@ -254,17 +258,14 @@ def write_raster(path, array, grid: Grid, *, description: str, units: str, cauti
     if array.shape != tuple(grid.shape):
         raise ValueError(f"{path.name}: array shape {array.shape} does not match grid {grid.shape}")
     if array.dtype == np.uint8:
-        data = np.where(grid.valid, array, CODE_NODATA).astype(np.uint8)
         dtype, nodata, predictor = "uint8", CODE_NODATA, 2
     else:
-        data = np.asarray(array, dtype=np.float32)
-        data = np.where(grid.valid & np.isfinite(data), data, NODATA).astype(np.float32)
         dtype, nodata, predictor = "float32", float(NODATA), 3
     profile = {
         "driver": "GTiff", "height": grid.shape[0], "width": grid.shape[1], "count": 1,
         "dtype": dtype, "crs": grid.crs, "transform": grid.transform, "nodata": nodata,
-        "tiled": True, "blockxsize": 256, "blockysize": 256, "compress": "deflate",
-        "predictor": predictor, "BIGTIFF": "IF_SAFER",
+        "tiled": True, "blockxsize": BLOCK, "blockysize": BLOCK, "compress": "deflate",
+        "predictor": predictor, "BIGTIFF": "IF_SAFER", "NUM_THREADS": "ALL_CPUS",
     }
     tmp = path.with_name(f".{path.name}.partial")
     try:
@@ -272,9 +273,12 @@ def write_raster(path, array, grid: Grid, *, description: str, units: str, cauti
             # GDAL warns when the tile is larger than a small raster; harmless.
             warnings.simplefilter("ignore", rasterio.errors.NotGeoreferencedWarning)
             with rasterio.open(tmp, "w", **profile) as dst:
-                if dst.shape != data.shape:
-                    raise ValueError(f"{path.name}: writer shape {dst.shape} != data {data.shape}")
-                dst.write(data, 1)
+                if dst.shape != array.shape:
+                    raise ValueError(f"{path.name}: writer shape {dst.shape} != data {array.shape}")
+                for r0 in range(0, grid.shape[0], BLOCK):  # one row of tiles at a time
+                    rows = slice(r0, min(r0 + BLOCK, grid.shape[0]))
+                    dst.write(_encoded(array[rows], grid.valid[rows], dtype, nodata), 1,
+                              window=Window(0, r0, grid.shape[1], rows.stop - r0))
                 dst.set_band_description(1, description)
                 dst.update_tags(1, units=units)
                 dst.update_tags(CAUTION=caution, units=units, **(tags or {}))
@@ -283,6 +287,24 @@ def write_raster(path, array, grid: Grid, *, description: str, units: str, cauti
         if tmp.exists():
             tmp.unlink()
     return path
+
+
+def _encoded(block, valid, dtype, nodata):
+    """One strip of a product with nodata set outside the valid cells (and at NaN)."""
+    if dtype == "uint8":
+        return np.where(valid, block, nodata).astype(np.uint8)
+    data = block.astype(np.float32, copy=False)
+    return np.where(valid & np.isfinite(data), data, np.float32(nodata)).astype(np.float32)
+
+
+def read_band(path) -> np.ndarray:
+    """Read band 1 of a product as float32 with NaN for nodata (no tags; memory-lean)."""
+    with rasterio.open(path) as src:
+        data = src.read(1, out_dtype=np.float32)
+        nodata = src.nodata
+    if nodata is not None and not np.isnan(nodata):
+        data[data == np.float32(nodata)] = np.nan
+    return data
 
 
 def read_back(path) -> tuple[np.ndarray, dict]:

@@ -27,15 +27,13 @@ class Product:
                 "units": self.units}
 
 
-@dataclass
+@dataclass(frozen=True)
 class Inputs:
-    """Everything read from disk for a run, checked."""
+    """Everything read from disk for a run, checked (never changed after reading)."""
 
     z: np.ndarray
     grid: Grid
     soil_codes: np.ndarray | None = None
-    area_m2: np.ndarray | None = None  # upslope area, filled in by the routing stage
-    aspect_deg: np.ndarray | None = None  # downslope azimuth, filled in by the slope stage
 
 
 @dataclass
@@ -59,8 +57,8 @@ def read_inputs(scenario: Scenario) -> Inputs:
     vunit = None if scenario.dem_vertical_unit is None else VERTICAL_UNITS[scenario.dem_vertical_unit]
     z, grid = read_dem(scenario.dem, vertical_unit_m=vunit)
     warn_unusual_cells(grid)
-    inputs = Inputs(z=z, grid=grid)
     soil = scenario.soil
+    soil_codes = None
     if soil is not None and soil.map is not None:
         codes, has_code = read_codes(soil.map, grid, name="soil map")
         used = np.unique(codes[grid.valid & has_code])
@@ -71,8 +69,8 @@ def read_inputs(scenario: Scenario) -> Inputs:
                 f"table [soil.units.CODE] in {scenario.path.name}; add a table for each code")
         if not (grid.valid & has_code).any():
             raise InputError(f"{soil.map.name}: soil map has no code on any valid DEM cell")
-        inputs.soil_codes = np.where(grid.valid & has_code, codes, -1)
-    return inputs
+        soil_codes = np.where(grid.valid & has_code, codes, -1).astype(_code_dtype(codes))
+    return Inputs(z=z, grid=grid, soil_codes=soil_codes)
 
 
 def check(scenario: Scenario) -> Inputs:
@@ -80,34 +78,15 @@ def check(scenario: Scenario) -> Inputs:
     return read_inputs(scenario)
 
 
-def unit_index_map(scenario: Scenario, inputs: Inputs) -> tuple[np.ndarray, list]:
-    """Map each valid cell to the row of its soil unit (units sorted by code).
+def soil_of(scenario: Scenario, inputs: Inputs):
+    """The run's :class:`~slopescreen.soil.SoilFields`, built once from the scenario and the map."""
+    from ..soil import soil_fields
 
-    Returns
-    -------
-    index : numpy.ndarray of int32
-        Row in ``units`` per cell; -1 where nodata or without a soil code.
-    units : list of SoilUnit
-        Units sorted by code.
-    """
     units = [scenario.soil.units[c] for c in sorted(scenario.soil.units)]
-    valid = inputs.grid.valid
-    if inputs.soil_codes is None:
-        return np.where(valid, 0, -1).astype(np.int32), units
-    codes = np.array(sorted(scenario.soil.units), dtype=np.int64)
-    idx = np.searchsorted(codes, inputs.soil_codes)
-    idx = np.clip(idx, 0, len(codes) - 1)
-    ok = valid & (inputs.soil_codes >= 0) & (codes[idx] == inputs.soil_codes)
-    return np.where(ok, idx, -1).astype(np.int32), units
+    return soil_fields(units, inputs.soil_codes, inputs.grid.valid)
 
 
-def _central_maps(index: np.ndarray, units) -> dict:
-    """Per-cell central (median) value of each soil property; NaN where no unit."""
-    from ..probability import PARAMETER_ORDER
-
-    maps = {}
-    for key in PARAMETER_ORDER:
-        values = np.array([np.nan if getattr(u, key) is None else getattr(u, key).central()
-                           for u in units] + [np.nan], dtype=np.float64)
-        maps[key] = values[index].astype(np.float32)  # index -1 picks the NaN at the end
-    return maps
+def _code_dtype(codes: np.ndarray):
+    """int32 when every code fits (a soil map rarely needs more), else int64."""
+    info = np.iinfo(np.int32)
+    return np.int32 if codes.size == 0 or (codes.min() >= info.min and codes.max() <= info.max) else np.int64

@@ -1,4 +1,17 @@
-"""The one place that knows the order of the stages: :func:`run` and what it plans."""
+"""The one place that knows the order of the stages.
+
+:func:`plan` lists the stages a scenario asks for, in order, each with the
+results it reads; :func:`run` runs them one way: each stage takes the
+results it names and returns a frozen result, whose products the writer
+writes at once. A result is let go as soon as no later stage reads it. The
+progress bar (:func:`planned_stages`) and the report's notes on configured
+stages that did not run (:func:`stages_not_run`) are derived from the plan.
+
+Products are written into a hidden staging folder inside the output folder
+and moved into place only when every stage has succeeded, with
+``manifest.json`` last: a failed run leaves no half-written product, and
+the inputs are only ever read.
+"""
 
 from __future__ import annotations
 
@@ -6,17 +19,160 @@ import datetime as _dt
 import logging
 import shutil
 import uuid
+from dataclasses import dataclass, field
+from types import MappingProxyType
+from typing import Callable
 
 from .. import __version__
 from ..scenario import Scenario
+from .clusters_stage import cluster_layers_stage, clusters_stage
 from .inputs import RunResult, read_inputs
-from .records import _manifest, _run_record
-from .report_stage import _report
-from .stability_stage import _stability, _varies
+from .records import manifest as manifest_of
+from .records import run_record
+from .report_stage import maps_stage, report_stage
+from .stability_stage import (
+    effective_uncertainty, probability_stage, recharge_stage, soil_stage, stability_stage,
+)
 from .staging import _commit, _Stages, _Writer
-from .terrain_stage import _terrain
+from .terrain_stage import conditioning_stage, routing_stage, slope_stage
 
 log = logging.getLogger("slopescreen.pipeline")
+
+WRITTEN = ("written",)
+"""A stage input that is what the writer has written so far (not a stage result)."""
+MANIFEST = ("manifest",)
+"""A stage input that is the manifest of the run so far (not a stage result)."""
+
+
+@dataclass(frozen=True)
+class Many:
+    """A stage input that is a tuple of several earlier results."""
+
+    keys: tuple
+
+
+@dataclass(frozen=True)
+class Stage:
+    """One stage of a run.
+
+    Attributes
+    ----------
+    name : str
+        What the progress bar and the provenance table show.
+    key : tuple
+        Name of its result, for the stages that read it.
+    fn : callable
+        ``fn(scenario, inputs, **needs, [case=...]) -> result``.
+    needs : mapping
+        Keyword of ``fn`` -> key of an earlier result (or :class:`Many`).
+    case : RainCase or None
+        The rain case of a per-rain stage (passed as ``case=``).
+    section : str or None
+        Optional scenario section the stage belongs to.
+    show : bool
+        Shown on the progress bar.
+    """
+
+    name: str
+    key: tuple
+    fn: Callable
+    needs: MappingProxyType = field(default_factory=lambda: MappingProxyType({}))
+    case: object = None
+    section: str | None = None
+    show: bool = True
+
+
+def _stage(name, key, fn, needs=None, **kw) -> Stage:
+    return Stage(name, key, fn, MappingProxyType(dict(needs or {})), **kw)
+
+
+OPTIONAL_SECTIONS = ("clusters", "runout", "corridor", "inventory")
+"""Optional scenario sections that turn a stage on, in report order."""
+
+BUILT_SECTIONS = ("clusters",)
+"""Optional sections whose stage exists in this version."""
+
+
+def plan(scenario: Scenario) -> tuple[Stage, ...]:
+    """The stages a run of ``scenario`` runs, in order, with what each reads."""
+    slope, soil = ("slope",), ("soil",)
+    stages = [
+        _stage("slope", slope, slope_stage),
+        _stage("conditioning", ("conditioned",), conditioning_stage),
+        _stage("routing", ("routing",), routing_stage, {"conditioned": ("conditioned",)}),
+    ]
+    has_clusters = False
+    if scenario.soil is not None:
+        stages += [
+            _stage("soil units", soil, soil_stage, {"slope": slope, "routing": ("routing",)},
+                   show=False),
+            _stage("critical recharge", ("recharge",), recharge_stage, {"cells": soil}),
+        ]
+        sampled = effective_uncertainty(scenario) is not None
+        has_clusters = scenario.clusters is not None
+        earlier = []
+        for case in scenario.rain:
+            stability = ("stability", case.name)
+            stages.append(_stage(f"stability: {case.name}", stability, stability_stage,
+                                 {"cells": soil}, case=case))
+            if has_clusters:
+                key = ("clusters", case.name)
+                stages.append(_stage(f"clusters: {case.name}", key, clusters_stage,
+                                     {"cells": soil, "slope": slope, "stability": stability,
+                                      "earlier": Many(tuple(earlier))},
+                                     case=case, section="clusters"))
+                earlier.append(key)
+            if sampled:
+                stages.append(_stage(f"probability of failure: {case.name}",
+                                     ("probability", case.name), probability_stage,
+                                     {"cells": soil}, case=case))
+        if has_clusters:
+            stages.append(_stage("write clusters", ("cluster layers",), cluster_layers_stage,
+                                 {"cases": Many(tuple(earlier))}, section="clusters"))
+    report_needs = {"written": WRITTEN, "manifest": MANIFEST, "maps": ("maps",), "slope": slope}
+    if scenario.soil is not None:
+        report_needs["soil"] = soil
+    if has_clusters:
+        report_needs["clusters"] = ("cluster layers",)
+    stages += [_stage("maps", ("maps",), maps_stage, {"written": WRITTEN}),
+               _stage("report", ("report",), report_stage, report_needs)]
+    return tuple(stages)
+
+
+def planned_stages(scenario: Scenario) -> list[str]:
+    """Names of the stages a run of ``scenario`` shows, in order (for progress bars)."""
+    return [s.name for s in plan(scenario) if s.show]
+
+
+def stages_not_run(scenario: Scenario) -> list[dict]:
+    """Configured optional sections with no stage in the plan, and why.
+
+    Returns
+    -------
+    list of dict
+        ``{"section": name, "reason": text}``.
+    """
+    planned = {s.section for s in plan(scenario)}
+    out = []
+    for section in OPTIONAL_SECTIONS:
+        if getattr(scenario, section, None) is None or section in planned:
+            continue
+        if section not in BUILT_SECTIONS:
+            reason = f"the {section} stage is not built in slopescreen {__version__}"
+        else:
+            reason = f"the {section} stage needs a [soil] section and at least one [[rain]] case"
+        out.append({"section": section, "reason": reason})
+    return out
+
+
+def _last_uses(stages) -> dict:
+    """Index of the last stage that reads each result."""
+    last = {}
+    for i, s in enumerate(stages):
+        for need in s.needs.values():
+            for key in (need.keys if isinstance(need, Many) else (need,)):
+                last[key] = i
+    return last
 
 
 def run(scenario: Scenario, *, progress=None) -> RunResult:
@@ -41,89 +197,66 @@ def run(scenario: Scenario, *, progress=None) -> RunResult:
     InputError
         Bad input; nothing is written.
     """
-    stages = _Stages(progress)
+    from ..report.maps import display_step
+
+    timer = _Stages(progress)
     started = _dt.datetime.now(_dt.timezone.utc)
-    with stages.stage("read inputs", show=False):  # silent: bad input must print one line only
+    with timer.stage("read inputs", show=False):  # silent: bad input must print one line only
         inputs = read_inputs(scenario)
-    z, grid = inputs.z, inputs.grid
+    grid = inputs.grid
+    stages = plan(scenario)
+    not_run = stages_not_run(scenario)
     out = scenario.output
     out.mkdir(parents=True, exist_ok=True)
     staging = out / f".slopescreen-partial-{uuid.uuid4().hex[:8]}"
     staging.mkdir()
-    _progress_call(progress, "begin", planned_stages(scenario))
+    _progress_call(progress, "begin", [s.name for s in stages if s.show])
+    for item in not_run:
+        log.warning("[%s] is configured, but %s; skipped (the report says so)",
+                    item["section"], item["reason"])
     try:
-        w = _Writer(staging, grid)
-        slope_deg, sca = _terrain(z, grid, scenario, stages, inputs)
-        with stages.stage("write terrain products"):
-            w.raster("slope", slope_deg, units="degrees",
-                     description="Slope of the original DEM (Horn 1981), degrees")
-            w.raster("specific_catchment_area", sca, units="m",
-                     description=f"Specific catchment area a = A/b, m ({scenario.routing.method})")
-        if scenario.soil is not None:
-            _stability(scenario, inputs, slope_deg, sca, w, stages)
-        not_run = stages_not_run(scenario, w.products)
-        for item in not_run:
-            log.warning("[%s] is configured, but %s; skipped (the report says so)",
-                        item["section"], item["reason"])
-        _report(scenario, inputs, slope_deg, w, stages, started, not_run)
-        manifest = _manifest(scenario, grid, w.products, stages.timings, started) | _run_record(not_run)
-        _commit(staging, out, w.products, manifest,
+        writer = _Writer(staging, grid, preview_step=display_step(grid.shape))
+        last = _last_uses(stages)
+        results: dict = {}
+
+        def manifest_now() -> dict:
+            return (manifest_of(scenario, grid, writer.products, timer.timings, started)
+                    | run_record(not_run))
+
+        def value(need):
+            if need == WRITTEN:
+                return writer.snapshot()
+            if need == MANIFEST:
+                return manifest_now()
+            if isinstance(need, Many):
+                return tuple(results[k] for k in need.keys)
+            return results[need]
+
+        for i, st in enumerate(stages):
+            kwargs = {name: value(need) for name, need in st.needs.items()}
+            if st.case is not None:
+                kwargs["case"] = st.case
+            with timer.stage(st.name, show=st.show):
+                result = st.fn(scenario, inputs, **kwargs)
+            with timer.stage("write products", show=False):
+                for emit in result.products():
+                    writer.write(emit)
+            if last.get(st.key, -1) > i:
+                results[st.key] = result.kept() if hasattr(result, "kept") else result
+            del result
+            for key in [k for k in results if last.get(k, -1) <= i]:
+                del results[key]
+        manifest = manifest_now()
+        _commit(staging, out, writer.products, manifest,
                 protected={p.resolve() for p in scenario.input_files()})
     finally:
         shutil.rmtree(staging, ignore_errors=True)
         _progress_call(progress, "end")
-    return RunResult(output=out, manifest=manifest, products=w.products,
-                     timings_s=dict(stages.timings))
-
-
-STAGE_PRODUCTS = {
-    "clusters": ("cluster_fs_bound", "clusters", "cluster_labels"),
-    "corridor": ("corridor_segments",),
-    "inventory": ("inventory_scores",),
-}
-"""Optional scenario sections and the product keys that show their stage ran."""
-
-
-def planned_stages(scenario: Scenario) -> list[str]:
-    """Names of the stages a run of ``scenario`` will show, in order (for progress bars).
-
-    A stage added to :func:`run` adds its name here.
-    """
-    names = ["slope", "conditioning", "routing", "write terrain products"]
-    if scenario.soil is not None:
-        units = [scenario.soil.units[c] for c in sorted(scenario.soil.units)]
-        sampled = scenario.uncertainty is not None or _varies(units)
-        names.append("critical recharge")
-        for case in scenario.rain:
-            names.append(f"stability: {case.name}")
-            if scenario.clusters is not None:
-                names.append(f"clusters: {case.name}")
-            if sampled:
-                names.append(f"probability of failure: {case.name}")
-        if scenario.clusters is not None:
-            names.append("write clusters")
-    return names + ["maps", "report"]
+    return RunResult(output=out, manifest=manifest, products=writer.products,
+                     timings_s=dict(timer.timings))
 
 
 def _progress_call(progress, method, *args) -> None:
     fn = getattr(progress, method, None)
     if callable(fn):
         fn(*args)
-
-
-def stages_not_run(scenario: Scenario, products) -> list[dict]:
-    """Configured optional stages that wrote no product, with the reason.
-
-    Returns
-    -------
-    list of dict
-        ``{"section": name, "reason": text}`` per configured section of
-        :data:`STAGE_PRODUCTS` without any of its products.
-    """
-    keys = {p.key for p in products}
-    out = []
-    for section, product_keys in STAGE_PRODUCTS.items():
-        if getattr(scenario, section, None) is not None and not keys & set(product_keys):
-            out.append({"section": section,
-                        "reason": f"the {section} stage is not built in slopescreen {__version__}"})
-    return out

@@ -12,7 +12,7 @@ from .. import __version__
 from ..grid import Grid
 from ..report.cautions import CAUTIONS
 from ..scenario import Scenario
-from .stability_stage import _effective_uncertainty
+from .stability_stage import effective_uncertainty
 
 
 CONVENTIONS = {
@@ -48,12 +48,12 @@ def _environment_record() -> dict:
     return rec
 
 
-def _run_record(not_run) -> dict:
+def run_record(not_run) -> dict:
     """Manifest fields beyond the contract: stages that did not run, software versions."""
     return {"not_run": list(not_run), "environment": _environment_record()}
 
 
-def _manifest(scenario: Scenario, grid: Grid, products, timings, started) -> dict:
+def manifest(scenario: Scenario, grid: Grid, products, timings, started) -> dict:
     inputs = {}
     for p in scenario.input_files():
         try:
@@ -79,9 +79,14 @@ def _manifest(scenario: Scenario, grid: Grid, products, timings, started) -> dic
         "conventions": CONVENTIONS,
         "soil": _soil_record(scenario),
         "rain": [{k: v for k, v in vars(r).items() if v is not None} for r in scenario.rain],
-        "uncertainty": _effective_uncertainty(scenario),
+        "uncertainty": _uncertainty_record(scenario),
         "stage_seconds": timings,
     }
+
+
+def _uncertainty_record(scenario) -> dict | None:
+    unc = effective_uncertainty(scenario)
+    return None if unc is None else dict(vars(unc))
 
 
 def _parameter_record(p) -> dict | float | None:

@@ -1,4 +1,11 @@
-"""The staging folder: products are written there and moved in place only when the run succeeds."""
+"""The staging folder of a run: products are written there as soon as they are final.
+
+:class:`_Writer` writes each :class:`~slopescreen.pipeline.results.Emit` of a
+stage by its registry entry (:mod:`slopescreen.products`), lists it for the
+manifest and keeps a decimated copy of each raster that a map shows, so the
+maps never read a full product back. :func:`_commit` moves the staged files
+into the output folder, the manifest last, only when every stage succeeded.
+"""
 
 from __future__ import annotations
 
@@ -8,13 +15,20 @@ import os
 import time
 from contextlib import contextmanager
 from pathlib import Path
+from types import MappingProxyType
+
+import numpy as np
 
 from ..errors import InputError
 from ..grid import Grid, write_raster
+from ..products import STYLES, spec
 from ..report.cautions import SHORT
 from .inputs import Product
 
 log = logging.getLogger("slopescreen.pipeline")
+
+MAP_OVERLAYS = ("critical_recharge_class", "cluster_labels")
+"""Rasters drawn on the maps of other products (classes, cluster outlines)."""
 
 
 class _Stages:
@@ -31,34 +45,57 @@ class _Stages:
         log.info("stage %s: start", name)
         start = time.perf_counter()
         yield
-        self.timings[name] = round(time.perf_counter() - start, 3)
+        self.timings[name] = round(self.timings.get(name, 0.0) + time.perf_counter() - start, 3)
         log.info("stage %s: %.2f s", name, self.timings[name])
 
 
 class _Writer:
     """Writes products into the staging folder and lists them."""
 
-    def __init__(self, staging: Path, grid: Grid):
+    def __init__(self, staging: Path, grid: Grid, *, preview_step: int):
         self.staging = staging
         self.grid = grid
         self.products: list[Product] = []
-        self.cluster_records: list[dict] = []  # attribute rows of clusters.gpkg, for the report
-        self.size_records: list[dict] = []
+        self.preview_step = preview_step
+        self.previews: dict[tuple, np.ndarray] = {}
 
-    def raster(self, key, array, *, units, description, rain=None, name=None, tags=None):
-        name = name or (f"{key}_{rain.slug}.tif" if rain is not None else f"{key}.tif")
-        write_raster(self.staging / name, array, self.grid, description=description, units=units,
-                     caution=SHORT, tags=tags)
-        self.products.append(Product(key=key, path=name, kind="raster", units=units,
-                                     rain=None if rain is None else rain.name))
+    def write(self, emit) -> Product:
+        """Write one product of a stage; return its manifest entry."""
+        entry = spec(emit.key)
+        rain = emit.rain
+        name = emit.name or entry.file_name(None if rain is None else rain.slug)
+        units = emit.units or entry.units
+        if entry.kind == "raster":
+            self._raster(entry, emit, name)
+        elif entry.kind == "vector":
+            emit.data.write(self.staging / name)
+        else:
+            (self.staging / name).write_bytes(emit.data)
+        product = Product(key=emit.key, path=name, kind=entry.kind, units=units,
+                          rain=None if rain is None else rain.name)
+        self.products.append(product)
+        return product
 
-    def file(self, key, name, *, kind, units, rain=None):
-        self.products.append(Product(key=key, path=name, kind=kind, units=units, rain=rain))
+    def _raster(self, entry, emit, name) -> None:
+        data = emit.data
+        if data.dtype != np.dtype(entry.dtype):
+            raise TypeError(f"product {entry.key}: a stage gave {data.dtype}, the registry "
+                            f"says {entry.dtype}")
+        tags = dict(entry.tags) | dict(emit.tags)
+        write_raster(self.staging / name, data, self.grid,
+                     description=entry.description.format(**emit.fields), units=entry.units,
+                     caution=SHORT, tags=tags or None)
+        if entry.key in STYLES or entry.key in MAP_OVERLAYS:
+            step = self.preview_step
+            rain = None if emit.rain is None else emit.rain.name
+            self.previews[(entry.key, rain)] = np.ascontiguousarray(data[::step, ::step])
 
-    def blob(self, key, name, data: bytes, *, kind, units, rain=None):
-        """Write a non-raster product (PNG map, HTML report) into the staging folder."""
-        (self.staging / name).write_bytes(data)
-        self.file(key, name, kind=kind, units=units, rain=rain)
+    def snapshot(self):
+        """What has been written so far, for the maps and the report (read only)."""
+        from .results import Written
+
+        return Written(products=tuple(self.products), previews=MappingProxyType(dict(self.previews)),
+                       staging=self.staging, preview_step=self.preview_step)
 
 
 def _commit(staging: Path, out: Path, products, manifest: dict, *, protected=frozenset()) -> None:

@@ -40,7 +40,7 @@ from .stages import (  # noqa: F401
     STAGE_SECTIONS, StageSection, _cluster_blocks, _generic_stage_blocks, _stage_sections,
 )
 from .summaries import (  # noqa: F401
-    ASPECT_SECTORS, NBSP, PRODUCT_TITLES, PROPERTY_UNITS, _join, _map_alt, _map_caption, _num,
+    ASPECT_SECTORS, NBSP, PROPERTY_UNITS, _join, _map_alt, _map_caption, _num,
     _pct, _sector, _units_text, band_areas, case_facts, describe_case, format_area,
     parameter_text, rain_text, recharge_distribution,
 )

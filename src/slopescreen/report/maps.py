@@ -5,9 +5,9 @@ units, a scale bar, a north arrow, the CRS, the rain case and the one-line
 caution. Figures are built on :class:`matplotlib.figure.Figure` with the Agg
 canvas directly, so no GUI backend is ever touched.
 
-How a product is drawn, and in which colours, is set by its :data:`STYLES`
-entry (keyed by the manifest key); a later stage adds a key to
-:data:`STYLES` and its product gets a map.
+How a product is drawn, and in which colours, is set by the style of its
+entry in the product registry (:mod:`slopescreen.products`); a product whose
+entry has a style gets a map, titled with the entry's title.
 
 The parts live in modules of their own: the styles and colours in
 :mod:`~slopescreen.report.styles`, the hillshade, frame, scale bar and
@@ -34,8 +34,9 @@ from .map_parts import (  # noqa: F401
     MapFrame, _hillshade_kernel, add_north_arrow, add_scale_bar, crs_label, hillshade, nice_length,
 )
 from .styles import (  # noqa: F401
-    _COOL, _EARTH, _WARM, FS_BANDS, FS_STYLE, NO_VALUE_COLOUR, STYLES, Style, fs_band,
+    _COOL, _EARTH, _WARM, FS_BANDS, FS_STYLE, NO_VALUE_COLOUR, Style, fs_band,
 )
+from ..products import STYLES, spec
 
 __all__ = [
     "FS_BANDS", "STYLES", "MapFrame", "Style", "hillshade", "fs_band", "nice_length",
@@ -232,25 +233,6 @@ def display_step(shape, max_pixels=1400) -> int:
     return max(1, math.ceil(max(shape) / max_pixels))
 
 
-MAP_TITLES = {
-    "slope": "Slope",
-    "specific_catchment_area": "Specific catchment area",
-    "critical_recharge": "Critical steady recharge",
-    "wetness": "Wetness",
-    "factor_of_safety": "Factor of safety",
-    "failure_probability": "Probability of failure",
-    "cluster_fs_bound": "Lower bound on cluster factor of safety",
-}
-"""Map title of each product key with a style."""
-
-NO_RAIN_TEXT = {
-    "slope": "none (terrain product)",
-    "specific_catchment_area": "none (terrain product)",
-    "critical_recharge": "none (the recharge each cell can take; steady cases are marked on the scale)",
-}
-"""What the rain-case line says on maps of products that do not depend on rain."""
-
-
 def product_maps(products, read, *, z, grid, title="", rain_texts=None, marks=(),
                  max_pixels=1400, dpi=100):
     """Render a map of every product that has a :data:`STYLES` entry.
@@ -260,7 +242,10 @@ def product_maps(products, read, *, z, grid, title="", rain_texts=None, marks=()
     products : list of dict
         Manifest entries (``key``, ``rain``, ``path``, ``kind``, ``units``).
     read : callable
-        ``read(entry) -> numpy.ndarray`` of the product (NaN = no value).
+        ``read(entry) -> numpy.ndarray`` of the product (NaN = no value):
+        the whole product, or its copy at the display stride (a run's
+        writer keeps one of each mapped product, so the maps never read a
+        product back).
     z : numpy.ndarray
         The DEM (m), for the hillshade; NaN is nodata.
     grid : slopescreen.grid.Grid
@@ -287,6 +272,17 @@ def product_maps(products, read, *, z, grid, title="", rain_texts=None, marks=()
         return []
     step = display_step(grid.shape, max_pixels)
     sub = (slice(None, None, step), slice(None, None, step))
+    shown_shape = tuple(-(-n // step) for n in grid.shape)
+
+    def at_stride(arr):
+        arr = np.asarray(arr)
+        if arr.shape == tuple(grid.shape):
+            return arr[sub]
+        if arr.shape == shown_shape:
+            return arr
+        raise InputError(f"{p['path']}: shape {arr.shape} is neither the grid {grid.shape} nor "
+                         f"its display stride {shown_shape}")
+
     zs = np.asarray(z)[sub]
     shade = hillshade(zs, grid.dx_m * step, grid.dy_m * step)
     valid = np.asarray(grid.valid)[sub]
@@ -295,23 +291,24 @@ def product_maps(products, read, *, z, grid, title="", rain_texts=None, marks=()
     out = []
     for p in shown:
         key, rain = p["key"], p.get("rain")
-        values = read(p)[sub]
+        values = at_stride(read(p))
         classes = None
         no_value = valid & ~np.isfinite(values)
         if key == "critical_recharge" and ("critical_recharge_class", None) in by_key:
-            classes = read(by_key[("critical_recharge_class", None)])[sub]
+            classes = at_stride(read(by_key[("critical_recharge_class", None)]))
             classes = np.where(np.isfinite(classes), classes, 0).astype(np.int16)
             no_value = valid & (classes == 0)
         outlines = None
         labels = by_key.get(("cluster_labels", rain))
         if labels is not None and key in ("factor_of_safety", "failure_probability", "cluster_fs_bound"):
-            lab = read(labels)[sub]
+            lab = at_stride(read(labels))
             outlines = np.where(np.isfinite(lab), lab, 0).astype(np.int64)
-        text = rain_texts.get(rain, rain) if rain is not None else NO_RAIN_TEXT.get(key, "none")
-        fig = map_figure(values, key, frame=frame, shade=shade,
-                         title=MAP_TITLES.get(key, key) + (f": {rain}" if rain else ""),
+        entry = spec(key)
+        text = rain_texts.get(rain, rain) if rain is not None else entry.no_rain_text
+        heading = entry.title + (f": {rain}" if rain else "")
+        fig = map_figure(values, key, frame=frame, shade=shade, title=heading,
                          subtitle=title, rain_text=text, classes=classes, no_value=no_value,
                          outlines=outlines, marks=marks if key == "critical_recharge" else None,
                          dpi=dpi)
-        out.append((p, png_bytes(fig, title=MAP_TITLES.get(key, key) + (f": {rain}" if rain else ""))))
+        out.append((p, png_bytes(fig, title=heading)))
     return out

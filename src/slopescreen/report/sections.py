@@ -13,9 +13,10 @@ from __future__ import annotations
 import numpy as np
 
 from .blocks import Block, Section, bullets, figure, para, table
+from ..products import title as product_title
 from .stages import STAGE_SECTIONS
 from .summaries import (
-    NBSP, PRODUCT_TITLES, PROPERTY_UNITS, _map_alt, _map_caption, _pct, _units_text, band_areas,
+    NBSP, PROPERTY_UNITS, _map_alt, _map_caption, _pct, _units_text, band_areas,
     case_facts, describe_case, format_area, parameter_text, rain_text, recharge_distribution,
 )
 
@@ -160,7 +161,7 @@ def _terrain_section(ctx):
         if fin.size:
             p = np.percentile(fin, [10, 50, 90])
             blocks.append(para(f"10th, 50th and 90th percentiles: {p[0]:.3g}, {p[1]:.3g} and "
-                               f"{p[2]:.3g}{NBSP}{e['units']}.", lead=PRODUCT_TITLES[key] + ":"))
+                               f"{p[2]:.3g}{NBSP}{e['units']}.", lead=product_title(key) + ":"))
         m = ctx.map_of(key)
         if m is not None:
             blocks.append(figure(m.png, _map_alt(e), _map_caption(ctx, e)))
@@ -290,8 +291,8 @@ def _products_section(ctx):
 
     def title(p):
         if p["key"] == "map" and p["path"] in shown:
-            return "Map: " + PRODUCT_TITLES.get(shown[p["path"]]["key"], shown[p["path"]]["key"]).lower()
-        return PRODUCT_TITLES.get(p["key"], p["key"])
+            return "Map: " + product_title(shown[p["path"]]["key"]).lower()
+        return product_title(p["key"])
 
     rows = [[title(p), p["key"], p.get("rain") or "—", p["path"], p["kind"], _units_text(p["units"])]
             for p in ctx.manifest.get("products", [])]

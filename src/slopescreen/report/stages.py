@@ -14,7 +14,9 @@ from typing import Callable
 import numpy as np
 
 from .blocks import ReportContext, Section, figure, note, para, table
-from .summaries import NBSP, PRODUCT_TITLES, _map_alt, _map_caption, _units_text, format_area
+from ..products import products_of_section
+from ..products import title as product_title
+from .summaries import NBSP, _map_alt, _map_caption, _units_text, format_area
 
 @dataclass(frozen=True)
 class StageSection:
@@ -117,13 +119,13 @@ def _cluster_blocks(ctx: ReportContext, entries):
 
 
 STAGE_SECTIONS = (
-    StageSection("clusters", "Failure clusters",
-                 ("cluster_fs_bound", "clusters", "cluster_labels"), _cluster_blocks),
-    StageSection("runout", "Runout", ("runout",)),
-    StageSection("corridor", "Corridor", ("corridor_segments",)),
-    StageSection("inventory", "Agreement with mapped landslides", ("inventory_scores",)),
+    StageSection("clusters", "Failure clusters", products_of_section("clusters"), _cluster_blocks),
+    StageSection("runout", "Runout", products_of_section("runout")),
+    StageSection("corridor", "Corridor", products_of_section("corridor")),
+    StageSection("inventory", "Agreement with mapped landslides", products_of_section("inventory")),
 )
-"""Optional stages and their sections, in report order."""
+"""Optional stages and their sections, in report order; the products of each
+are the registry's entries of that section."""
 
 
 def _generic_stage_blocks(ctx: ReportContext, entries):
@@ -133,7 +135,7 @@ def _generic_stage_blocks(ctx: ReportContext, entries):
         if m is not None:
             blocks.append(figure(m.png, _map_alt(e), _map_caption(ctx, e)))
     blocks.append(table("Products of this stage", ["product", "rain case", "file", "units"],
-                        [[PRODUCT_TITLES.get(e["key"], e["key"]), e.get("rain") or "—",
+                        [[product_title(e["key"]), e.get("rain") or "—",
                           e["path"], _units_text(e["units"])] for e in entries]))
     return blocks
 

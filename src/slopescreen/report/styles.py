@@ -1,10 +1,10 @@
 """How each product is drawn on a map: FS screening bands, ramps and their colours.
 
-How a product is drawn is set by its :data:`STYLES` entry (keyed by the
-manifest key): factor-of-safety products in the screening bands of common
-practice, probabilities and other continuous products as ramps, the
-critical recharge as a ramp with its class bands. A later stage adds a key
-to :data:`STYLES` and its product gets a map.
+How a product is drawn is set by the ``style`` of its entry in the product
+registry (:mod:`slopescreen.products`): factor-of-safety products in the
+screening bands of common practice, probabilities and other continuous
+products as ramps, the critical recharge as a ramp with its class bands.
+A product whose registry entry names a style gets a map.
 
 The colours are our own. Each ramp and band set runs monotonically in
 CIELAB lightness (tested), so the order of the classes survives every form
@@ -89,20 +89,18 @@ _EARTH = ("#f6f1e4", "#d8c08e", "#a97b44", "#6b4023", "#2f1b10")
 
 FS_STYLE = Style("bands", "Factor of safety FS (dimensionless)\nmedian soil parameters")
 
-STYLES = {
-    "factor_of_safety": FS_STYLE,
-    "cluster_fs_bound": Style("bands", "Lower bound on cluster FS (dimensionless)"),
-    "failure_probability": Style("ramp", "Probability of failure P(FS < 1)\n(dimensionless, 0 to 1)",
-                                 _WARM, 0.0, 1.0, transparent_below=0.01),
-    "critical_recharge": Style("recharge", "Critical steady recharge (mm/day)\nlow = needs little rain",
-                               _COOL, 1.0, 1000.0, log=True, reverse=True),
-    "wetness": Style("ramp", "Wetness h/z (saturated fraction\nof the soil column, 0 to 1)",
-                     _COOL, 0.0, 1.0, transparent_below=0.02, alpha=0.8),
-    "slope": Style("ramp", "Slope (degrees)", _EARTH, 0.0, 50.0, alpha=0.7),
-    "specific_catchment_area": Style("ramp", "Specific catchment area a = A/b (m)",
-                                     _COOL, 5.0, 1.0e5, log=True, alpha=0.8),
-}
-"""Map style of each product key that gets a map."""
+PROBABILITY_STYLE = Style("ramp", "Probability of failure P(FS < 1)\n(dimensionless, 0 to 1)",
+                          _WARM, 0.0, 1.0, transparent_below=0.01)
+CLUSTER_BOUND_STYLE = Style("bands", "Lower bound on cluster FS (dimensionless)")
+RECHARGE_STYLE = Style("recharge", "Critical steady recharge (mm/day)\nlow = needs little rain",
+                       _COOL, 1.0, 1000.0, log=True, reverse=True)
+WETNESS_STYLE = Style("ramp", "Wetness h/z (saturated fraction\nof the soil column, 0 to 1)",
+                      _COOL, 0.0, 1.0, transparent_below=0.02, alpha=0.8)
+SLOPE_STYLE = Style("ramp", "Slope (degrees)", _EARTH, 0.0, 50.0, alpha=0.7)
+SCA_STYLE = Style("ramp", "Specific catchment area a = A/b (m)", _COOL, 5.0, 1.0e5, log=True,
+                  alpha=0.8)
+"""The styles of the products that get a map; the product registry
+(:mod:`slopescreen.products`) says which product is drawn in which."""
 
 
 def fs_band(fs):

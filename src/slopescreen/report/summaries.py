@@ -5,12 +5,14 @@ each factor-of-safety band, what fails where under one rain case, the
 distribution of the critical recharge, and the plain-words account of a
 case. Beside them the small text helpers the sections share (a rain case,
 a soil parameter, an area or a share in words) and the titles and units
-of the products and soil properties.
+of the soil properties (product titles come from the product registry).
 """
 
 from __future__ import annotations
 
 import numpy as np
+
+from ..products import title as product_title
 
 NBSP = "\u00a0"
 """No-break space between a number and its unit, so "5.3 %" never wraps."""
@@ -31,27 +33,7 @@ PROPERTY_UNITS = {
 }
 """Name and unit of every soil property, in the order of the report."""
 
-PRODUCT_TITLES = {
-    "slope": "Slope",
-    "specific_catchment_area": "Specific catchment area",
-    "critical_recharge": "Critical steady recharge",
-    "critical_recharge_class": "Critical-recharge class",
-    "wetness": "Wetness (saturated fraction of the soil column)",
-    "factor_of_safety": "Factor of safety",
-    "failure_probability": "Probability of failure",
-    "storm_failure_depth": "Depth of the least storm factor of safety",
-    "storm_failure_time": "Time of the least storm factor of safety",
-    "storm_flags": "Storm model flags",
-    "cluster_fs_bound": "Lower bound on the factor of safety of failure clusters",
-    "cluster_labels": "Failure clusters",
-    "clusters": "Failure clusters",
-    "runout": "Runout",
-    "corridor_segments": "Corridor segments",
-    "inventory_scores": "Agreement with mapped landslides",
-    "map": "Map",
-    "report": "Report",
-}
-"""Plain title of each product key."""
+
 
 
 # ---------------------------------------------------------------------------
@@ -356,7 +338,7 @@ def parameter_text(record, unit) -> str:
 
 
 def _map_alt(entry) -> str:
-    title = PRODUCT_TITLES.get(entry["key"], entry["key"])
+    title = product_title(entry["key"])
     return f"Map: {title}" + (f", rain case {entry['rain']}" if entry.get("rain") else "")
 
 
@@ -365,7 +347,7 @@ def _units_text(units) -> str:
 
 
 def _map_caption(ctx, entry) -> str:
-    title = PRODUCT_TITLES.get(entry["key"], entry["key"])
+    title = product_title(entry["key"])
     m = ctx.map_of(entry["key"], entry.get("rain"))
     file = f" Map file: {m.entry['path']}; raster: {entry['path']}." if m else ""
     return f"{title} ({_units_text(entry['units'])}).{file}"

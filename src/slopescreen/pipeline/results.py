@@ -1,0 +1,218 @@
+"""Typed, frozen results of the stages of a run.
+
+Each stage returns one of these; nothing is written into an object a stage
+was handed. A result lists the products it makes with :meth:`products`
+(``Emit`` values that the runner hands to the writer) and keeps the arrays
+that later stages read (:meth:`kept`, where a result can let go of what
+it has written). Per-cell results hold arrays of the grid's shape.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+from pathlib import Path
+from types import MappingProxyType
+from typing import Any
+
+import numpy as np
+
+from ..scenario.model import RainCase
+
+
+
+def _empty():
+    return field(default_factory=lambda: MappingProxyType({}))
+
+
+@dataclass(frozen=True)
+class Emit:
+    """One product a stage hands to the writer.
+
+    Attributes
+    ----------
+    key : str
+        Product key in the registry (:mod:`slopescreen.products`).
+    data : numpy.ndarray, bytes or object with ``write(path)``
+        A raster of the grid's shape in the registry's dtype, the bytes of a
+        map or the report, or vector layers.
+    rain : RainCase or None
+        The rain case of a per-rain product.
+    fields : mapping
+        Values for the ``{...}`` fields of the registry's description.
+    tags : mapping
+        Metadata beyond the registry's own.
+    name, units : str or None
+        File name and units when not the registry's (maps).
+    """
+
+    key: str
+    data: Any
+    rain: RainCase | None = None
+    fields: MappingProxyType = _empty()
+    tags: MappingProxyType = _empty()
+    name: str | None = None
+    units: str | None = None
+
+
+@dataclass(frozen=True)
+class Written:
+    """What the writer has written so far: manifest entries and map previews."""
+
+    products: tuple
+    previews: MappingProxyType
+    staging: Path
+    preview_step: int
+
+    def entries(self) -> list[dict]:
+        """Manifest entries of the products written so far."""
+        return [p.as_dict() for p in self.products]
+
+
+@dataclass(frozen=True)
+class SlopeResult:
+    """Slope and aspect of the original DEM (Horn 1981)."""
+
+    slope_deg: np.ndarray
+    aspect_deg: np.ndarray
+
+    def products(self):
+        return (Emit("slope", self.slope_deg),)
+
+
+@dataclass(frozen=True)
+class ConditionedDem:
+    """The depression-filled DEM (routing only; never used for slope)."""
+
+    filled: np.ndarray
+
+    def products(self):
+        return ()
+
+
+@dataclass(frozen=True)
+class RoutingResult:
+    """Upslope area and specific catchment area of the routing method."""
+
+    area_m2: np.ndarray
+    sca_m: np.ndarray
+    method: str
+
+    def products(self):
+        return (Emit("specific_catchment_area", self.sca_m,
+                     fields=MappingProxyType({"method": self.method})),)
+
+
+@dataclass(frozen=True)
+class RechargeResult:
+    """Critical steady recharge (mm/day) and its stability class."""
+
+    q_cr_mm_per_day: np.ndarray
+    stability_class: np.ndarray
+
+    def products(self):
+        return (Emit("critical_recharge", self.q_cr_mm_per_day),
+                Emit("critical_recharge_class", self.stability_class))
+
+
+@dataclass(frozen=True)
+class StormExtras:
+    """Where and when the least storm FS occurs, and the model's flags."""
+
+    depth_m: np.ndarray
+    time_h: np.ndarray
+    flags: np.ndarray
+
+
+@dataclass(frozen=True)
+class StabilityResult:
+    """Wetness and factor of safety of one rain case at the median parameters."""
+
+    case: RainCase
+    wetness: np.ndarray
+    factor_of_safety: np.ndarray
+    storm: StormExtras | None = None
+    fs_tags: MappingProxyType = _empty()
+
+    def products(self):
+        out = []
+        if self.storm is not None:
+            out += [Emit("storm_failure_depth", self.storm.depth_m, self.case),
+                    Emit("storm_failure_time", self.storm.time_h, self.case),
+                    Emit("storm_flags", self.storm.flags, self.case)]
+        out += [Emit("wetness", self.wetness, self.case),
+                Emit("factor_of_safety", self.factor_of_safety, self.case, tags=self.fs_tags)]
+        return tuple(out)
+
+
+@dataclass(frozen=True)
+class ProbabilityResult:
+    """Probability of failure of one rain case."""
+
+    case: RainCase
+    p_f: np.ndarray
+    method: str
+
+    def products(self):
+        return (Emit("failure_probability", self.p_f, self.case,
+                     tags=MappingProxyType({"METHOD": self.method})),)
+
+
+@dataclass(frozen=True)
+class ClusterCase:
+    """Failing clusters of one rain case, as attribute rows and outlines."""
+
+    case: RainCase
+    fs_bound: np.ndarray
+    bound_extent_cells: int
+    labels: np.ndarray
+    records: tuple
+    polygons: MappingProxyType
+    size_records: tuple = ()
+    size_polygons: MappingProxyType = _empty()
+
+    def kept(self):
+        """What later stages read: the rows and outlines, not the written rasters."""
+        from dataclasses import replace
+
+        return replace(self, fs_bound=None, labels=None)
+
+    def products(self):
+        e = self.bound_extent_cells
+        return (Emit("cluster_fs_bound", self.fs_bound, self.case,
+                     fields=MappingProxyType({"extent": e}),
+                     tags=MappingProxyType({"EXTENT_CELLS": str(e),
+                                            "MEANING": "at least 1: no such cluster can fail"})),
+                Emit("cluster_labels", self.labels, self.case))
+
+
+@dataclass(frozen=True)
+class ClusterLayers:
+    """The clusters of every rain case, for ``clusters.gpkg`` and the report."""
+
+    records: tuple
+    size_records: tuple
+    layers: Any = field(default=None, repr=False)
+
+    def products(self):
+        return (Emit("clusters", self.layers),)
+
+
+@dataclass(frozen=True)
+class MapsResult:
+    """The PNG maps: (manifest entry shown, file name, bytes) per map."""
+
+    maps: tuple
+
+    def products(self):
+        return tuple(Emit("map", png, rain=rain, name=name, units=units)
+                     for _shown, name, png, rain, units in self.maps)
+
+
+@dataclass(frozen=True)
+class ReportResult:
+    """The self-contained HTML report."""
+
+    html: bytes
+
+    def products(self):
+        return (Emit("report", self.html),)
