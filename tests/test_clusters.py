@@ -67,3 +67,18 @@ def test_bad_window_raises():
     f = cluster_forces(slope, aspect, 1.0, 0.5, dx=5.0, dy=5.0, **SOIL)
     with pytest.raises(InputError, match="stride"):
         fs_bound_map(f, window_cells=4, stride_cells=4)
+
+
+@pytest.mark.parametrize("rows, cols, wet, slope", [(20, 20, 0.0, 34.99), (40, 30, 0.5, 38.0),
+                                                    (12, 50, 0.5, 34.99), (12, 50, 1.0, 38.0)])
+def test_regression_grid_smaller_than_a_tile_is_not_refused_for_overflow(rows, cols, wet, slope):
+    # Once refused with "scale ... too large for tiles (int32 overflow)": on a grid smaller than
+    # a tile the scale is made from the very sum it is checked against, and 2**30 / scale gave
+    # that sum back 1 ulp low. Defining property of the result: every cluster has FS < 1.
+    from slopescreen.clusters import failure_clusters
+
+    s = np.full((rows, cols), slope, np.float32)
+    result = failure_clusters(s, 1.2, wet, dx=5.0, dy=5.0, aspect_deg=np.full_like(s, 180.0),
+                              cohesion_kpa=2.0, root_cohesion_kpa=2.0, lateral_root_cohesion_kpa=0.0,
+                              friction_deg=34.0, unit_weight_kn_m3=18.0, bound=False)
+    assert (np.asarray(result.table["fs"]) < 1.0).all()
