@@ -173,7 +173,7 @@ def test_peak_time_against_root_finding():
     # equal at t* and t* - T* (derivative of the closed form); root found here with brentq
     from scipy.optimize import brentq
 
-    from slopescreen.hydrology import _peak_star
+    from slopescreen._kernels.iverson import _peak_star
 
     def log_rate(t):
         return -1.0 / t - 0.5 * math.log(t)

@@ -27,8 +27,8 @@ from scipy.ndimage import gaussian_filter
 from scipy.sparse.linalg import spsolve
 from skimage.morphology import reconstruction
 
-from slopescreen.flats import drainage_over_flats
-from slopescreen.routing import _receivers, flow_accumulation
+from slopescreen.routing import drainage_over_flats, flow_accumulation
+from slopescreen.routing.links import _receivers
 
 DROW = np.array([0, -1, -1, -1, 0, 1, 1, 1])
 DCOL = np.array([1, 1, 0, -1, -1, -1, 0, 1])

@@ -14,13 +14,13 @@ from matplotlib import cbook
 from skimage.morphology import reconstruction
 
 from slopescreen.errors import InputError
-from slopescreen.flats import drainage_over_flats
 from slopescreen.routing import (
     FlowResult,
-    _receivers,
+    drainage_over_flats,
     flow_accumulation,
     specific_catchment_area,
 )
+from slopescreen.routing.links import _receivers
 
 DROW = np.array([0, -1, -1, -1, 0, 1, 1, 1])
 DCOL = np.array([1, 1, 0, -1, -1, -1, 0, 1])

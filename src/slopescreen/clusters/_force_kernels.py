@@ -9,8 +9,8 @@ import math
 
 import numpy as np
 
+from .._kernels.slope_stability import GAMMA_W, _fs_point, _rad
 from .._numba import njit, njit_parallel, prange
-from ..stability import GAMMA_W, _fs_point, _rad
 
 
 @njit

@@ -9,13 +9,14 @@ from typing import NamedTuple
 import numpy as np
 from scipy import special
 
+from .._kernels.rain_case import _STEADY
+from .._kernels.slope_stability import _rad
+from .._kernels.soil_table import _COH, _COND, _DEPTH, _DIFF, _GAMMA, _N_PAR, _PHI, _ROOT
 from .._numba import njit, njit_parallel, prange
 from ..errors import InputError
-from ..stability import _rad
 from ._fs_sample import _sample_fs
-from ._inputs import _STEADY, _grid_inputs
-# encode_table: for the docstring example
-from .table import _COH, _COND, _DEPTH, _DIFF, _GAMMA, _N_PAR, _PHI, _ROOT, encode_table
+from ._inputs import _grid_inputs
+from .table import encode_table  # noqa: F401  (the docstring examples use it)
 
 
 class FosmResult(NamedTuple):

@@ -13,7 +13,7 @@ from dataclasses import dataclass
 import numpy as np
 from matplotlib.patches import Rectangle
 
-from .. import _checks
+from .. import _validate as _checks
 from .._numba import njit_parallel, prange
 from ..errors import InputError
 
