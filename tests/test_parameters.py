@@ -67,7 +67,8 @@ def test_invalid_parameters_raise_naming_the_parameter(make, match):
 
 
 def test_physical_range_truncates_and_rejects():
-    # METHODS.md 8.1: truncate physically bounded variables (depth > 0, phi' in range)
+    # docs/methods.md, "Probability of failure": truncate physically bounded variables
+    # (depth > 0, phi' in range)
     depth = _validate.physical_parameter(normal(0.5, 1.0, name="depth_m"), "depth_m")
     assert depth.low == 0.0 and depth.high == math.inf
     phi = _validate.physical_parameter(normal(34.0, 2.0, name="friction_deg").truncated(10, 80),

@@ -74,7 +74,8 @@ def test_standard_error_formula():
 
 def test_counts_match_a_plain_python_oracle():
     # slow oracle: the package's counter keys, quantiles from scipy.stats, FS in numpy
-    # (METHODS.md sections 4 and 5); the count of FS < 1 must agree sample for sample
+    # (docs/methods.md, "Steady wetness" and "Infinite-slope factor of safety"); the count of
+    # FS < 1 must agree sample for sample
     slope = np.array([[28.0, 33.0, 37.0], [41.0, 30.0, 35.0]])
     sca = np.array([[40.0, 120.0, 15.0], [60.0, 300.0, 80.0]])
     unit = np.zeros(slope.shape, dtype=np.int32)

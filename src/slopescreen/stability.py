@@ -1,9 +1,10 @@
 """Infinite-slope factor of safety and critical steady recharge.
 
-Conventions (METHODS.md sections 0, 5, 6): the depth z to the slip plane and
-the water height h_w above it are **vertical**; seepage is slope-parallel so
-the pore pressure on the slip plane is u = gamma_w h_w cos^2(theta); angles
-are degrees at the interface and radians inside; gamma_w = 9.81 kN/m^3.
+Conventions (docs/methods.md, "Infinite-slope factor of safety" and "Critical
+steady recharge"): the depth z to the slip plane and the water height h_w
+above it are **vertical**; seepage is slope-parallel so the pore pressure on
+the slip plane is u = gamma_w h_w cos^2(theta); angles are degrees at the
+interface and radians inside; gamma_w = 9.81 kN/m^3.
 
 The factor of safety is undefined on flat ground (no driving stress). A GIS
 band must not carry infinity, so every FS this package writes is clipped to
@@ -106,7 +107,7 @@ def factor_of_safety(
 
     Notes
     -----
-    With h_w = W z (METHODS.md section 5)::
+    With h_w = W z (docs/methods.md, "Infinite-slope factor of safety")::
 
         W_col = gamma_m (z - h_w) + gamma_sat h_w          (kPa)
         sigma = W_col cos^2(theta),  tau = W_col sin(theta) cos(theta)
@@ -260,9 +261,9 @@ def critical_recharge(
         W_c  = C / (gamma_w z cos^2 tan phi') + (gamma_s / gamma_w)(1 - tan theta / tan phi')
         q_cr = W_c T sin(theta) / a,      T = K_s z cos(theta)
 
-    The sin(theta) gradient and T = K_s z cos(theta) follow METHODS.md
-    section 4; the tan(theta) or T = K_s z conventions give q_cr larger by
-    1/cos(theta). q_cr is a relative index of topographic control, not a
+    The sin(theta) gradient and T = K_s z cos(theta) follow docs/methods.md,
+    "Steady wetness"; the tan(theta) or T = K_s z conventions give q_cr
+    larger by 1/cos(theta). q_cr is a relative index of topographic control, not a
     rainfall threshold. With phi' = 0 FS does not depend on wetness, so the
     class is 1 or 3.
 

@@ -7,7 +7,7 @@ margins has the infinite-slope factor of safety R_i / D_i of
 west, south: codes 0..3, the even neighbour codes of
 :mod:`slopescreen._neighbours` divided by 2) carries a resistance W[k, i]
 and an active thrust H[k, i] (kN) that count when i is in S and the cell
-across face k is not. Then (METHODS.md section 9.1)::
+across face k is not. Then (docs/methods.md, "Multi-cell failure clusters")::
 
     FS(S) = (R(S) + B(S)) / (D(S) + H(S))
 
@@ -290,7 +290,7 @@ def cluster_forces(slope_deg, aspect_deg, depth_m, wetness, *, dx, dy, cohesion_
 
     Notes
     -----
-    Per cell (A = dx dy plan area, h_w = W z, METHODS.md section 5)::
+    Per cell (A = dx dy plan area, h_w = W z; docs/methods.md, "Infinite-slope factor of safety")::
 
         W_col = gamma_m (z - h_w) + gamma_sat h_w,   u = gamma_w h_w cos^2(theta)
         D_i = W_col A sin(theta)
@@ -309,10 +309,11 @@ def cluster_forces(slope_deg, aspect_deg, depth_m, wetness, *, dx, dy, cohesion_
     their downslope vectors, so the face seen from either side has opposite
     c. A face towards nodata or the grid edge takes the cell's own values:
     it is charged like any margin, never free. The active thrust on head
-    faces is counted as a driving force (denominator), as METHODS.md
-    recommends. Forces of cells facing different ways are added as scalars
-    (each along its own downslope direction), the approximation that makes
-    the set function of section 9.1 additive.
+    faces is counted as a driving force (denominator), as in
+    docs/methods.md, "Multi-cell failure clusters". Forces of cells facing
+    different ways are added as scalars (each along its own downslope
+    direction), the approximation that makes the set function FS(S) above
+    additive over cells and faces.
 
     References
     ----------
@@ -476,7 +477,7 @@ def nonsubmodular_faces(forces, lam=1.0):
     -----
     For the face between i and j, phi(1, 0) = W_ij - lam H_ij and
     phi(0, 1) = W_ji - lam H_ji; the pair term is submodular iff their sum is
-    >= 0 (METHODS.md section 9.1). With the face model of
+    >= 0 (docs/methods.md, "Multi-cell failure clusters"). With the face model of
     :func:`cluster_forces` the sum is
     L [c^2 (toe + head - lam P_a) + 2 (1 - c^2) side], so it fails only where
     eta P_p + c_r,lat z < lam P_a on a face that runs across the slope.

@@ -6,7 +6,7 @@ band, :mod:`slopescreen.clusters.sizes`) and the probability that each cluster f
 
 A cluster is a set S of grid cells. With the force terms of
 :mod:`slopescreen.clusters.forces` (per cell D_i, R_i; per margin face a
-resistance and, on head faces, an active thrust; METHODS.md section 9)::
+resistance and, on head faces, an active thrust; docs/methods.md, "Multi-cell failure clusters")::
 
     FS(S) = (R(S) + B(S)) / (D(S) + H(S))
     g_lam(S) = R(S) + B(S) - lam (D(S) + H(S)),      FS(S) < lam  <=>  g_lam(S) < 0

@@ -147,7 +147,7 @@ def storm_pressure_head(
 
     Notes
     -----
-    Iverson (2000), METHODS.md section 7::
+    Iverson (2000); docs/methods.md, "Storm response (Iverson 2000)"::
 
         psi = beta (Z - d) + Z (I_Z/K_Z) R(t*)                    t <= T
         psi = beta (Z - d) + Z (I_Z/K_Z) [R(t*) - R(t* - T*)]     t > T
@@ -241,7 +241,7 @@ def storm_factor_of_safety(
     count_suction : bool, keyword-only
         If False (default), negative pressure heads (above the water table)
         are taken as 0: suction is conservatively not counted as strength
-        (METHODS.md section 5). True uses Iverson's psi as it is.
+        (docs/methods.md, "Infinite-slope factor of safety"). True uses Iverson's psi as it is.
 
     Returns
     -------

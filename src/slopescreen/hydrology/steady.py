@@ -57,8 +57,8 @@ def steady_wetness(sca_m, slope_deg, *, recharge_mm_per_day, conductivity_m_per_
 
     Notes
     -----
-    Steady slope-parallel Darcy flow with gradient sin(theta) (METHODS.md
-    section 4)::
+    Steady slope-parallel Darcy flow with gradient sin(theta)
+    (docs/methods.md, "Steady wetness")::
 
         W = min(1, q a / (T sin theta)),     T = K_s z cos(theta)
 

@@ -52,7 +52,7 @@ def reliability_index(mean_fs, sd_fs, *, fs_distribution="normal"):
     -----
     Normal: beta = (mu - 1) / sigma. Lognormal:
     beta_LN = ln(mu / sqrt(1 + V^2)) / sqrt(ln(1 + V^2)), V = sigma / mu.
-    P_f = Phi(-beta) (METHODS.md section 8.2).
+    P_f = Phi(-beta) (docs/methods.md, "Probability of failure").
 
     References
     ----------
