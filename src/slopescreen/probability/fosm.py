@@ -16,7 +16,6 @@ from .._numba import njit, njit_parallel, prange
 from ..errors import InputError
 from ._fs_sample import _sample_fs
 from ._inputs import _grid_inputs
-from .table import encode_table  # noqa: F401  (the docstring examples use it)
 
 
 class FosmResult(NamedTuple):
@@ -186,6 +185,7 @@ def fosm_reliability(slope_deg, sca_m, unit_index, table, rain, *, n_depths=1,
     >>> import numpy as np
     >>> from slopescreen.hydrology import SteadyRain
     >>> from slopescreen.parameters import normal
+    >>> from slopescreen.probability import encode_table
     >>> t = encode_table([{"depth_m": 1.0, "cohesion_kpa": normal(5.0, 1.0),
     ...     "root_cohesion_kpa": 0.0, "friction_deg": 30.0, "unit_weight_kn_m3": 18.0,
     ...     "conductivity_m_per_day": 1.0}])
