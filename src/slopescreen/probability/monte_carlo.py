@@ -148,7 +148,8 @@ def failure_probability(
     unit_index : array_like of int, shape (rows, cols)
         Row of ``table`` holding each cell's soil unit; -1 is nodata.
     table : numpy.ndarray, shape (n_units, 7, 5)
-        Encoded parameters (:func:`encode_table`, order :data:`PARAMETER_ORDER`).
+        Encoded parameters (:func:`~slopescreen.probability.encode_table`, order
+        :data:`~slopescreen.probability.PARAMETER_ORDER`).
     rain : SteadyRain or StormRain
         The rain case.
     samples : int, keyword-only
