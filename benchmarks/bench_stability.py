@@ -57,7 +57,10 @@ def timed(fn, *args, **kwargs):
 
 
 def numpy_fs(slope, sca, q_mm_day, k, z, c, phi, g):
-    """Plain numpy wetness and FS (METHODS.md sections 4 and 5), single unit weight."""
+    """Plain numpy wetness and FS, single unit weight.
+
+    docs/methods.md, "Steady wetness" and "Infinite-slope factor of safety".
+    """
     th = np.radians(np.asarray(slope, dtype=np.float64))
     sc = np.sin(th) * np.cos(th)
     with np.errstate(divide="ignore", invalid="ignore"):

@@ -10,7 +10,8 @@ import numpy as np
 import pytest
 
 from slopescreen.errors import InputError
-from slopescreen.flats import _flat_directions_padded, drainage_over_flats
+from slopescreen.routing import drainage_over_flats
+from slopescreen.routing.flats import _flat_directions_padded
 from slopescreen._neighbours import pad_nan
 
 DROW = np.array([0, -1, -1, -1, 0, 1, 1, 1])

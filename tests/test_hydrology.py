@@ -19,7 +19,7 @@ GAMMA_W = 9.81
 
 
 def test_steady_wetness_formula():
-    # METHODS.md section 4: W = min(1, q a / (K z cos sin)), q per horizontal area
+    # docs/methods.md, "Steady wetness": W = min(1, q a / (K z cos sin)), q per horizontal area
     rng = np.random.default_rng(4)
     a = rng.uniform(1, 2000, 300)
     slope = rng.uniform(2, 60, 300)
@@ -77,7 +77,8 @@ def test_pressure_head_initial_state_and_runoff_limit():
     z = np.array([0.3, 0.8, 1.5])
     beta = math.cos(math.radians(32.0)) ** 2
     psi0 = storm_pressure_head(z, 0.0, intensity_m_per_s=5e-6, **HEAD)
-    # METHODS.md 7: psi = beta (Z - d) before the storm, negative above the water table
+    # docs/methods.md, "Storm response (Iverson 2000)": psi = beta (Z - d) before the storm,
+    # negative above the water table
     np.testing.assert_allclose(psi0, beta * (z - 0.8), rtol=1e-12)
     # only min(I, K) infiltrates: rain above K gives the head of rain at K
     at_k = storm_pressure_head(z, 7200.0, intensity_m_per_s=1e-5, **HEAD)
@@ -89,7 +90,7 @@ def test_pressure_head_initial_state_and_runoff_limit():
 
 
 def test_storm_fs_is_the_infinite_slope_expression():
-    # METHODS.md 7: FS = tan(phi)/tan(a) + (C - psi gw tan(phi)) / (g Z sin cos), psi >= 0 here
+    # Iverson (2000): FS = tan(phi)/tan(a) + (C - psi gw tan(phi)) / (g Z sin cos), psi >= 0 here
     z = np.linspace(0.9, 2.0, 12)
     t = 3 * 3600.0
     psi = storm_pressure_head(z, t, intensity_m_per_s=6e-6, **HEAD)

@@ -6,15 +6,24 @@ import numpy as np
 import pytest
 from scipy import integrate, special, stats
 
-from slopescreen import parameters as P
+from slopescreen import _validate
+from slopescreen._kernels.counter_rng import _counter_key, _seed_key, _stream_key, _uniform01
+from slopescreen._kernels.inverse_cdf import (
+    _draw,
+    _prepare,
+    _quantile,
+    _quantile_at,
+    _quantile_block,
+)
+from slopescreen._kernels.normal import _ndtr, _ndtri
 from slopescreen.errors import InputError
 from slopescreen.parameters import Parameter, fixed, lognormal, normal, uniform
 
 
 def _quantiles(param, u):
     code = param.encode()
-    prep = P._prepare(code)
-    return np.array([P._quantile(prep, x) for x in u])
+    prep = _prepare(code)
+    return np.array([_quantile(prep, x) for x in u])
 
 
 # -- construction and validation -----------------------------------------
@@ -58,20 +67,22 @@ def test_invalid_parameters_raise_naming_the_parameter(make, match):
 
 
 def test_physical_range_truncates_and_rejects():
-    # METHODS.md 8.1: truncate physically bounded variables (depth > 0, phi' in range)
-    depth = P._physical(normal(0.5, 1.0, name="depth_m"), "depth_m")
+    # docs/methods.md, "Probability of failure": truncate physically bounded variables
+    # (depth > 0, phi' in range)
+    depth = _validate.physical_parameter(normal(0.5, 1.0, name="depth_m"), "depth_m")
     assert depth.low == 0.0 and depth.high == math.inf
-    phi = P._physical(normal(34.0, 2.0, name="friction_deg").truncated(10, 80), "friction_deg")
+    phi = _validate.physical_parameter(normal(34.0, 2.0, name="friction_deg").truncated(10, 80),
+                                       "friction_deg")
     assert (phi.low, phi.high) == (10.0, 60.0)
     with pytest.raises(InputError, match="depth_m"):
-        P._physical(fixed(-1.0, name="depth_m"), "depth_m")
+        _validate.physical_parameter(fixed(-1.0, name="depth_m"), "depth_m")
     with pytest.raises(InputError, match="depth_m"):
-        P._physical(fixed(0.0, name="depth_m"), "depth_m")
+        _validate.physical_parameter(fixed(0.0, name="depth_m"), "depth_m")
     with pytest.raises(InputError, match="friction_deg"):
-        P._physical(fixed(70.0, name="friction_deg"), "friction_deg")
+        _validate.physical_parameter(fixed(70.0, name="friction_deg"), "friction_deg")
     with pytest.raises(InputError, match="friction_deg"):
-        P._physical(uniform(61.0, 70.0, name="friction_deg"), "friction_deg")
-    assert P._physical(fixed(0.0, name="cohesion_kpa"), "cohesion_kpa").a == 0.0
+        _validate.physical_parameter(uniform(61.0, 70.0, name="friction_deg"), "friction_deg")
+    assert _validate.physical_parameter(fixed(0.0, name="cohesion_kpa"), "cohesion_kpa").a == 0.0
 
 
 # -- moments of the truncated distributions against scipy.stats ----------
@@ -120,17 +131,17 @@ def test_ndtri_matches_scipy_everywhere():
         np.logspace(-300, -1, 400), np.linspace(0.01, 0.99, 2001),
         1 - np.logspace(-16, -1, 200), [0.075, 0.925, 0.5],
     ])
-    got = np.array([P._ndtri(x) for x in p])
+    got = np.array([_ndtri(x) for x in p])
     ref = special.ndtri(p)
     np.testing.assert_allclose(got, ref, rtol=4e-15, atol=1e-300)
-    assert P._ndtri(0.0) == -math.inf and P._ndtri(1.0) == math.inf
-    assert math.isnan(P._ndtri(1.5)) and math.isnan(P._ndtri(float("nan")))
+    assert _ndtri(0.0) == -math.inf and _ndtri(1.0) == math.inf
+    assert math.isnan(_ndtri(1.5)) and math.isnan(_ndtri(float("nan")))
 
 
 def test_ndtr_matches_scipy():
     # math.erfc based Phi against scipy.special.ndtr, into the far lower tail
     x = np.linspace(-30, 9, 1001)
-    got = np.array([P._ndtr(v) for v in x])
+    got = np.array([_ndtr(v) for v in x])
     np.testing.assert_allclose(got, special.ndtr(x), rtol=1e-13, atol=0)
 
 
@@ -179,21 +190,21 @@ def test_block_quantile_is_bit_identical_to_scalar():
     pars = [fixed(3.0), uniform(2.0, 8.0), normal(34.0, 2.0).truncated(0.0, 60.0),
             normal(0.0, 1.0).truncated(6.0, 8.0), lognormal(2.0, 0.5).truncated(1.0, 5.0)]
     table = np.stack([p.encode() for p in pars])[None]
-    prep = np.stack([P._prepare(row) for row in table[0]])[None]
+    prep = np.stack([_prepare(row) for row in table[0]])[None]
     u = np.random.default_rng(2).random(300)
     u[:3] = [2**-53, 0.075, 0.925]
     out = np.empty((1, len(pars), u.size))
     for k in range(len(pars)):
-        P._quantile_block(prep, 0, k, u, out, k, u.size)
-        scalar = np.array([P._quantile_at(prep, 0, k, x) for x in u])
+        _quantile_block(prep, 0, k, u, out, k, u.size)
+        scalar = np.array([_quantile_at(prep, 0, k, x) for x in u])
         assert np.array_equal(out[0, k], scalar)
 
 
 def test_draw_uses_the_prepared_row():
     par = normal(34.0, 2.0).truncated(0.0, 60.0)
-    key = np.uint64(P._seed_key(np.uint64(9)))
-    key = np.uint64(P._counter_key(np.uint64(P._stream_key(key, 4)), 17))
-    assert P._draw(par.encode(), key) == P._quantile(P._prepare(par.encode()), P._uniform01(key))
+    key = np.uint64(_seed_key(np.uint64(9)))
+    key = np.uint64(_counter_key(np.uint64(_stream_key(key, 4)), 17))
+    assert _draw(par.encode(), key) == _quantile(_prepare(par.encode()), _uniform01(key))
 
 
 # -- the counter-based generator ------------------------------------------
@@ -204,14 +215,14 @@ def test_splitmix64_reference_sequence():
     # vector recalled from memory of the reference C implementation
     expected = [6457827717110365317, 3203168211198807973, 9817491932198370423,
                 4593380528125082431, 16408922859458223821]
-    got = [int(P._counter_key(np.uint64(1234567), i)) for i in range(5)]
+    got = [int(_counter_key(np.uint64(1234567), i)) for i in range(5)]
     assert got == expected
 
 
 def test_uniforms_are_uniform_and_keyed_by_all_indices():
-    key = np.uint64(P._seed_key(np.uint64(12345)))
-    streams = [np.uint64(P._stream_key(key, s)) for s in range(40)]
-    u = np.array([[P._uniform01(np.uint64(P._counter_key(k, c))) for c in range(500)]
+    key = np.uint64(_seed_key(np.uint64(12345)))
+    streams = [np.uint64(_stream_key(key, s)) for s in range(40)]
+    u = np.array([[_uniform01(np.uint64(_counter_key(k, c))) for c in range(500)]
                   for k in streams])
     assert ((u > 0) & (u < 1)).all()
     # Kolmogorov-Smirnov against U(0, 1) (scipy.stats reference), seeded so deterministic
@@ -219,19 +230,19 @@ def test_uniforms_are_uniform_and_keyed_by_all_indices():
     # neighbouring counters and neighbouring streams are uncorrelated
     assert abs(np.corrcoef(u[:, :-1].ravel(), u[:, 1:].ravel())[0, 1]) < 0.02
     assert abs(np.corrcoef(u[:-1].ravel(), u[1:].ravel())[0, 1]) < 0.02
-    other = np.uint64(P._stream_key(np.uint64(P._seed_key(np.uint64(12346))), 0))
-    assert P._counter_key(other, 0) != P._counter_key(streams[0], 0)
+    other = np.uint64(_stream_key(np.uint64(_seed_key(np.uint64(12346))), 0))
+    assert _counter_key(other, 0) != _counter_key(streams[0], 0)
     # regression: with 53 bits the largest key gave exactly 1.0 (and an infinite normal draw)
-    assert P._uniform01(np.uint64(0)) == 2.0**-53
-    assert P._uniform01(np.uint64(2**64 - 1)) == 1 - 2.0**-53
+    assert _uniform01(np.uint64(0)) == 2.0**-53
+    assert _uniform01(np.uint64(2**64 - 1)) == 1 - 2.0**-53
 
 
 def test_field_validation():
     with pytest.raises(InputError, match="depth_m: got -1.0"):
-        P._physical_field(np.array([1.0, -1.0]), "depth_m")
+        _validate.physical_field(np.array([1.0, -1.0]), "depth_m")
     with pytest.raises(InputError, match="holds infinite"):
-        P._field(np.inf, "x", 0, 1)
+        _validate.field(np.inf, "x", 0, 1)
     with pytest.raises(InputError, match="every value is NaN"):
-        P._field(np.full(3, np.nan), "x", 0, 1)
+        _validate.field(np.full(3, np.nan), "x", 0, 1)
     a = np.array([0.5, np.nan], dtype=np.float32)
-    assert P._field(a, "x", 0, 1).dtype == np.float32
+    assert _validate.field(a, "x", 0, 1).dtype == np.float32

@@ -1,9 +1,9 @@
 """End-to-end runs of the stability stages through the public contract.
 
 The reference is the infinite-slope factor of safety with Montgomery-Dietrich
-steady wetness written out here from the handbook formulas (METHODS.md sections
-4 and 5; Montgomery & Dietrich 1994), on an inclined plane whose specific
-catchment area is the distance from the divide (exact geometry).
+steady wetness written out here from the handbook formulas (docs/methods.md, "Steady
+wetness" and "Infinite-slope factor of safety"; Montgomery & Dietrich 1994), on an inclined
+plane whose specific catchment area is the distance from the divide (exact geometry).
 """
 
 import json

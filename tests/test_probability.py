@@ -7,10 +7,10 @@ import numpy as np
 import pytest
 from scipy import stats
 
-from slopescreen import parameters as P
+from slopescreen._kernels.counter_rng import _counter_key, _seed_key, _stream_key, _uniform01
 from slopescreen.errors import InputError
 from slopescreen.hydrology import SteadyRain, StormRain, steady_wetness, storm_minimum
-from slopescreen.parameters import fixed, lognormal, normal, uniform
+from slopescreen.parameters import Parameter, fixed, lognormal, normal, uniform
 from slopescreen.probability import (
     PARAMETER_ORDER,
     encode_table,
@@ -74,7 +74,8 @@ def test_standard_error_formula():
 
 def test_counts_match_a_plain_python_oracle():
     # slow oracle: the package's counter keys, quantiles from scipy.stats, FS in numpy
-    # (METHODS.md sections 4 and 5); the count of FS < 1 must agree sample for sample
+    # (docs/methods.md, "Steady wetness" and "Infinite-slope factor of safety"); the count of
+    # FS < 1 must agree sample for sample
     slope = np.array([[28.0, 33.0, 37.0], [41.0, 30.0, 35.0]])
     sca = np.array([[40.0, 120.0, 15.0], [60.0, 300.0, 80.0]])
     unit = np.zeros(slope.shape, dtype=np.int32)
@@ -87,14 +88,14 @@ def test_counts_match_a_plain_python_oracle():
         3: stats.truncnorm(-17.0, 13.0, loc=34.0, scale=2.0).ppf,  # truncated to [0, 60]
         5: stats.lognorm(s=0.3, scale=2.0).ppf,
     }
-    run = np.uint64(P._seed_key(np.uint64(seed)))
+    run = np.uint64(_seed_key(np.uint64(seed)))
     for i in range(slope.size):
-        key = np.uint64(P._stream_key(run, i))
+        key = np.uint64(_stream_key(run, i))
         fails = 0
         for s in range(n):
             x = [1.0, 1.0, 0.0, 0.0, 18.5, 0.0, 5e-5]
             for k, f in ppf.items():
-                x[k] = float(f(P._uniform01(np.uint64(P._counter_key(key, s * 7 + k)))))
+                x[k] = float(f(_uniform01(np.uint64(_counter_key(key, s * 7 + k)))))
             z, c, cr, phi, g, cond, _ = x
             th = math.radians(slope.flat[i])
             w = min(1.0, q * 1e-3 * sca.flat[i] / (cond * z * math.cos(th) * math.sin(th)))
@@ -133,7 +134,7 @@ def test_unit_correlation_shares_draws_within_a_unit():
 
 
 def test_fixed_parameters_reproduce_the_deterministic_maps():
-    fixed_unit = {k: (v.central() if isinstance(v, P.Parameter) else v) for k, v in UNIT.items()}
+    fixed_unit = {k: (v.central() if isinstance(v, Parameter) else v) for k, v in UNIT.items()}
     slope, sca = _grid((10, 10), seed=4)
     table = encode_table([fixed_unit])
     unit = np.zeros(slope.shape, dtype=np.int32)
@@ -241,7 +242,7 @@ def test_bad_inputs():
 
 def test_friction_tangent_series():
     # the branch-free tan used for sampled friction angles, against numpy on [0, 60] degrees
-    from slopescreen.probability import _tan_friction
+    from slopescreen._kernels.friction import _tan_friction
 
     deg = np.linspace(0.0, 60.0, 6001)
     got = np.array([_tan_friction(d) for d in deg])

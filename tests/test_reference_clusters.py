@@ -1,6 +1,6 @@
 """Failure clusters checked against outside references.
 
-Handbook earth-pressure values (METHODS.md 11.3, handbook formula evaluated), a block force
+Handbook earth-pressure values (Rankine and Jaky, handbook formula evaluated), a block force
 balance worked by hand, brute force over every subset of small grids, the Lovasz-extension LP
 solved by cvxpy/HiGHS, and networkx minimum_cut on the same integer graph.
 """
@@ -37,7 +37,7 @@ GW = 9.81
 
 # --------------------------------------------------------------------------- handbook values
 @pytest.mark.parametrize("phi, ka, kp, k0, k0j", [
-    # METHODS.md 11.3 (handbook formula evaluated)
+    # Rankine and Jaky coefficients (handbook formula evaluated)
     (25.0, 0.405859, 2.463913, 0.577382, 0.520207),
     (30.0, 1.0 / 3.0, 3.0, 0.5, 0.444444),
     (35.0, 0.270990, 3.690172, 0.426424, 0.374612),
@@ -48,7 +48,7 @@ def test_rankine_jaky_handbook(phi, ka, kp, k0, k0j):
 
 
 def test_face_forces_handbook():
-    # METHODS.md 11.3: phi 30, gamma 18, z 1 m: P_a = 3.0, P_0 = 4.5, P_p = 27.0 kN/m
+    # handbook formula evaluated: phi 30, gamma 18, z 1 m: P_a = 3.0, P_0 = 4.5, P_p = 27.0 kN/m
     f = face_pressures(1.0, 0.0, cohesion_kpa=0.0, lateral_root_cohesion_kpa=0.0,
                        friction_deg=30.0, unit_weight_kn_m3=18.0, passive_fraction=1.0)
     assert f["active"] == pytest.approx(3.0, rel=1e-12)
@@ -56,7 +56,7 @@ def test_face_forces_handbook():
     # side = K0 tan(phi) * 1/2 gamma z^2 with K0 = 0.5 (P_0 = 4.5 kN/m)
     assert f["side"] == pytest.approx(4.5 * math.tan(math.radians(30.0)), rel=1e-12)
     # with c' = 5 kPa: z_c = 0.96225 m, sigma_a(1 m) = 0.22650 kPa, sigma_p(1 m) = 71.3205 kPa
-    # (METHODS.md 11.3); P_a = triangle below z_c, P_p = 27 + 2 c sqrt(Kp) z
+    # (handbook formula evaluated); P_a = triangle below z_c, P_p = 27 + 2 c sqrt(Kp) z
     fc = face_pressures(1.0, 0.0, cohesion_kpa=5.0, lateral_root_cohesion_kpa=0.0,
                         friction_deg=30.0, unit_weight_kn_m3=18.0, passive_fraction=1.0)
     assert fc["active"] == pytest.approx(0.5 * 0.22650 * (1.0 - 0.96225), rel=2e-4)
@@ -70,7 +70,8 @@ def test_face_forces_handbook():
 def _hand_slab(theta, phi, gamma, gsat, z, m, c_base, c_lat, eta, dx, dy, nr, nc):
     """Block force balance of an nr x nc slab facing south, written out by hand.
 
-    METHODS.md section 9 with the level Rankine coefficients, water table h_w = m z.
+    docs/methods.md, "Multi-cell failure clusters", with the level Rankine coefficients,
+    water table h_w = m z.
     """
     t, p = math.radians(theta), math.radians(phi)
     hw = m * z
@@ -108,7 +109,8 @@ def test_rectangular_slab_matches_hand_balance(m):
 
 
 def test_slab_fs_tends_to_infinite_slope():
-    # infinite-slope FS from the stability module (METHODS.md section 5)
+    # infinite-slope FS from the stability module
+    # (docs/methods.md, "Infinite-slope factor of safety")
     kw = dict(cohesion_kpa=0.5, root_cohesion_kpa=0.0, friction_deg=34.0,
               unit_weight_kn_m3=18.0)
     fs_inf = float(factor_of_safety(40.0, 1.0, 0.7, **kw))
@@ -325,7 +327,8 @@ def test_reported_clusters_fail_when_recomputed_and_tiles_are_exact():
 
 
 def test_nonsubmodular_faces_reported_and_bound_still_valid():
-    # friction 8 degrees, no cohesion: eta K_p < K_a on head/toe faces (METHODS.md 9.1 check)
+    # friction 8 degrees, no cohesion: eta K_p < K_a on head/toe faces (the submodularity
+    # check of docs/methods.md, "Multi-cell failure clusters")
     # slope 6 degrees: FS near tan 8 / tan 6 = 1.33, where lam K_a > eta K_p as well
     f = cluster_forces(np.full((3, 4), 6.0), np.full((3, 4), 180.0), 1.0, 0.0, dx=5.0, dy=5.0,
                        cohesion_kpa=0.0, root_cohesion_kpa=0.0, lateral_root_cohesion_kpa=0.0,

@@ -1,8 +1,8 @@
 """Probability that a cluster fails, checked against exact answers.
 
 A rectangular slab whose FS is linear in a root cohesion (block force balance worked by hand,
-METHODS.md section 9): P(FS < 1) is a normal (or truncated normal) probability from
-scipy.stats, and the Monte Carlo estimate must lie within 4 standard errors of it.
+docs/methods.md, "Multi-cell failure clusters"): P(FS < 1) is a normal (or truncated normal)
+probability from scipy.stats, and the Monte Carlo estimate must lie within 4 standard errors of it.
 """
 
 import math

@@ -2,7 +2,8 @@
 
 Brute force over every connected subset of grids up to 4 x 5 (each band's optimum), the
 exact cut without size limits, scipy.ndimage for connectivity, and the scaling property of
-the convex relaxation (METHODS.md section 9.1: blind to the upper area limit).
+the convex relaxation (docs/methods.md, "Multi-cell failure clusters": blind to the upper
+area limit).
 """
 
 import math
@@ -187,7 +188,8 @@ def test_unlimited_band_equals_the_exact_cut():
 
 
 def test_relaxation_is_blind_to_the_upper_limit_only():
-    # METHODS.md 9.1: FS(alpha x) = FS(x), so A_max never moves the bound; A_min does
+    # docs/methods.md, "Multi-cell failure clusters": FS(alpha x) = FS(x), so A_max never
+    # moves the bound; A_min does
     f = _instance(8, 8, 8, True)
     state = WindowBands(f, (0, 8, 0, 8))
     model = state.ensure_model(2.0)

@@ -12,7 +12,7 @@ Oracles:
   (Barnes, Lehman & Mulla 2014): each non-edge cell equals
   max(z, nextafter(min over its neighbours)). Its solution is unique, so the
   check is complete.
-* The hand example of METHODS.md section 11.7 and the USGS DEM shipped with
+* A hand example (Priority-Flood worked by hand) and the USGS DEM shipped with
   matplotlib (jacksboro_fault_dem.npz).
 """
 
@@ -226,7 +226,7 @@ def test_valid_mask_equals_nan_holes():
 
 
 # --------------------------------------------------------------------------
-# METHODS.md 11.7 hand example
+# Priority-Flood hand example (derived by hand)
 # --------------------------------------------------------------------------
 
 HAND = np.array(
@@ -242,7 +242,8 @@ HAND = np.array(
 
 @pytest.mark.parametrize("dtype", [np.float32, np.float64, np.int32])
 def test_hand_example_plain(dtype):
-    # METHODS.md 11.7 (derived by hand): the centre becomes 5, nothing else moves.
+    # docs/methods.md, "Conditioning for routing" (derived by hand): the centre becomes 5,
+    # nothing else moves.
     z = HAND.astype(dtype)
     filled = fill_depressions(z)
     expected = HAND.astype(filled.dtype)
@@ -252,7 +253,7 @@ def test_hand_example_plain(dtype):
 
 @pytest.mark.parametrize("dtype", [np.float32, np.float64])
 def test_hand_example_epsilon(dtype):
-    # METHODS.md 11.7 (derived by hand): with epsilon the centre is
+    # derived by hand: with epsilon the centre is
     # nextafter(5). Worked through by hand: the row next to the outlet (4)
     # stays 5 (each cell is above 4 and neighbours the outlet), the middle
     # row, centre included, is one ulp above 5, the top inner row two ulps.

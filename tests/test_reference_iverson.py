@@ -1,4 +1,7 @@
-"""Iverson (2000) storm response against published and independent solutions (METHODS.md 7, 11.5)."""
+"""Iverson (2000) storm response against published and independent solutions.
+
+The model is that of docs/methods.md, "Storm response (Iverson 2000)".
+"""
 
 import math
 
@@ -16,7 +19,7 @@ from slopescreen.hydrology import (
 
 GAMMA_W = 9.81
 
-# METHODS.md 11.5 (closed form published (confirmed); values computed with scipy)
+# R(t*) by the closed form of Iverson (2000), values computed with scipy
 TABLE_R = [
     (0.1, 3.557e-7, 4e-11),
     (0.2, 1.346711e-4, 5e-11),
@@ -30,13 +33,13 @@ TABLE_R = [
 
 
 @pytest.mark.parametrize("t_star,expected,tol", TABLE_R)
-def test_response_table_11_5(t_star, expected, tol):
-    # METHODS.md 11.5, to the digits stated there
+def test_response_table(t_star, expected, tol):
+    # the closed form of Iverson (2000) evaluated with scipy, to the digits of the table
     assert float(iverson_response(t_star)) == pytest.approx(expected, abs=tol)
 
 
-def test_pulse_table_11_5():
-    # METHODS.md 11.5: R(t*) - R(t* - 2) after a storm of T* = 2
+def test_pulse_table():
+    # Iverson (2000) superposition, evaluated with scipy: R(t*) - R(t* - 2) after a storm of T* = 2
     t = np.array([2.5, 3.0, 5.0, 10.0])
     got = iverson_response(t) - iverson_response(t - 2.0)
     np.testing.assert_allclose(got, [0.2183830, 0.2357273, 0.2198120, 0.1684352], atol=6e-8)
@@ -91,7 +94,7 @@ def _crank_nicolson(flux_until, t_end, h=0.01, length=20.0, dt=2.5e-4):
 
 
 def test_closed_form_against_crank_nicolson_continuous_storm():
-    # independent finite-difference solution of the linear diffusion problem (METHODS.md 7,
+    # independent finite-difference solution of the linear diffusion problem (Iverson 2000,
     # derivation check): t* = 4 tau with tau = D t / Z^2
     fd = _crank_nicolson(np.inf, 2.5)
     for t_star in (0.5, 1.0, 2.0, 5.0, 10.0):
@@ -111,8 +114,8 @@ def test_closed_form_against_crank_nicolson_pulse():
         assert num == pytest.approx(exact, rel=5e-5, abs=1e-5)
 
 
-def test_dimensional_example_11_5():
-    # METHODS.md 11.5: alpha 35, D0 1e-4, Z 1, I/K 0.5, t = 12 h
+def test_dimensional_example():
+    # Iverson (2000) evaluated by hand: alpha 35, D0 1e-4, Z 1, I/K 0.5, t = 12 h
     alpha, d0, z, t = 35.0, 1e-4, 1.0, 12 * 3600.0
     d_hat = 4 * d0 * math.cos(math.radians(alpha)) ** 2
     assert d_hat == pytest.approx(2.6840e-4, rel=1e-4)
@@ -133,7 +136,8 @@ STORM = dict(water_table_depth_m=1.5, intensity_m_per_s=8e-6, conductivity_m_per
 
 
 def test_least_fs_comes_after_the_storm_at_the_head_peak():
-    # METHODS.md 11.5: the peak comes after rainfall stops; checked against a dense time grid
+    # docs/methods.md, "Storm response (Iverson 2000)": the peak comes after rainfall stops;
+    # checked against a dense time grid
     slope, z, duration = 38.0, 1.5, 3 * 3600.0
     res = storm_minimum(slope, soil_depth_m=z, duration_s=duration, n_depths=1, **STORM)
     assert float(res.time_s) > duration
@@ -148,14 +152,15 @@ def test_least_fs_comes_after_the_storm_at_the_head_peak():
 
 
 def test_cap_binds_for_a_long_storm():
-    # METHODS.md 7: psi <= beta Z; a long storm on a shallow water table reaches the cap
+    # docs/methods.md, "Storm response (Iverson 2000)": psi <= beta Z; a long storm on a
+    # shallow water table reaches the cap
     slope, z = 35.0, 1.0
     res = storm_minimum(slope, soil_depth_m=z, duration_s=30 * 86400.0, n_depths=1,
                         **{**STORM, "water_table_depth_m": 0.3})
     assert bool(res.cap_bound)
     a, phi = math.radians(slope), math.radians(STORM["friction_deg"])
     beta = math.cos(a) ** 2
-    # Iverson's FS with psi = beta Z (METHODS.md 7), written out here
+    # Iverson's (2000) FS with psi = beta Z, written out here
     fs_cap = (math.tan(phi) / math.tan(a) + (STORM["cohesion_kpa"] - beta * z * GAMMA_W * math.tan(phi))
               / (STORM["unit_weight_kn_m3"] * z * math.sin(a) * math.cos(a)))
     assert float(res.fs) == pytest.approx(fs_cap, rel=1e-6)
@@ -173,7 +178,7 @@ def test_peak_time_against_root_finding():
     # equal at t* and t* - T* (derivative of the closed form); root found here with brentq
     from scipy.optimize import brentq
 
-    from slopescreen.hydrology import _peak_star
+    from slopescreen._kernels.iverson import _peak_star
 
     def log_rate(t):
         return -1.0 / t - 0.5 * math.log(t)
@@ -182,4 +187,4 @@ def test_peak_time_against_root_finding():
         lo = max(2.0 - storm, 0.0) + 1e-300
         s = brentq(lambda s: log_rate(s + storm) - log_rate(s), lo, 2.0, xtol=1e-300, rtol=1e-15)
         assert _peak_star(storm) == pytest.approx(storm + s, rel=1e-12)
-    assert _peak_star(2.0) == pytest.approx(3.3016, abs=1e-4)  # near t* = 3, METHODS.md 11.5
+    assert _peak_star(2.0) == pytest.approx(3.3016, abs=1e-4)  # near t* = 3 (Iverson 2000)

@@ -1,4 +1,7 @@
-"""Probability of failure against exact normal results (METHODS.md 8, 11.6)."""
+"""Probability of failure against exact normal results (handbook formulas evaluated).
+
+The methods are those of docs/methods.md, "Probability of failure".
+"""
 
 import math
 
@@ -36,7 +39,7 @@ def _pooled(slope_value, unit, cells, samples, seed):
 
 
 def test_monte_carlo_cohesion_only_matches_exact_truncated_normal():
-    # FS = C/(g z sin cos) + tan(phi)/tan(theta) is linear in C (METHODS.md 5); C ~ N(4, 1.5)
+    # FS = C/(g z sin cos) + tan(phi)/tan(theta) is linear in C (infinite slope); C ~ N(4, 1.5)
     # truncated at 0 (physical range), so P_f = P(C < c*) exactly (scipy.stats.truncnorm)
     unit = {**BASE, "cohesion_kpa": normal(4.0, 1.5)}
     ref = stats.truncnorm(-4.0 / 1.5, np.inf, loc=4.0, scale=1.5)
@@ -49,8 +52,9 @@ def test_monte_carlo_cohesion_only_matches_exact_truncated_normal():
         assert abs(est - exact) < 4 * se, (theta, est, exact, se)
 
 
-def test_methods_11_6_dry_cohesionless_case():
-    # METHODS.md 11.6: FS = tan(phi)/tan(theta), tan(theta) = 0.6, P_f = Phi(-1) = 0.158655.
+def test_dry_cohesionless_case_exact_normal():
+    # handbook formula evaluated: FS = tan(phi)/tan(theta), tan(theta) = 0.6,
+    # P_f = Phi(-1) = 0.158655.
     # phi is normal in degrees with median atan(0.7) and atan(0.6) one sd below it; FS < 1 iff
     # phi < atan(0.6), and a monotone map keeps quantiles, so P_f = Phi(-1) as for
     # tan(phi) ~ N(0.7, 0.1). Truncation to [0, 60] removes < 1e-9 of the mass.
@@ -59,7 +63,7 @@ def test_methods_11_6_dry_cohesionless_case():
     unit = {**BASE, "friction_deg": normal(mean, sd)}
     est, n = _pooled(math.degrees(math.atan(0.6)), unit, cells=250, samples=4000, seed=12345)
     assert n == 10**6
-    exact = 0.158655  # METHODS.md 11.6
+    exact = 0.158655  # Phi(-1), standard normal table
     assert stats.norm.cdf(-1) == pytest.approx(exact, abs=1e-6)  # scipy.stats check of Phi(-1)
     se = math.sqrt(exact * (1 - exact) / n)
     assert abs(est - exact) < 4 * se
@@ -100,8 +104,8 @@ def test_fosm_uses_duncan_half_differences():
     assert float(fo.mean_fs[0, 0]) == pytest.approx(math.tan(math.radians(34.0)) / tan_t, rel=1e-6)
 
 
-def test_methods_11_6_reliability_index_values():
-    # METHODS.md 11.6: Phi(-1), Phi(-2), Phi(-3)
+def test_reliability_index_normal_values():
+    # standard normal table: Phi(-1), Phi(-2), Phi(-3)
     _, p = reliability_index(np.array([2.0, 3.0, 4.0]), 1.0)
     np.testing.assert_allclose(p, [0.158655, 0.0227501, 0.0013499], atol=5e-7)
     # mu = 1.5, COV = 0.2: normal beta 1.6667, P 0.04779; lognormal beta 1.9483, P 0.02569

@@ -2,7 +2,7 @@
 
 The receivers and fractions are re-derived here, independently of the
 package, from the published rules (D8: O'Callaghan & Mark 1984; D-infinity:
-Tarboton 1997, with the facet formulas of METHODS.md section 2.2; MFD:
+Tarboton 1997, with the facet formulas of that paper; MFD:
 Freeman 1991) on random terrain filled by scikit-image's reconstruction by
 erosion (the Priority-Flood result). Only the flat-drainage directions come
 from the package (`drainage_over_flats`, tested on its own in
@@ -27,8 +27,8 @@ from scipy.ndimage import gaussian_filter
 from scipy.sparse.linalg import spsolve
 from skimage.morphology import reconstruction
 
-from slopescreen.flats import drainage_over_flats
-from slopescreen.routing import _receivers, flow_accumulation
+from slopescreen.routing import drainage_over_flats, flow_accumulation
+from slopescreen.routing.links import _receivers
 
 DROW = np.array([0, -1, -1, -1, 0, 1, 1, 1])
 DCOL = np.array([1, 1, 0, -1, -1, -1, 0, 1])
@@ -79,7 +79,7 @@ def oracle_links(z, dx, dy, method, p=1.1):
             if np.isnan(z0):
                 continue
             nb = neighbours(z, i, j)
-            # D-infinity steepest facet, METHODS.md 2.2 formulas
+            # D-infinity steepest facet, the formulas of Tarboton (1997)
             best = None
             for card, diag in FACETS:
                 e1, e2 = nb[card], nb[diag]

@@ -1,13 +1,13 @@
 """Specific catchment area on analytic surfaces: inclined planes and cones.
 
-Exact answers (handbook geometry, METHODS.md section 3 and 11.4): on an
-inclined plane whose divide is a contour, a = L, the horizontal distance from
+Exact answers (handbook geometry; docs/methods.md, "The effective contour width (our
+derivation)"): on an inclined plane whose divide is a contour, a = L, the horizontal distance from
 the divide along the fall line; on an outward cone z = -r, a = r/2; on an
 inward cone (bowl) draining to its centre with rim radius R,
 a = (R^2 - r^2) / (2 r). Quinn et al. (1991) and Tarboton (1997) tested
 their methods on such surfaces.
 
-Reference point. The cell's own area is in A (METHODS.md section 0 item 6),
+Reference point. The cell's own area is in A (docs/methods.md, "Flow routing"),
 so A is the flow that crosses the cell's *downslope edge*: on a plane
 aligned with the grid, a cell k cells below the divide has a = k dx, its
 centre being at L_c = (k - 1/2) dx. For any orientation we put that edge at
@@ -157,7 +157,7 @@ def report():
 @pytest.mark.parametrize("dx,dy", CELLS)
 @pytest.mark.parametrize("method", ["dinf", "mfd"])
 def test_plane_a_equals_l_dispersive_methods(method, dx, dy, report):
-    # Exact: a = L on an inclined plane (METHODS.md section 3, handbook geometry).
+    # Exact: a = L on an inclined plane (handbook geometry).
     # Required accuracy: within 2 % on cells >= 10 cells below the divide.
     for th in ANGLES:
         a, ref, lc, sel = plane_case(method, th, dx, dy)
@@ -324,8 +324,8 @@ CONE_BOUNDS = {
 @pytest.mark.parametrize("inward", [False, True], ids=["cone", "bowl"])
 @pytest.mark.parametrize("method", ["dinf", "mfd", "d8"])
 def test_cones(method, inward, dx, dy, report):
-    # Exact: a = r/2 (outward cone) and a = (R^2 - r^2)/(2 r) (bowl), METHODS.md
-    # section 3 (handbook geometry); compared on r > 3 cells, >= 3 cells from the rim.
+    # Exact: a = r/2 (outward cone) and a = (R^2 - r^2)/(2 r) (bowl),
+    # handbook geometry; compared on r > 3 cells, >= 3 cells from the rim.
     surface = "bowl" if inward else "cone"
     err, rc, folded, sel = cone_case(method, 40.0, dx, dy, inward)
     bands, sectors = cone_table(err, rc, folded, sel, report,
@@ -356,7 +356,7 @@ def test_cone_mfd_square_cells_within_a_few_percent():
 @pytest.mark.parametrize("inward", [False, True], ids=["cone", "bowl"])
 @pytest.mark.parametrize("method", ["dinf", "mfd"])
 def test_cone_error_shrinks_under_refinement(method, inward, report):
-    # Grid refinement (METHODS.md 11.4 recommendation): one cone of radius
+    # Grid refinement (tolerances from our own refinement study): one cone of radius
     # 20 m at dx = 1, 0.5 and 0.25 m, compared on the same physical annulus
     # 5 m <= r <= 15 m. The ring-mean error is first order in dx (about halves);
     # the mean absolute error shrinks for MFD and for D-infinity on the

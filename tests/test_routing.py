@@ -14,13 +14,13 @@ from matplotlib import cbook
 from skimage.morphology import reconstruction
 
 from slopescreen.errors import InputError
-from slopescreen.flats import drainage_over_flats
 from slopescreen.routing import (
     FlowResult,
-    _receivers,
+    drainage_over_flats,
     flow_accumulation,
     specific_catchment_area,
 )
+from slopescreen.routing.links import _receivers
 
 DROW = np.array([0, -1, -1, -1, 0, 1, 1, 1])
 DCOL = np.array([1, 1, 0, -1, -1, -1, 0, 1])
@@ -149,7 +149,7 @@ def test_unfilled_depression_keeps_its_flow():
 
 def test_plane_cut_by_nodata_accumulates_from_its_first_row():
     # A plane falling south (row 0 north) below a nodata band along its divide.
-    # Aligned with the grid, a = k * dy exactly (METHODS.md 0 item 6), also with
+    # Aligned with the grid, a = k * dy exactly (docs/methods.md, "Flow routing"), also with
     # rectangular cells; the first valid row is NOT an outlet. The grid is
     # wide enough that the side edges (which MFD flow cannot cross) cannot
     # reach the middle column within 16 rows.

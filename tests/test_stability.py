@@ -15,7 +15,7 @@ STRENGTH = dict(cohesion_kpa=2.0, root_cohesion_kpa=1.5, friction_deg=33.0, unit
 
 
 def _numpy_fs(slope, z, w, c, cr, phi, gm, gs):
-    # plain-numpy oracle of METHODS.md section 5, general form
+    # plain-numpy oracle of the general infinite-slope form (Duncan, Wright & Brandon 2014)
     th, ph = np.radians(slope), np.radians(phi)
     hw = w * z
     col = gm * (z - hw) + gs * hw
@@ -26,7 +26,7 @@ def _numpy_fs(slope, z, w, c, cr, phi, gm, gs):
 
 
 def test_general_form_against_numpy_oracle():
-    # METHODS.md section 5 general form, two unit weights, evaluated with numpy
+    # general infinite-slope form, two unit weights (Duncan, Wright & Brandon 2014), numpy
     rng = np.random.default_rng(5)
     n = 500
     args = dict(
@@ -168,7 +168,8 @@ def test_critical_recharge_nodata_and_frictionless():
 
 
 def test_critical_recharge_scales_with_conductivity_over_area():
-    # q_cr = W_c K z cos sin / a (section 6): linear in K, inverse in a
+    # q_cr = W_c K z cos sin / a (docs/methods.md, "Critical steady recharge"): linear in K,
+    # inverse in a
     base = dict(depth_m=1.0, cohesion_kpa=2.0, root_cohesion_kpa=0.0, friction_deg=35.0,
                 unit_weight_kn_m3=18.0)
     q1, _ = critical_recharge(30.0, 100.0, conductivity_m_per_day=1.0, **base)

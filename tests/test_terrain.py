@@ -1,17 +1,14 @@
 """Unit tests of slopescreen.terrain internals and contracts.
 
-Outside references used here: numpy's sort (heap order), Python's doctest
-(docstring examples), scikit-image reconstruction by erosion (fill results
-on grids that force the heap and the pit queue to grow).
+Outside references used here: numpy's sort (heap order) and scikit-image
+reconstruction by erosion (fill results on grids that force the heap and the
+pit queue to grow). The docstring examples run in test_docstring_examples.py.
 """
-
-import doctest
 
 import numpy as np
 import pytest
 from skimage.morphology import reconstruction
 
-from slopescreen import terrain
 from slopescreen._neighbours import pad_nan
 from slopescreen.errors import InputError
 from slopescreen.terrain import (
@@ -34,13 +31,6 @@ def border_reconstruction(z):
     seed = np.full(z.shape, z.max())
     seed[0], seed[-1], seed[:, 0], seed[:, -1] = z[0], z[-1], z[:, 0], z[:, -1]
     return reconstruction(seed, z, method="erosion", footprint=np.ones((3, 3), dtype=bool))
-
-
-def test_docstring_examples_run():
-    # Python's doctest runs the Examples sections.
-    result = doctest.testmod(terrain, optionflags=doctest.NORMALIZE_WHITESPACE)
-    assert result.attempted >= 2
-    assert result.failed == 0
 
 
 # --------------------------------------------------------------------------

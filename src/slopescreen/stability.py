@@ -1,9 +1,10 @@
 """Infinite-slope factor of safety and critical steady recharge.
 
-Conventions (METHODS.md sections 0, 5, 6): the depth z to the slip plane and
-the water height h_w above it are **vertical**; seepage is slope-parallel so
-the pore pressure on the slip plane is u = gamma_w h_w cos^2(theta); angles
-are degrees at the interface and radians inside; gamma_w = 9.81 kN/m^3.
+Conventions (docs/methods.md, "Infinite-slope factor of safety" and "Critical
+steady recharge"): the depth z to the slip plane and the water height h_w
+above it are **vertical**; seepage is slope-parallel so the pore pressure on
+the slip plane is u = gamma_w h_w cos^2(theta); angles are degrees at the
+interface and radians inside; gamma_w = 9.81 kN/m^3.
 
 The factor of safety is undefined on flat ground (no driving stress). A GIS
 band must not carry infinity, so every FS this package writes is clipped to
@@ -15,9 +16,10 @@ import math
 
 import numpy as np
 
+from . import _validate
+from ._kernels.slope_stability import FS_CAP, GAMMA_W, _rad, _steady_fs_point
 from ._numba import njit, njit_parallel, prange
 from .errors import InputError
-from .parameters import _field, _physical_field
 
 __all__ = [
     "GAMMA_W",
@@ -27,12 +29,6 @@ __all__ = [
     "critical_recharge",
 ]
 
-GAMMA_W = 9.81
-"""Unit weight of water, kN/m^3."""
-
-FS_CAP = 100.0
-"""Largest factor of safety reported; flat cells get this value."""
-
 CLASS_LABELS = {
     0: "nodata",
     1: "fails even when dry",
@@ -40,56 +36,6 @@ CLASS_LABELS = {
     3: "stable even when saturated",
 }
 """Labels of the stability classes returned by :func:`critical_recharge`."""
-
-
-@njit
-def _rad(deg):
-    """Degrees to radians in float64 (a float32 raster value must not make trig float32)."""
-    return np.float64(deg) * (math.pi / 180.0)
-
-
-@njit
-def _fs_point(cohesion, tan_phi, sin_t, cos_t, column_weight, pore_pressure):
-    """Infinite-slope FS from stresses on the slip plane (one point).
-
-    FS = [C + (W cos^2 - u) tan(phi)] / (W sin cos), clipped to [0, FS_CAP];
-    W is the weight of the column per unit plan area (kPa), u the pore
-    pressure on the slip plane (kPa). No driving stress gives FS_CAP. NaN in,
-    NaN out. This is the one place the formula is written; the storm model
-    calls it with u = gamma_w psi.
-    """
-    shear = column_weight * sin_t * cos_t
-    resist = cohesion + (column_weight * cos_t * cos_t - pore_pressure) * tan_phi
-    # selects rather than early returns, and IEEE division (np.true_divide,
-    # no zero-divisor check), so loops over many samples vectorise; a NaN
-    # fails every comparison and comes out as NaN
-    fs = np.true_divide(resist, shear)
-    fs = FS_CAP if resist >= FS_CAP * shear else fs
-    fs = 0.0 if resist <= 0.0 else fs
-    return FS_CAP if shear <= 0.0 else fs
-
-
-@njit
-def _steady_fs_point(cohesion, tan_phi, sin_t, cos_t, depth, wetness, gamma_m, gamma_sat):
-    """FS with the water table at h_w = W z (vertical), gamma_m above it, gamma_sat below."""
-    hw = wetness * depth
-    column = gamma_m * (depth - hw) + gamma_sat * hw
-    u = GAMMA_W * hw * cos_t * cos_t
-    return _fs_point(cohesion, tan_phi, sin_t, cos_t, column, u)
-
-
-def _flat(arrays):
-    """Broadcast inputs; return (shape, list of 1-D arrays, list of strides 0/1)."""
-    shape = np.broadcast_shapes(*(a.shape for a in arrays))
-    flats, strides = [], []
-    for a in arrays:
-        if a.size == 1:
-            flats.append(a.reshape(1))
-            strides.append(0)
-        else:
-            flats.append(np.ascontiguousarray(np.broadcast_to(a, shape)).reshape(-1))
-            strides.append(1)
-    return shape, flats, np.array(strides, dtype=np.int64)
 
 
 @njit_parallel
@@ -109,10 +55,6 @@ def _factor_of_safety_kernel(slope, depth, wet, coh, root, phi, gm, gs, st, out)
             gs[i * st[7]],
         )
         out[i] = fs
-
-
-def _slope_field(slope_deg):
-    return _field(slope_deg, "slope_deg", 0.0, 90.0, open_high=True)
 
 
 def factor_of_safety(
@@ -165,7 +107,7 @@ def factor_of_safety(
 
     Notes
     -----
-    With h_w = W z (METHODS.md section 5)::
+    With h_w = W z (docs/methods.md, "Infinite-slope factor of safety")::
 
         W_col = gamma_m (z - h_w) + gamma_sat h_w          (kPa)
         sigma = W_col cos^2(theta),  tau = W_col sin(theta) cos(theta)
@@ -194,19 +136,20 @@ def factor_of_safety(
     >>> round(float(fs), 5)  # tan 35 / tan 30
     1.2128
     """
-    slope = _slope_field(slope_deg)
-    depth = _physical_field(depth_m, "depth_m")
-    wet = _field(wetness, "wetness", 0.0, 1.0)
-    coh = _physical_field(cohesion_kpa, "cohesion_kpa")
-    root = _physical_field(root_cohesion_kpa, "root_cohesion_kpa")
-    phi = _physical_field(friction_deg, "friction_deg")
-    gm = _physical_field(unit_weight_kn_m3, "unit_weight_kn_m3")
+    slope = _validate.slope_field(slope_deg)
+    depth = _validate.physical_field(depth_m, "depth_m")
+    wet = _validate.field(wetness, "wetness", 0.0, 1.0)
+    coh = _validate.physical_field(cohesion_kpa, "cohesion_kpa")
+    root = _validate.physical_field(root_cohesion_kpa, "root_cohesion_kpa")
+    phi = _validate.physical_field(friction_deg, "friction_deg")
+    gm = _validate.physical_field(unit_weight_kn_m3, "unit_weight_kn_m3")
     if saturated_unit_weight_kn_m3 is None:
-        gs = _field(
+        gs = _validate.field(
             gm, "saturated_unit_weight_kn_m3 (defaults to unit_weight_kn_m3)", GAMMA_W, 30.0
         )
     else:
-        gs = _field(saturated_unit_weight_kn_m3, "saturated_unit_weight_kn_m3", GAMMA_W, 30.0)
+        gs = _validate.field(saturated_unit_weight_kn_m3, "saturated_unit_weight_kn_m3", GAMMA_W,
+                             30.0)
         with np.errstate(invalid="ignore"):
             lighter = np.broadcast_to(gs, np.broadcast_shapes(gs.shape, gm.shape)) < gm
         if lighter.any():
@@ -214,7 +157,7 @@ def factor_of_safety(
                 "saturated_unit_weight_kn_m3: lower than unit_weight_kn_m3 in some cells; "
                 "the saturated unit weight of a soil is at least its moist unit weight"
             )
-    shape, arrs, st = _flat([slope, depth, wet, coh, root, phi, gm, gs])
+    shape, arrs, st = _validate.broadcast_flat([slope, depth, wet, coh, root, phi, gm, gs])
     out = np.empty(int(np.prod(shape)), dtype=np.float32)
     _factor_of_safety_kernel(*arrs, st, out)
     return out.reshape(shape)
@@ -318,9 +261,9 @@ def critical_recharge(
         W_c  = C / (gamma_w z cos^2 tan phi') + (gamma_s / gamma_w)(1 - tan theta / tan phi')
         q_cr = W_c T sin(theta) / a,      T = K_s z cos(theta)
 
-    The sin(theta) gradient and T = K_s z cos(theta) follow METHODS.md
-    section 4; the tan(theta) or T = K_s z conventions give q_cr larger by
-    1/cos(theta). q_cr is a relative index of topographic control, not a
+    The sin(theta) gradient and T = K_s z cos(theta) follow docs/methods.md,
+    "Steady wetness"; the tan(theta) or T = K_s z conventions give q_cr
+    larger by 1/cos(theta). q_cr is a relative index of topographic control, not a
     rainfall threshold. With phi' = 0 FS does not depend on wetness, so the
     class is 1 or 3.
 
@@ -340,15 +283,15 @@ def critical_recharge(
     >>> round(float(q), 3), int(cls)
     (5.314, 2)
     """
-    slope = _slope_field(slope_deg)
-    sca = _field(sca_m, "sca_m", 0.0, math.inf, open_low=True)
-    depth = _physical_field(depth_m, "depth_m")
-    coh = _physical_field(cohesion_kpa, "cohesion_kpa")
-    root = _physical_field(root_cohesion_kpa, "root_cohesion_kpa")
-    phi = _physical_field(friction_deg, "friction_deg")
-    gam = _physical_field(unit_weight_kn_m3, "unit_weight_kn_m3")
-    k = _physical_field(conductivity_m_per_day, "conductivity_m_per_day")
-    shape, arrs, st = _flat([slope, sca, depth, coh, root, phi, gam, k])
+    slope = _validate.slope_field(slope_deg)
+    sca = _validate.field(sca_m, "sca_m", 0.0, math.inf, open_low=True)
+    depth = _validate.physical_field(depth_m, "depth_m")
+    coh = _validate.physical_field(cohesion_kpa, "cohesion_kpa")
+    root = _validate.physical_field(root_cohesion_kpa, "root_cohesion_kpa")
+    phi = _validate.physical_field(friction_deg, "friction_deg")
+    gam = _validate.physical_field(unit_weight_kn_m3, "unit_weight_kn_m3")
+    k = _validate.physical_field(conductivity_m_per_day, "conductivity_m_per_day")
+    shape, arrs, st = _validate.broadcast_flat([slope, sca, depth, coh, root, phi, gam, k])
     n = int(np.prod(shape))
     q = np.empty(n, dtype=np.float32)
     cls = np.empty(n, dtype=np.uint8)

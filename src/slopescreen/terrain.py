@@ -16,7 +16,7 @@ pipeline can pad a large DEM once and avoid further copies.
 
 import numpy as np
 
-from . import _checks
+from . import _validate
 from ._neighbours import DCOL, DROW, linear_offsets, pad_nan, unpad
 from ._numba import njit, njit_parallel, prange
 from .errors import InputError
@@ -116,7 +116,7 @@ def fill_depressions(z, valid=None, *, epsilon=False):
     >>> float(filled[2, 2]), filled.dtype
     (5.0, dtype('float32'))
     """
-    arr, _ = _checks.surface(z, valid, name="z")
+    arr, _ = _validate.surface(z, valid, name="z")
     zp = pad_nan(arr)
     _fill_depressions_padded(zp, epsilon=epsilon)
     return np.ascontiguousarray(unpad(zp))
@@ -509,8 +509,8 @@ def slope_aspect(z, dx, dy, valid=None):
     >>> round(float(s[1, 2]), 3), round(float(a[1, 2]), 1)
     (26.565, 90.0)
     """
-    arr, _ = _checks.surface(z, valid, name="z")
-    dx, dy = _checks.cell_size(dx, dy)
+    arr, _ = _validate.surface(z, valid, name="z")
+    dx, dy = _validate.cell_size(dx, dy)
     zp = pad_nan(arr)
     return _slope_aspect_padded(zp, dx, dy)
 

@@ -9,8 +9,8 @@ import math
 
 import numpy as np
 
+from .._kernels.slope_stability import GAMMA_W, _fs_point, _rad
 from .._numba import njit, njit_parallel, prange
-from ..stability import GAMMA_W, _fs_point, _rad
 
 
 @njit
@@ -61,7 +61,7 @@ def _face_per_length(z, m, gm, gs, coh, root_lat, tan_phi, sin_phi, passive_frac
 
 @njit
 def _basal_forces(slope_deg, z, wet, gm, gs, coh, root_b, phi_deg, area):
-    """(D_i, R_i, lone-cell FS) of one cell, kN (METHODS.md section 5 on a plan area)."""
+    """(D_i, R_i, lone-cell FS) of one cell, kN (the infinite-slope FS on a plan area)."""
     th = _rad(slope_deg)
     st = math.sin(th)
     ct = math.cos(th)

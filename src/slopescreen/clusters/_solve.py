@@ -1,4 +1,4 @@
-"""One checked entry point for every cvxpy solve of the clusters package (STYLE.md point 8).
+"""One checked entry point for every cvxpy solve of the clusters package.
 
 cvxpy builds the problem (the modelling layer); HiGHS solves it in a child
 process that is killed when it overruns its time limit

@@ -20,9 +20,9 @@ cells: z_f = x_p x_q. With the terms of
                            kmin <= sum_i x_i <= kmax,   connectivity
 
 z_f equals x_p x_q at every integer point: where the coefficient
--(p_N - lam p_D) of z_f is <= 0 (the face is submodular, METHODS.md 9.1) the
-minimum pushes z_f up to min(x_p, x_q); elsewhere the lower McCormick
-inequality is added and z_f is pushed down to max(0, x_p + x_q - 1).
+-(p_N - lam p_D) of z_f is <= 0 (the face is submodular; docs/methods.md,
+"Multi-cell failure clusters") the minimum pushes z_f up to min(x_p, x_q);
+elsewhere the lower McCormick inequality is added and z_f is pushed down to max(0, x_p + x_q - 1).
 
 Connectivity by a single-commodity flow from a root chosen by the program:
 r_i in {0, 1}, sum r_i = 1, r_i <= x_i; flow f_a >= 0 on each directed
@@ -61,8 +61,8 @@ Proven bounds
   Charnes-Cooper transformation (variables x' = t x, z' = t z, t >= 0;
   min N(x', z') s.t. D(x', z') = 1, 0 <= x' <= t, McCormick with t in place
   of 1, kmin t <= sum x' <= kmax t). With every face submodular it is the
-  Lovasz-extension relaxation of METHODS.md 9.1. It **cannot see the upper
-  area limit**: N and D are positively homogeneous, so FS(alpha x) = FS(x)
+  Lovasz-extension relaxation (docs/methods.md, "Multi-cell failure clusters").
+  It **cannot see the upper area limit**: N and D are positively homogeneous, so FS(alpha x) = FS(x)
   and x = alpha 1_S meets any A_max for alpha <= 1; kmax t >= sum x' is
   always met by raising t. Only the lower limit tightens it (x <= 1 stops
   scaling up). Connectivity is not in it either. This plain bound is the

@@ -1,8 +1,8 @@
 """Exact minimisation of g_lam(S) = R + B - lam (D + H) by an s-t minimum cut.
 
-Representation (METHODS.md section 9.1). With t[k, p] = W[k, p] - lam H[k, p]
-the face term of cell p towards its neighbour q across face k (k' the
-opposite face), the pair term of a face between two valid cells takes
+Representation (docs/methods.md, "Multi-cell failure clusters"). With
+t[k, p] = W[k, p] - lam H[k, p] the face term of cell p towards its neighbour
+q across face k (k' the opposite face), the pair term of a face between two valid cells takes
 a = t[k, p] when only p is in S and b = t[k', q] when only q is. Written as
 
     phi = (a - b)/2 (x_p - x_q) + (a + b)/2 ([x_p=1, x_q=0] + [x_q=1, x_p=0])

@@ -7,7 +7,7 @@ margins has the infinite-slope factor of safety R_i / D_i of
 west, south: codes 0..3, the even neighbour codes of
 :mod:`slopescreen._neighbours` divided by 2) carries a resistance W[k, i]
 and an active thrust H[k, i] (kN) that count when i is in S and the cell
-across face k is not. Then (METHODS.md section 9.1)::
+across face k is not. Then (docs/methods.md, "Multi-cell failure clusters")::
 
     FS(S) = (R(S) + B(S)) / (D(S) + H(S))
 
@@ -19,10 +19,9 @@ from typing import NamedTuple
 
 import numpy as np
 
-from .. import _checks
+from .. import _validate
+from .._kernels.slope_stability import FS_CAP, GAMMA_W
 from ..errors import InputError
-from ..parameters import _field, _physical_field
-from ..stability import FS_CAP, GAMMA_W
 from ._force_kernels import _face_per_length, _forces_kernel
 
 __all__ = [
@@ -125,7 +124,7 @@ def earth_pressure_coefficients(friction_deg):
     >>> round(float(ka), 6), round(float(kp), 6), round(float(k0), 6), round(float(k0j), 6)
     (0.333333, 3.0, 0.5, 0.444444)
     """
-    phi = _physical_field(friction_deg, "friction_deg").astype(np.float64)
+    phi = _validate.physical_field(friction_deg, "friction_deg").astype(np.float64)
     s = np.sin(np.radians(phi))
     ka = (1.0 - s) / (1.0 + s)
     kp = (1.0 + s) / (1.0 - s)
@@ -210,10 +209,10 @@ def face_pressures(depth_m, wetness, *, cohesion_kpa, lateral_root_cohesion_kpa,
                            ("friction_deg", friction_deg, 0.0, 60.0),
                            ("unit_weight_kn_m3", unit_weight_kn_m3, 0.0, 30.0),
                            ("passive_fraction", passive_fraction, 0.0, 1.0)):
-        vals[key] = float(_field(v, key, lo, hi, allow_nan=False))
+        vals[key] = float(_validate.field(v, key, lo, hi, allow_nan=False))
     gs = vals["unit_weight_kn_m3"] if saturated_unit_weight_kn_m3 is None else float(
-        _field(saturated_unit_weight_kn_m3, "saturated_unit_weight_kn_m3", GAMMA_W, 30.0,
-               allow_nan=False))
+        _validate.field(saturated_unit_weight_kn_m3, "saturated_unit_weight_kn_m3", GAMMA_W,
+                        30.0, allow_nan=False))
     if vals["friction_deg"] >= 60.0 or gs < GAMMA_W and vals["wetness"] > 0.0:
         raise InputError("friction_deg must be < 60 and the saturated unit weight >= 9.81 kN/m^3")
     phi = math.radians(vals["friction_deg"])
@@ -240,14 +239,6 @@ def downslope_vectors(slope, aspect_deg):
     down[0][has_dir] = np.sin(a[has_dir])
     down[1][has_dir] = np.cos(a[has_dir])
     return down
-
-
-def _grid_field(value, shape, key, low, high, *, open_low=False):
-    arr = _field(value, key, low, high, open_low=open_low)
-    try:
-        return np.ascontiguousarray(np.broadcast_to(arr, shape), dtype=np.float64)
-    except ValueError:
-        raise InputError(f"{key}: shape {arr.shape} does not broadcast to the grid {shape}") from None
 
 
 def cluster_forces(slope_deg, aspect_deg, depth_m, wetness, *, dx, dy, cohesion_kpa,
@@ -299,7 +290,7 @@ def cluster_forces(slope_deg, aspect_deg, depth_m, wetness, *, dx, dy, cohesion_
 
     Notes
     -----
-    Per cell (A = dx dy plan area, h_w = W z, METHODS.md section 5)::
+    Per cell (A = dx dy plan area, h_w = W z; docs/methods.md, "Infinite-slope factor of safety")::
 
         W_col = gamma_m (z - h_w) + gamma_sat h_w,   u = gamma_w h_w cos^2(theta)
         D_i = W_col A sin(theta)
@@ -318,10 +309,11 @@ def cluster_forces(slope_deg, aspect_deg, depth_m, wetness, *, dx, dy, cohesion_
     their downslope vectors, so the face seen from either side has opposite
     c. A face towards nodata or the grid edge takes the cell's own values:
     it is charged like any margin, never free. The active thrust on head
-    faces is counted as a driving force (denominator), as METHODS.md
-    recommends. Forces of cells facing different ways are added as scalars
-    (each along its own downslope direction), the approximation that makes
-    the set function of section 9.1 additive.
+    faces is counted as a driving force (denominator), as in
+    docs/methods.md, "Multi-cell failure clusters". Forces of cells facing
+    different ways are added as scalars (each along its own downslope
+    direction), the approximation that makes the set function FS(S) above
+    additive over cells and faces.
 
     References
     ----------
@@ -338,33 +330,32 @@ def cluster_forces(slope_deg, aspect_deg, depth_m, wetness, *, dx, dy, cohesion_
     >>> bool(f.face_thrust[1, 1, 1] > 0)   # the north face is the head of a south-facing slope
     True
     """
-    slope, valid = _checks.surface(slope_deg, name="slope_deg", min_size=1)
-    dx, dy = _checks.cell_size(dx, dy)
+    slope, valid = _validate.surface(slope_deg, name="slope_deg", min_size=1)
+    dx, dy = _validate.cell_size(dx, dy)
     shape = slope.shape
-    _field(slope, "slope_deg", 0.0, 90.0, open_high=True)
+    _validate.slope_field(slope)
     slope = slope.astype(np.float64)
-    aspect = _grid_field(aspect_deg, shape, "aspect_deg", 0.0, 360.0)
-    depth = _grid_field(depth_m, shape, "depth_m", 0.0, math.inf, open_low=True)
-    wet = _grid_field(wetness, shape, "wetness", 0.0, 1.0)
-    coh = _grid_field(cohesion_kpa, shape, "cohesion_kpa", 0.0, math.inf)
-    root_b = _grid_field(root_cohesion_kpa, shape, "root_cohesion_kpa", 0.0, math.inf)
-    root_l = _grid_field(lateral_root_cohesion_kpa, shape, "lateral_root_cohesion_kpa", 0.0,
-                         math.inf)
-    phi = _grid_field(friction_deg, shape, "friction_deg", 0.0, 60.0)
+    grid = _validate.grid_field
+    aspect = grid(aspect_deg, shape, "aspect_deg", 0.0, 360.0)
+    depth = grid(depth_m, shape, "depth_m", 0.0, math.inf, open_low=True)
+    wet = grid(wetness, shape, "wetness", 0.0, 1.0)
+    coh = grid(cohesion_kpa, shape, "cohesion_kpa", 0.0, math.inf)
+    root_b = grid(root_cohesion_kpa, shape, "root_cohesion_kpa", 0.0, math.inf)
+    root_l = grid(lateral_root_cohesion_kpa, shape, "lateral_root_cohesion_kpa", 0.0, math.inf)
+    phi = grid(friction_deg, shape, "friction_deg", 0.0, 60.0)
     if np.nanmax(phi) >= 60.0:
         raise InputError("friction_deg: must be < 60 degrees (K_p grows without bound)")
-    gm = _grid_field(unit_weight_kn_m3, shape, "unit_weight_kn_m3", 0.0, 30.0, open_low=True)
+    gm = grid(unit_weight_kn_m3, shape, "unit_weight_kn_m3", 0.0, 30.0, open_low=True)
     if saturated_unit_weight_kn_m3 is None:
-        gs = _grid_field(gm, shape, "saturated_unit_weight_kn_m3 (defaults to unit_weight_kn_m3)",
-                         GAMMA_W, 30.0)
+        gs = grid(gm, shape, "saturated_unit_weight_kn_m3 (defaults to unit_weight_kn_m3)",
+                  GAMMA_W, 30.0)
     else:
-        gs = _grid_field(saturated_unit_weight_kn_m3, shape, "saturated_unit_weight_kn_m3",
-                         GAMMA_W, 30.0)
+        gs = grid(saturated_unit_weight_kn_m3, shape, "saturated_unit_weight_kn_m3", GAMMA_W, 30.0)
     with np.errstate(invalid="ignore"):
         if (gs < gm).any():
             raise InputError("saturated_unit_weight_kn_m3: lower than unit_weight_kn_m3 in "
                              "some cells; a saturated soil is at least as heavy as moist soil")
-    eta = float(_field(passive_fraction, "passive_fraction", 0.0, 1.0, allow_nan=False))
+    eta = float(_validate.field(passive_fraction, "passive_fraction", 0.0, 1.0, allow_nan=False))
     for arr in (depth, wet, coh, root_b, root_l, phi, gm, gs):
         valid &= np.isfinite(arr)
     if not valid.any():
@@ -486,7 +477,7 @@ def nonsubmodular_faces(forces, lam=1.0):
     -----
     For the face between i and j, phi(1, 0) = W_ij - lam H_ij and
     phi(0, 1) = W_ji - lam H_ji; the pair term is submodular iff their sum is
-    >= 0 (METHODS.md section 9.1). With the face model of
+    >= 0 (docs/methods.md, "Multi-cell failure clusters"). With the face model of
     :func:`cluster_forces` the sum is
     L [c^2 (toe + head - lam P_a) + 2 (1 - c^2) side], so it fails only where
     eta P_p + c_r,lat z < lam P_a on a face that runs across the slope.

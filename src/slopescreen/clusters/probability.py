@@ -45,30 +45,12 @@ from typing import NamedTuple
 
 import numpy as np
 
-from .. import _checks
-from .._numba import njit, njit_parallel, prange
-from ..errors import InputError
-from ..hydrology import SteadyRain, StormRain, _peak_head, _wetness_point
-from ..parameters import (
-    Parameter,
-    _counter_key,
-    _field,
-    _mix64,
-    _physical,
-    _quantile_at,
-    _seed_key,
-    _stream_key,
-    _uniform01,
-    fixed,
-)
-from ..probability.monte_carlo import (
-    _UNIT_DOMAIN,
-    _prepare_table,
-    _unit_draws_kernel,
-    samples_and_seed,
-)
-from ..probability._inputs import _STEADY, _STORM, _rain_vector
-from ..probability.table import (
+from .. import _validate
+from .._kernels.counter_rng import _counter_key, _mix64, _seed_key, _stream_key, _uniform01
+from .._kernels.inverse_cdf import _quantile_at
+from .._kernels.rain_case import _STEADY, _STORM, _rain_vector
+from .._kernels.slope_stability import FS_CAP, _rad
+from .._kernels.soil_table import (
     _COH,
     _COND,
     _DEPTH,
@@ -79,7 +61,12 @@ from ..probability.table import (
     _ROOT,
     _checked_table,
 )
-from ..stability import FS_CAP, _rad
+from .._kernels.storm import _peak_head
+from .._kernels.unit_draws import _UNIT_DOMAIN, _prepare_table, _unit_draws_kernel
+from .._kernels.wetness import _wetness_point
+from .._numba import njit, njit_parallel, prange
+from ..errors import InputError
+from ..parameters import Parameter, fixed
 from ._force_kernels import _basal_forces, _face_force
 from .forces import downslope_vectors
 
@@ -131,7 +118,7 @@ def _encode_lateral(lateral, n_units):
         else:
             par = fixed(v, name=name)
         # same physical range as the basal root cohesion: [0, inf)
-        out[u, 0] = _physical(par, "root_cohesion_kpa").encode()
+        out[u, 0] = _validate.physical_parameter(par, "root_cohesion_kpa").encode()
     return out
 
 
@@ -185,7 +172,7 @@ def cluster_parameter_draws(table, lateral_root_cohesion_kpa, *, samples, seed):
     ((1, 7, 4), (1, 4), 3.0)
     """
     encoded, _ = _checked_table(table, False)
-    n, s = samples_and_seed(samples, seed)
+    n, s = _validate.samples_and_seed(samples, seed)
     n_units = encoded.shape[0]
     prep = _prepare_table(encoded)
     prep_lat = _prepare_table(_encode_lateral(lateral_root_cohesion_kpa, n_units))
@@ -411,9 +398,9 @@ def cluster_failure_probability(clusters, slope_deg, aspect_deg, unit_index, tab
     >>> res.ids.tolist(), float(res.p_f[0])
     ([1], 0.32)
     """
-    slope, _ = _checks.surface(slope_deg, name="slope_deg", min_size=1)
-    dx, dy = _checks.cell_size(dx, dy)
-    _field(slope, "slope_deg", 0.0, 90.0, open_high=True)
+    slope, _ = _validate.surface(slope_deg, name="slope_deg", min_size=1)
+    dx, dy = _validate.cell_size(dx, dy)
+    _validate.slope_field(slope)
     shape = slope.shape
     slope = np.ascontiguousarray(slope, dtype=np.float64)
     aspect = np.asarray(aspect_deg, dtype=np.float64)
@@ -427,33 +414,28 @@ def cluster_failure_probability(clusters, slope_deg, aspect_deg, unit_index, tab
     if (rain is None) == (wetness is None):
         raise InputError("rain, wetness: give either a rain case (wetness per sample) or a "
                          "fixed wetness raster, not both or neither")
-    if rain is not None and not isinstance(rain, (SteadyRain, StormRain)):
-        raise InputError(f"rain: expected a SteadyRain or a StormRain, got "
-                         f"{type(rain).__name__}")
-    encoded, _ = _checked_table(table, isinstance(rain, StormRain))
+    rain_kind, rain_vec = (_FIXED, np.zeros(5)) if rain is None else _rain_vector(rain)
+    encoded, _ = _checked_table(table, rain_kind == _STORM)
     n_units = encoded.shape[0]
     if unit.size and (unit.min() < -1 or unit.max() >= n_units):
         raise InputError(f"unit_index: values must lie in [-1, {n_units - 1}], got "
                          f"[{unit.min()}, {unit.max()}]")
-    n, s = samples_and_seed(samples, seed)
-    eta = float(_field(passive_fraction, "passive_fraction", 0.0, 1.0, allow_nan=False))
+    n, s = _validate.samples_and_seed(samples, seed)
+    eta = float(_validate.field(passive_fraction, "passive_fraction", 0.0, 1.0, allow_nan=False))
     valid = np.isfinite(slope) & (unit >= 0)
     wet = np.zeros((1, 1))
     sca = np.zeros((1, 1))
     if rain is None:
-        w = np.asarray(_field(wetness, "wetness", 0.0, 1.0), dtype=np.float64)
+        w = np.asarray(_validate.field(wetness, "wetness", 0.0, 1.0), dtype=np.float64)
         try:
             wet = np.ascontiguousarray(np.broadcast_to(w, shape))
         except ValueError:
             raise InputError(f"wetness: shape {w.shape} does not broadcast to {shape}") from None
         valid &= np.isfinite(wet)
-        rain_kind, rain_vec = _FIXED, np.zeros(5)
-    else:
-        rain_kind, rain_vec = _rain_vector(rain)
     if rain_kind == _STEADY:
         if sca_m is None:
             raise InputError("sca_m: a steady rain case needs the specific catchment area")
-        sca = np.asarray(_field(sca_m, "sca_m", 0.0, math.inf), dtype=np.float64)
+        sca = np.asarray(_validate.field(sca_m, "sca_m", 0.0, math.inf), dtype=np.float64)
         if sca.shape != shape:
             raise InputError(f"sca_m: shape {sca.shape} does not match slope_deg {shape}")
         valid &= np.isfinite(sca)

@@ -6,6 +6,7 @@ from typing import NamedTuple
 import numpy as np
 from scipy import ndimage
 
+from .. import _validate
 from ..errors import InputError
 from .band import WindowBands, _connected, band_cells, least_stable_in_band
 from .forces import _extent
@@ -145,8 +146,7 @@ def candidate_windows(shape, *, labels=None, windows=None, window_cells=40, n_le
     [(21, 41, 30, 50)]
     """
     rows, cols = (int(v) for v in shape)
-    if int(window_cells) != window_cells or window_cells < 1:
-        raise InputError(f"window_cells: expected an integer >= 1, got {window_cells!r}")
+    _validate.positive_int(window_cells, "window_cells")
     out = []
     if labels is not None:
         lab = np.asarray(labels)

@@ -1,8 +1,27 @@
-"""The clusters stage: failing clusters of one rain case, their table and the FS bound raster.
+r"""The clusters stage: failing clusters of one rain case, their table and the FS bound raster.
 
 Optional parts: the size-resolved search (least-stable cluster per candidate window and area
 band, :mod:`slopescreen.clusters.sizes`) and the probability that each cluster fails
 (:mod:`slopescreen.clusters.probability`).
+
+A cluster is a set S of grid cells. With the force terms of
+:mod:`slopescreen.clusters.forces` (per cell D_i, R_i; per margin face a
+resistance and, on head faces, an active thrust; docs/methods.md, "Multi-cell failure clusters")::
+
+    FS(S) = (R(S) + B(S)) / (D(S) + H(S))
+    g_lam(S) = R(S) + B(S) - lam (D(S) + H(S)),      FS(S) < lam  <=>  g_lam(S) < 0
+
+The modules of the package: ``forces`` (force model; its numba kernels in ``_force_kernels``),
+``cut`` (exact minimisation of g_lam by an s-t minimum cut with integer
+capacities), ``search`` (tiles with halos at lam = 1, Dinkelbach least-stable
+clusters in windows, the FS bound raster), ``heuristic`` (area-price sweep
+and greedy repair for connected sets in an area band; its single-cell moves in
+``local_search``), ``band`` (the exact mixed-integer program per window and
+area band, with the relaxation and MILP bounds; ``_solve`` checks every cvxpy
+solve and runs it in the killable child process of ``_highs_process``), ``sizes``
+(candidate windows, area bands, the size-resolved table), ``probability``
+(Monte Carlo probability that a found cluster fails) and ``stage`` (the stage
+function and the cluster table).
 """
 
 from typing import NamedTuple

@@ -1,95 +1,21 @@
 """Iverson's (2000) storm response: pressure head and factor of safety at (Z, t).
 
 :func:`iverson_response`, :func:`storm_pressure_head` and
-:func:`storm_factor_of_safety`, with the point kernels that
-:mod:`slopescreen.hydrology.storm` and the probability module reuse.
+:func:`storm_factor_of_safety`; their point kernels are in
+:mod:`slopescreen._kernels.iverson`, shared with the least-FS search and the
+probability modules.
 """
 
 import math
 
 import numpy as np
 
+from .. import _validate
+from .._kernels.iverson import _head_point, _response, _storm_fs_point
+from .._kernels.slope_stability import _rad
 from .._numba import njit, njit_parallel, prange
 from ..errors import InputError
-from ..parameters import _field, _physical_field
-from ..stability import GAMMA_W, _flat, _fs_point, _rad, _slope_field
 from .rain import _INF
-
-
-_SQRT_PI = math.sqrt(math.pi)
-
-
-# ---------------------------------------------------------------------------
-# Iverson (2000): response function and pressure head
-# ---------------------------------------------------------------------------
-
-
-@njit
-def _response(ts):
-    """R(t*) = sqrt(t*/pi) exp(-1/t*) - erfc(1/sqrt(t*)); 0 for t* <= 0."""
-    if not ts > 0.0:
-        return math.nan if math.isnan(ts) else 0.0
-    if ts == _INF:
-        return _INF
-    x = 1.0 / ts
-    return math.sqrt(ts) / _SQRT_PI * math.exp(-x) - math.erfc(math.sqrt(x))
-
-
-@njit
-def _pulse_response(ts, storm_ts):
-    """R(t*) during the storm, R(t*) - R(t* - T*) after it (superposition)."""
-    r = _response(ts)
-    if ts > storm_ts:
-        r -= _response(ts - storm_ts)
-    return r
-
-
-@njit
-def _peak_equation(v, storm_ts):
-    """G(v) = 2 v - T* (1 + v) ln(1 + v) / v and dG/dv (> 0 where T* < 4)."""
-    lp = math.log1p(v)
-    g = 2.0 * v - storm_ts * (1.0 + v) * lp / v
-    if v < 1e-3:  # (v - ln(1 + v)) / v^2 by its series, free of cancellation
-        d = 0.5 - v / 3.0 + 0.25 * v * v
-    else:
-        d = (v - lp) / (v * v)
-    return g, 2.0 - storm_ts * d
-
-
-@njit
-def _peak_star(storm_ts):
-    """Dimensionless time of the post-storm peak of R(t*) - R(t* - T*).
-
-    dR/dt* = exp(-1/t*) / (2 sqrt(pi t*)), so the peak is where that rate is
-    equal at t* and t* - T*. Writing v = T* / (t* - T*) the condition becomes
-    T* = 2 v^2 / ((1 + v) ln(1 + v)), whose right side increases with v; its
-    root G(v) = 0 is found by Newton steps kept inside a bracket (bisection
-    when a step leaves it). Returns T* (1 + 1/v).
-    """
-    if not storm_ts > 0.0:
-        return 0.0
-    if storm_ts <= 2.0:  # series of the root for small T*
-        v = storm_ts * (0.5 + 0.125 * storm_ts)
-    else:  # large T*: v ~ (T*/2) ln(1 + v) (1 + 1/v), one fixed-point step
-        v = 0.5 * storm_ts * math.log1p(0.5 * storm_ts)
-        v = 0.5 * storm_ts * math.log1p(v) * (1.0 + 1.0 / v)
-    lo = 0.0
-    hi = _INF
-    for _ in range(200):
-        g, dg = _peak_equation(v, storm_ts)
-        if g > 0.0:
-            hi = v
-        else:
-            lo = v
-        new = v - g / dg if dg > 0.0 else math.nan
-        if not (new > lo and new < hi):
-            new = 0.5 * (lo + hi) if hi < _INF else 2.0 * v
-        # Newton converges quadratically: a step below 1e-7 v leaves an error near 1e-14 v
-        done = abs(new - v) <= 1e-7 * v
-        v = new
-        if done:
-            break
-    return storm_ts * (1.0 + 1.0 / v)
 
 
 def iverson_response(t_star):
@@ -145,30 +71,6 @@ def _response_kernel(t, out):
         out[i] = _response(t[i])
 
 
-@njit
-def _head_point(depth, time, cos_a, d, intensity, k, d0, duration, steady_ratio):
-    """Capped pressure head psi (m) at vertical depth Z and time t; also whether the cap bound."""
-    cos2 = cos_a * cos_a
-    beta = cos2 - steady_ratio
-    if beta < 0.0:
-        beta = 0.0
-    ratio = min(intensity, k) / k
-    tz = depth * depth / (4.0 * d0 * cos2)
-    psi = beta * (depth - d) + depth * ratio * _pulse_response(time / tz, duration / tz)
-    cap = beta * depth
-    if psi > cap:
-        return cap, True
-    return psi, False
-
-
-@njit
-def _storm_fs_point(depth, psi, sin_a, cos_a, cohesion, tan_phi, gamma, count_suction):
-    """FS at depth Z for pressure head psi: u = gamma_w psi (psi < 0 counted only on request)."""
-    if psi < 0.0 and not count_suction:
-        psi = 0.0
-    return _fs_point(cohesion, tan_phi, sin_a, cos_a, gamma * depth, GAMMA_W * psi)
-
-
 @njit_parallel
 def _head_kernel(depth, time, slope, d, intens, k, d0, dur, ratio, st, out):
     for i in prange(out.size):
@@ -184,15 +86,15 @@ def _storm_fields(depth_m, time_s, slope_deg, water_table_depth_m, intensity_m_p
                   conductivity_m_per_s, diffusivity_m2_per_s, duration_s, steady_ratio,
                   depth_name="depth_m"):
     return [
-        _field(depth_m, depth_name, 0.0, _INF, open_low=True),
-        _field(time_s, "time_s", 0.0, _INF),
-        _slope_field(slope_deg),
-        _field(water_table_depth_m, "water_table_depth_m", 0.0, _INF),
-        _field(intensity_m_per_s, "intensity_m_per_s", 0.0, _INF),
-        _field(conductivity_m_per_s, "conductivity_m_per_s", 0.0, _INF, open_low=True),
-        _field(diffusivity_m2_per_s, "diffusivity_m2_per_s", 0.0, _INF, open_low=True),
-        _field(duration_s, "duration_s", 0.0, _INF),
-        _field(steady_ratio, "steady_ratio", 0.0, 1.0),
+        _validate.field(depth_m, depth_name, 0.0, _INF, open_low=True),
+        _validate.field(time_s, "time_s", 0.0, _INF),
+        _validate.slope_field(slope_deg),
+        _validate.field(water_table_depth_m, "water_table_depth_m", 0.0, _INF),
+        _validate.field(intensity_m_per_s, "intensity_m_per_s", 0.0, _INF),
+        _validate.field(conductivity_m_per_s, "conductivity_m_per_s", 0.0, _INF, open_low=True),
+        _validate.field(diffusivity_m2_per_s, "diffusivity_m2_per_s", 0.0, _INF, open_low=True),
+        _validate.field(duration_s, "duration_s", 0.0, _INF),
+        _validate.field(steady_ratio, "steady_ratio", 0.0, 1.0),
     ]
 
 
@@ -245,7 +147,7 @@ def storm_pressure_head(
 
     Notes
     -----
-    Iverson (2000), METHODS.md section 7::
+    Iverson (2000); docs/methods.md, "Storm response (Iverson 2000)"::
 
         psi = beta (Z - d) + Z (I_Z/K_Z) R(t*)                    t <= T
         psi = beta (Z - d) + Z (I_Z/K_Z) [R(t*) - R(t* - T*)]     t > T
@@ -271,7 +173,7 @@ def storm_pressure_head(
     """
     fields = _storm_fields(depth_m, time_s, slope_deg, water_table_depth_m, intensity_m_per_s,
                            conductivity_m_per_s, diffusivity_m2_per_s, duration_s, steady_ratio)
-    shape, arrs, st = _flat(fields)
+    shape, arrs, st = _validate.broadcast_flat(fields)
     out = np.empty(int(np.prod(shape)), dtype=np.float64)
     _head_kernel(*arrs, st, out)
     return out.reshape(shape)
@@ -296,10 +198,10 @@ def _storm_fs_kernel(depth, time, slope, d, intens, k, d0, dur, ratio, coh, root
 
 def _strength_fields(cohesion_kpa, root_cohesion_kpa, friction_deg, unit_weight_kn_m3):
     return [
-        _physical_field(cohesion_kpa, "cohesion_kpa"),
-        _physical_field(root_cohesion_kpa, "root_cohesion_kpa"),
-        _physical_field(friction_deg, "friction_deg"),
-        _physical_field(unit_weight_kn_m3, "unit_weight_kn_m3"),
+        _validate.physical_field(cohesion_kpa, "cohesion_kpa"),
+        _validate.physical_field(root_cohesion_kpa, "root_cohesion_kpa"),
+        _validate.physical_field(friction_deg, "friction_deg"),
+        _validate.physical_field(unit_weight_kn_m3, "unit_weight_kn_m3"),
     ]
 
 
@@ -339,7 +241,7 @@ def storm_factor_of_safety(
     count_suction : bool, keyword-only
         If False (default), negative pressure heads (above the water table)
         are taken as 0: suction is conservatively not counted as strength
-        (METHODS.md section 5). True uses Iverson's psi as it is.
+        (docs/methods.md, "Infinite-slope factor of safety"). True uses Iverson's psi as it is.
 
     Returns
     -------
@@ -377,7 +279,7 @@ def storm_factor_of_safety(
     fields = _storm_fields(depth_m, time_s, slope_deg, water_table_depth_m, intensity_m_per_s,
                            conductivity_m_per_s, diffusivity_m2_per_s, duration_s, steady_ratio)
     fields += _strength_fields(cohesion_kpa, root_cohesion_kpa, friction_deg, unit_weight_kn_m3)
-    shape, arrs, st = _flat(fields)
+    shape, arrs, st = _validate.broadcast_flat(fields)
     out = np.empty(int(np.prod(shape)), dtype=np.float32)
     _storm_fs_kernel(*arrs[:13], bool(count_suction), st, out)
     return out.reshape(shape)

@@ -1,26 +1,24 @@
 """Rain cases: steady recharge (:class:`SteadyRain`) and a storm (:class:`StormRain`).
 
-The probability module reuses them.
+Two models use them, both with vertical depths, slope-parallel flow and angles
+in degrees at the interface: steady recharge (O'Loughlin 1986; Montgomery &
+Dietrich 1994), whose wetness W = h_w / z is
+:func:`slopescreen.hydrology.steady_wetness`, and a storm on near-saturated
+soil (Iverson 2000): :func:`~slopescreen.hydrology.iverson_response`,
+:func:`~slopescreen.hydrology.storm_pressure_head`,
+:func:`~slopescreen.hydrology.storm_factor_of_safety` and
+:func:`~slopescreen.hydrology.storm_minimum` (least FS over depth and time,
+per cell). The probability and cluster modules reuse the rain cases.
 """
 
 import dataclasses
 import math
 
+from .. import _validate
 from ..errors import InputError
 
 
 _INF = math.inf
-
-
-def _positive(value, name, *, allow_zero=True):
-    try:
-        v = float(value)
-    except (TypeError, ValueError):
-        raise InputError(f"{name}: expected a number, got {value!r}") from None
-    if not math.isfinite(v) or v < 0.0 or (v == 0.0 and not allow_zero):
-        rel = ">= 0" if allow_zero else "> 0"
-        raise InputError(f"{name}: expected a finite number {rel}, got {value!r}")
-    return v
 
 
 @dataclasses.dataclass(frozen=True)
@@ -41,9 +39,8 @@ class SteadyRain:
     recharge_mm_per_day: float
 
     def __post_init__(self):
-        object.__setattr__(
-            self, "recharge_mm_per_day", _positive(self.recharge_mm_per_day, "recharge_mm_per_day")
-        )
+        object.__setattr__(self, "recharge_mm_per_day",
+                           _validate.nonnegative(self.recharge_mm_per_day, "recharge_mm_per_day"))
 
 
 @dataclasses.dataclass(frozen=True)
@@ -79,11 +76,12 @@ class StormRain:
 
     def __post_init__(self):
         for key in ("intensity_mm_per_h", "duration_h", "water_table_depth_m", "steady_ratio"):
-            object.__setattr__(self, key, _positive(getattr(self, key), key))
+            object.__setattr__(self, key, _validate.nonnegative(getattr(self, key), key))
         if self.steady_ratio > 1.0:
             raise InputError(f"steady_ratio: expected a value in [0, 1], got {self.steady_ratio}")
         if self.horizon_h is not None:
-            object.__setattr__(self, "horizon_h", _positive(self.horizon_h, "horizon_h"))
+            object.__setattr__(self, "horizon_h",
+                               _validate.nonnegative(self.horizon_h, "horizon_h"))
 
     @property
     def intensity_m_per_s(self):

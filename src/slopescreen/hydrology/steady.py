@@ -7,29 +7,11 @@ import math
 
 import numpy as np
 
-from .._numba import njit, njit_parallel, prange
-from ..parameters import _field, _physical_field
-from ..stability import _flat, _rad, _slope_field
+from .. import _validate
+from .._kernels.slope_stability import _rad
+from .._kernels.wetness import _wetness_point
+from .._numba import njit_parallel, prange
 from .rain import _INF
-
-
-# ---------------------------------------------------------------------------
-# steady wetness
-# ---------------------------------------------------------------------------
-
-
-@njit
-def _wetness_point(inflow, k, depth, sin_t, cos_t):
-    """W = min(1, q a / (K z cos sin)); ``inflow`` = q a in the units of K z.
-
-    Flat ground (sin = 0) saturates when q a > 0 and stays dry when q a = 0.
-    """
-    cap = k * depth * cos_t * sin_t
-    # selects and IEEE division so that loops over samples vectorise
-    w = np.true_divide(inflow, cap)
-    w = 1.0 if inflow >= cap else w
-    w = 0.0 if inflow <= 0.0 else w
-    return math.nan if math.isnan(cap) or math.isnan(inflow) else w
 
 
 @njit_parallel
@@ -75,8 +57,8 @@ def steady_wetness(sca_m, slope_deg, *, recharge_mm_per_day, conductivity_m_per_
 
     Notes
     -----
-    Steady slope-parallel Darcy flow with gradient sin(theta) (METHODS.md
-    section 4)::
+    Steady slope-parallel Darcy flow with gradient sin(theta)
+    (docs/methods.md, "Steady wetness")::
 
         W = min(1, q a / (T sin theta)),     T = K_s z cos(theta)
 
@@ -103,12 +85,12 @@ def steady_wetness(sca_m, slope_deg, *, recharge_mm_per_day, conductivity_m_per_
     >>> round(float(w), 4)  # 0.005 * 100 / (1.728 * cos 30 * sin 30)
     0.6682
     """
-    sca = _field(sca_m, "sca_m", 0.0, _INF)
-    slope = _slope_field(slope_deg)
-    q = _field(recharge_mm_per_day, "recharge_mm_per_day", 0.0, _INF)
-    k = _physical_field(conductivity_m_per_day, "conductivity_m_per_day")
-    depth = _physical_field(depth_m, "depth_m")
-    shape, arrs, st = _flat([sca, slope, q, k, depth])
+    sca = _validate.field(sca_m, "sca_m", 0.0, _INF)
+    slope = _validate.slope_field(slope_deg)
+    q = _validate.field(recharge_mm_per_day, "recharge_mm_per_day", 0.0, _INF)
+    k = _validate.physical_field(conductivity_m_per_day, "conductivity_m_per_day")
+    depth = _validate.physical_field(depth_m, "depth_m")
+    shape, arrs, st = _validate.broadcast_flat([sca, slope, q, k, depth])
     out = np.empty(int(np.prod(shape)), dtype=np.float32)
     _steady_wetness_kernel(*arrs, st, out)
     return out.reshape(shape)

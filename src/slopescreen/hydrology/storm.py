@@ -9,85 +9,12 @@ from typing import NamedTuple
 
 import numpy as np
 
-from .._numba import njit, njit_parallel, prange
-from ..errors import InputError
-from ..parameters import _field
-from ..stability import _flat, _rad
-from .iverson import _head_point, _peak_star, _storm_fields, _storm_fs_point, _strength_fields
-from .rain import _INF, _positive
-
-
-# ---------------------------------------------------------------------------
-# least FS over depth and time
-# ---------------------------------------------------------------------------
-
-
-@njit
-def _peak_head(z, cos_a, d, intensity, k, d0, duration, steady_ratio, horizon):
-    """(t, psi, capped) at vertical depth z where the head peaks within [0, horizon].
-
-    The head at a depth rises monotonically up to its post-storm peak
-    (:func:`_peak_star`), so it is highest at min(peak, horizon); without
-    rain the initial head holds (t = 0).
-    """
-    t = 0.0
-    if intensity > 0.0 and duration > 0.0:
-        tz = z * z / (4.0 * d0 * cos_a * cos_a)
-        t = _peak_star(duration / tz) * tz
-        if t > horizon:
-            t = horizon
-    psi, capped = _head_point(z, t, cos_a, d, intensity, k, d0, duration, steady_ratio)
-    return t, psi, capped
-
-
-@njit
-def _storm_min_point(soil_depth, n_depths, sin_a, cos_a, d, intensity, k, d0, duration,
-                     steady_ratio, horizon, cohesion, tan_phi, gamma, count_suction, want_time):
-    """Least FS over Z in {z k/n, k = 1..n} and t in [0, horizon] for one cell.
-
-    Returns (fs, depth, time, cap_bound). For each depth the head rises
-    monotonically up to its post-storm peak (:func:`_peak_head`), so the
-    least FS over time is at min(peak, horizon). With ``want_time`` and the
-    cap bound, the time returned is the first at which the head reaches the
-    cap (the FS stays at its least value from then until the head falls).
-    """
-    if (
-        math.isnan(soil_depth) or math.isnan(sin_a) or math.isnan(d) or math.isnan(intensity)
-        or math.isnan(k) or math.isnan(d0) or math.isnan(duration) or math.isnan(cohesion)
-        or math.isnan(tan_phi) or math.isnan(gamma) or math.isnan(steady_ratio)
-    ):
-        return math.nan, math.nan, math.nan, False
-    best_fs = _INF
-    best_z = math.nan
-    best_t = math.nan
-    best_cap = False
-    for j in range(1, n_depths + 1):
-        z = soil_depth * j / n_depths
-        t, psi, capped = _peak_head(z, cos_a, d, intensity, k, d0, duration, steady_ratio,
-                                    horizon)
-        fs = _storm_fs_point(z, psi, sin_a, cos_a, cohesion, tan_phi, gamma, count_suction)
-        if fs < best_fs:
-            best_fs = fs
-            best_z = z
-            best_t = t
-            best_cap = capped
-    if want_time and best_cap and best_t > 0.0:
-        lo = 0.0
-        hi = best_t
-        _, cap0 = _head_point(best_z, 0.0, cos_a, d, intensity, k, d0, duration, steady_ratio)
-        if cap0:
-            hi = 0.0
-        for _ in range(80):
-            if hi - lo <= 1e-9 * best_t:
-                break
-            mid = 0.5 * (lo + hi)
-            _, c = _head_point(best_z, mid, cos_a, d, intensity, k, d0, duration, steady_ratio)
-            if c:
-                hi = mid
-            else:
-                lo = mid
-        best_t = hi
-    return best_fs, best_z, best_t, best_cap
+from .. import _validate
+from .._kernels.slope_stability import _rad
+from .._kernels.storm import _storm_min_point
+from .._numba import njit_parallel, prange
+from .iverson import _storm_fields, _strength_fields
+from .rain import _INF
 
 
 @njit_parallel
@@ -224,17 +151,13 @@ def storm_minimum(
     if contributing_area_m2 is None:
         area = np.array(np.nan)
     else:
-        area = _field(contributing_area_m2, "contributing_area_m2", 0.0, _INF, open_low=True)
+        area = _validate.field(contributing_area_m2, "contributing_area_m2", 0.0, _INF,
+                               open_low=True)
     fields.append(area)
-    try:
-        n = int(n_depths)
-    except (TypeError, ValueError):
-        raise InputError(f"n_depths: expected an integer >= 1, got {n_depths!r}") from None
-    if n < 1 or n != n_depths:
-        raise InputError(f"n_depths: expected an integer >= 1, got {n_depths!r}")
-    horizon = _INF if horizon_s is None else _positive(horizon_s, "horizon_s")
-    ratio = _positive(validity_ratio, "validity_ratio", allow_zero=False)
-    shape, arrs, st = _flat(fields)
+    n = _validate.positive_int(n_depths, "n_depths")
+    horizon = _INF if horizon_s is None else _validate.nonnegative(horizon_s, "horizon_s")
+    ratio = _validate.nonnegative(validity_ratio, "validity_ratio", allow_zero=False)
+    shape, arrs, st = _validate.broadcast_flat(fields)
     size = int(np.prod(shape))
     fs = np.empty(size, dtype=np.float32)
     z = np.empty(size, dtype=np.float32)

@@ -1,8 +1,26 @@
 """Distributions of a soil parameter: :class:`Parameter` and its constructors.
 
-:func:`fixed`, :func:`uniform`, :func:`normal` and :func:`lognormal` build a
-:class:`Parameter`; :meth:`Parameter.truncated` conditions it on bounds and
-:meth:`Parameter.encode` packs it into the float64 row the numba kernels read.
+A :class:`Parameter` is one of
+
+* ``fixed(value)``;
+* ``uniform(low, high)``;
+* ``normal(mean, sd)``;
+* ``lognormal(median, sd_log)`` (the natural logarithm is normal with mean
+  ``ln(median)`` and standard deviation ``sd_log``);
+
+each optionally truncated to bounds ``[low, high]`` with
+:meth:`Parameter.truncated`. A truncated distribution is the original one
+conditioned on lying inside the bounds (its density is renormalised, nothing is
+piled up at a bound). A normal distribution that can leave the physical range
+of its quantity (a negative depth or cohesion, a friction angle above 60
+degrees) is always truncated to that range before sampling: see
+:data:`slopescreen.parameters.PHYSICAL_RANGE`, applied by
+:func:`slopescreen.probability.encode_table`.
+
+:meth:`Parameter.encode` packs a parameter into the float64 row
+``[kind_code, a, b, low, high]`` that the numba kernels read; they sample it by
+inverse transform (:mod:`slopescreen._kernels.inverse_cdf`) from a
+counter-based generator (:mod:`slopescreen._kernels.counter_rng`).
 """
 
 import dataclasses
@@ -272,7 +290,7 @@ def normal(mean, sd, *, name="parameter"):
     """Normal distribution; truncate it with ``.truncated(low, high)``.
 
     A normal that could leave the physical range of its quantity is truncated
-    to that range (:data:`PHYSICAL_RANGE`) before it is sampled.
+    to that range (:data:`slopescreen.parameters.PHYSICAL_RANGE`) before it is sampled.
 
     Examples
     --------

@@ -4,10 +4,11 @@ Shared by the Monte Carlo and FOSM kernels: steady wetness or the least FS
 of Iverson's storm response.
 """
 
+from .._kernels.rain_case import _STEADY
+from .._kernels.slope_stability import _steady_fs_point
+from .._kernels.storm import _storm_min_point
+from .._kernels.wetness import _wetness_point
 from .._numba import njit
-from ..hydrology import _storm_min_point, _wetness_point
-from ..stability import _steady_fs_point
-from ._inputs import _STEADY
 
 
 @njit

@@ -4,38 +4,22 @@ import math
 
 import numpy as np
 
-from .. import _checks
+from .. import _validate
+from .._kernels.rain_case import _STEADY, _STORM, _rain_vector
+from .._kernels.soil_table import _checked_table
 from ..errors import InputError
-from ..hydrology import SteadyRain, StormRain
-from ..parameters import _field
-from .table import _checked_table
-
-
-_STEADY, _STORM = 0, 1
-
-
-def _rain_vector(rain):
-    if isinstance(rain, SteadyRain):
-        # recharge in m/day, to be multiplied by a (m): inflow in m^2/day
-        return _STEADY, np.array([rain.recharge_mm_per_day * 1e-3, 0.0, 0.0, 0.0, 0.0])
-    if isinstance(rain, StormRain):
-        return _STORM, np.array([
-            rain.intensity_m_per_s, rain.duration_s, rain.water_table_depth_m,
-            rain.steady_ratio, rain.horizon_s,
-        ])
-    raise InputError(f"rain: expected a SteadyRain or a StormRain, got {type(rain).__name__}")
 
 
 def _grid_inputs(slope_deg, sca_m, unit_index, table, rain, n_depths):
     """Validate the inputs shared by the Monte Carlo and FOSM functions."""
     rain_kind, rain_vec = _rain_vector(rain)
-    slope, _ = _checks.surface(slope_deg, name="slope_deg", min_size=1)
-    _field(slope, "slope_deg", 0.0, 90.0, open_high=True)
+    slope, _ = _validate.surface(slope_deg, name="slope_deg", min_size=1)
+    _validate.slope_field(slope)
     shape = slope.shape
     if rain_kind == _STEADY:
         if sca_m is None:
             raise InputError("sca_m: a steady rain case needs the specific catchment area")
-        sca = _field(sca_m, "sca_m", 0.0, math.inf)
+        sca = _validate.field(sca_m, "sca_m", 0.0, math.inf)
         if sca.shape != shape:
             raise InputError(f"sca_m: shape {sca.shape} does not match slope_deg shape {shape}")
     else:
@@ -52,12 +36,7 @@ def _grid_inputs(slope_deg, sca_m, unit_index, table, rain, n_depths):
             f"unit_index: values must lie in [-1, {n_units - 1}] (-1 = nodata, else a row of "
             f"the table), got [{unit.min()}, {unit.max()}]"
         )
-    try:
-        nd = int(n_depths)
-    except (TypeError, ValueError):
-        raise InputError(f"n_depths: expected an integer >= 1, got {n_depths!r}") from None
-    if nd < 1 or nd != n_depths:
-        raise InputError(f"n_depths: expected an integer >= 1, got {n_depths!r}")
+    nd = _validate.positive_int(n_depths, "n_depths")
     flat_sca = sca.reshape(-1) if rain_kind == _STEADY else sca
     return (shape, slope.reshape(-1), flat_sca, unit.astype(np.int64, copy=False).reshape(-1),
             encoded, params, rain_kind, rain_vec, nd)

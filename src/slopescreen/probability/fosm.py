@@ -9,13 +9,13 @@ from typing import NamedTuple
 import numpy as np
 from scipy import special
 
+from .._kernels.rain_case import _STEADY
+from .._kernels.slope_stability import _rad
+from .._kernels.soil_table import _COH, _COND, _DEPTH, _DIFF, _GAMMA, _N_PAR, _PHI, _ROOT
 from .._numba import njit, njit_parallel, prange
 from ..errors import InputError
-from ..stability import _rad
 from ._fs_sample import _sample_fs
-from ._inputs import _STEADY, _grid_inputs
-# encode_table: for the docstring example
-from .table import _COH, _COND, _DEPTH, _DIFF, _GAMMA, _N_PAR, _PHI, _ROOT, encode_table
+from ._inputs import _grid_inputs
 
 
 class FosmResult(NamedTuple):
@@ -51,7 +51,7 @@ def reliability_index(mean_fs, sd_fs, *, fs_distribution="normal"):
     -----
     Normal: beta = (mu - 1) / sigma. Lognormal:
     beta_LN = ln(mu / sqrt(1 + V^2)) / sqrt(ln(1 + V^2)), V = sigma / mu.
-    P_f = Phi(-beta) (METHODS.md section 8.2).
+    P_f = Phi(-beta) (docs/methods.md, "Probability of failure").
 
     References
     ----------
@@ -185,6 +185,7 @@ def fosm_reliability(slope_deg, sca_m, unit_index, table, rain, *, n_depths=1,
     >>> import numpy as np
     >>> from slopescreen.hydrology import SteadyRain
     >>> from slopescreen.parameters import normal
+    >>> from slopescreen.probability import encode_table
     >>> t = encode_table([{"depth_m": 1.0, "cohesion_kpa": normal(5.0, 1.0),
     ...     "root_cohesion_kpa": 0.0, "friction_deg": 30.0, "unit_weight_kn_m3": 18.0,
     ...     "conductivity_m_per_day": 1.0}])

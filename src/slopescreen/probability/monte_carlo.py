@@ -1,103 +1,46 @@
 """Monte Carlo probability of failure per cell: :func:`failure_probability`.
 
+The soil of each cell belongs to a soil unit (``unit_index``, -1 = nodata);
+each unit has one :class:`~slopescreen.parameters.Parameter` per entry of
+:data:`~slopescreen.probability.PARAMETER_ORDER`, packed by
+:func:`~slopescreen.probability.encode_table` into a float64 array of shape
+(n_units, 7, 5). Every distribution is truncated to the physical range of its
+quantity (:data:`slopescreen.parameters.PHYSICAL_RANGE`) before it is used, so
+no negative depth or cohesion is ever drawn. A rain case is a
+:class:`~slopescreen.hydrology.SteadyRain` (FS from the steady wetness) or a
+:class:`~slopescreen.hydrology.StormRain` (least FS over time of Iverson's
+storm response); :mod:`slopescreen.probability.fosm` takes the same inputs.
+
 Parameters are drawn by inverse transform from a counter-based generator,
 per cell or shared within a soil unit, and evaluated in blocks of samples.
+P_f is per cell and conditional on the assumed distributions; parameters are
+independent of each other, and between cells they are either independent
+(``correlation="cell"``) or fully shared within a soil unit
+(``correlation="unit"``). Spatial correlation in between is not modelled:
+P_f of a cell is not the probability that some landslide occurs in an area.
 """
 
 import math
 
 import numpy as np
 
+from .. import _validate
+from .._kernels.counter_rng import _counter_key, _mix64, _seed_key, _stream_key, _uniform01
+from .._kernels.friction import _tan_friction
+from .._kernels.inverse_cdf import _quantile_block
+from .._kernels.rain_case import _STEADY
+from .._kernels.slope_stability import _rad, _steady_fs_point
+from .._kernels.soil_table import _COH, _COND, _DEPTH, _DIFF, _GAMMA, _N_PAR, _PHI, _ROOT
+from .._kernels.unit_draws import _TAN, _UNIT_DOMAIN, _prepare_table, _unit_draws_kernel
+from .._kernels.wetness import _wetness_point
 from .._numba import njit, njit_parallel, prange
 from ..errors import InputError
-from ..hydrology import _wetness_point
-from ..parameters import (
-    PREPARED_WIDTH,
-    _counter_key,
-    _mix64,
-    _prepare_into,
-    _quantile_at,
-    _quantile_block,
-    _seed_key,
-    _stream_key,
-    _uniform01,
-)
-from ..stability import _rad, _steady_fs_point
 from ._fs_sample import _sample_fs
-from ._inputs import _STEADY, _grid_inputs
-# encode_table: for the docstring example
-from .table import _COH, _COND, _DEPTH, _DIFF, _GAMMA, _N_PAR, _PHI, _ROOT, encode_table
+from ._inputs import _grid_inputs
 
 
-_UNIT_DOMAIN = np.uint64(0x0C0FFEE5A1DE5EED)
-
-
-@njit
-def _prepare_table(table):
-    n_units, n_par = table.shape[0], table.shape[1]
-    prep = np.empty((n_units, n_par, PREPARED_WIDTH), dtype=np.float64)
-    for u in range(n_units):
-        for p in range(n_par):
-            _prepare_into(table[u, p], prep[u, p])
-    return prep
-
-
-# Taylor coefficients of sin and cos (1/n! with alternating signs)
-_SIN_C = tuple((-1.0) ** k / math.factorial(2 * k + 1) for k in range(10))
-_COS_C = tuple((-1.0) ** k / math.factorial(2 * k) for k in range(11))
-
-
-@njit
-def _tan_friction(phi_deg):
-    """tan of a friction angle in [0, 60] degrees, branch free (vectorisable).
-
-    sin and cos by their Taylor series to x^19 and x^20: for x <= pi/3 the
-    truncation error is below 1e-19 and the result agrees with math.tan to a
-    few units in the last place. Valid only on [0, 60] degrees, the physical
-    range every friction distribution is truncated to.
-    """
-    x = phi_deg * (math.pi / 180.0)
-    x2 = x * x
-    s = _SIN_C[9]
-    s = s * x2 + _SIN_C[8]
-    s = s * x2 + _SIN_C[7]
-    s = s * x2 + _SIN_C[6]
-    s = s * x2 + _SIN_C[5]
-    s = s * x2 + _SIN_C[4]
-    s = s * x2 + _SIN_C[3]
-    s = s * x2 + _SIN_C[2]
-    s = s * x2 + _SIN_C[1]
-    s = (s * x2 + _SIN_C[0]) * x
-    c = _COS_C[10]
-    c = c * x2 + _COS_C[9]
-    c = c * x2 + _COS_C[8]
-    c = c * x2 + _COS_C[7]
-    c = c * x2 + _COS_C[6]
-    c = c * x2 + _COS_C[5]
-    c = c * x2 + _COS_C[4]
-    c = c * x2 + _COS_C[3]
-    c = c * x2 + _COS_C[2]
-    c = c * x2 + _COS_C[1]
-    c = c * x2 + _COS_C[0]
-    return np.true_divide(s, c)
-
-
-_TAN = _N_PAR  # row of the sample block holding tan(phi)
 _BLOCK = 128  # samples evaluated together (vectorised loops)
 _CHUNK = 512  # cells per parallel task
-
-
-@njit_parallel
-def _unit_draws_kernel(prep, samples, run_key, out):
-    """Draws shared by every cell of a unit: out[u, p, s] (p < 7), tan(phi) in out[u, 7, s]."""
-    n_units, n_par = prep.shape[0], prep.shape[1]
-    for u in prange(n_units):
-        key = _stream_key(run_key, u)
-        for s in range(samples):
-            for p in range(n_par):
-                uni = _uniform01(_counter_key(key, s * n_par + p))
-                out[u, p, s] = _quantile_at(prep, u, p, uni)
-            out[u, _TAN, s] = _tan_friction(out[u, _PHI, s])
 
 
 @njit
@@ -181,29 +124,6 @@ def _failure_probability_kernel(slope, sca, unit, prep, draws, unit_mode, rain_k
             se_out[i] = math.sqrt(pf * (1.0 - pf) / samples)
 
 
-def samples_and_seed(samples, seed):
-    """Validate a Monte Carlo sample count (>= 1) and seed (in [0, 2**64)); return them as ints.
-
-    Raises
-    ------
-    InputError
-        Naming ``samples`` or ``seed``.
-    """
-    try:
-        n = int(samples)
-    except (TypeError, ValueError):
-        raise InputError(f"samples: expected an integer >= 1, got {samples!r}") from None
-    if n < 1 or n != samples:
-        raise InputError(f"samples: expected an integer >= 1, got {samples!r}")
-    try:
-        s = int(seed)
-    except (TypeError, ValueError):
-        raise InputError(f"seed: expected an integer in [0, 2**64), got {seed!r}") from None
-    if s != seed or not 0 <= s < 2**64:
-        raise InputError(f"seed: expected an integer in [0, 2**64), got {seed!r}")
-    return n, s
-
-
 def failure_probability(
     slope_deg,
     sca_m,
@@ -228,7 +148,8 @@ def failure_probability(
     unit_index : array_like of int, shape (rows, cols)
         Row of ``table`` holding each cell's soil unit; -1 is nodata.
     table : numpy.ndarray, shape (n_units, 7, 5)
-        Encoded parameters (:func:`encode_table`, order :data:`PARAMETER_ORDER`).
+        Encoded parameters (:func:`~slopescreen.probability.encode_table`, order
+        :data:`~slopescreen.probability.PARAMETER_ORDER`).
     rain : SteadyRain or StormRain
         The rain case.
     samples : int, keyword-only
@@ -280,6 +201,7 @@ def failure_probability(
     >>> import numpy as np
     >>> from slopescreen.hydrology import SteadyRain
     >>> from slopescreen.parameters import normal
+    >>> from slopescreen.probability import encode_table
     >>> t = encode_table([{"depth_m": 1.0, "cohesion_kpa": 0.0, "root_cohesion_kpa": 0.0,
     ...     "friction_deg": normal(35.0, 3.0), "unit_weight_kn_m3": 18.0,
     ...     "conductivity_m_per_day": 1.0}])
@@ -291,7 +213,7 @@ def failure_probability(
     shape, slope, sca, unit, encoded, _, rain_kind, rain_vec, nd = _grid_inputs(
         slope_deg, sca_m, unit_index, table, rain, n_depths
     )
-    n, s = samples_and_seed(samples, seed)
+    n, s = _validate.samples_and_seed(samples, seed)
     if correlation not in ("cell", "unit"):
         raise InputError(f"correlation: expected 'cell' or 'unit', got {correlation!r}")
     prep = _prepare_table(encoded)

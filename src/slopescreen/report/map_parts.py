@@ -13,7 +13,7 @@ from dataclasses import dataclass
 import numpy as np
 from matplotlib.patches import Rectangle
 
-from .. import _checks
+from .. import _validate
 from .._numba import njit_parallel, prange
 from ..errors import InputError
 
@@ -74,8 +74,8 @@ def hillshade(z, dx, dy, *, azimuth_deg=315.0, altitude_deg=45.0):
     """
     from ..terrain import slope_aspect
 
-    arr, valid = _checks.surface(z, name="z")
-    dx, dy = _checks.cell_size(dx, dy)
+    arr, valid = _validate.surface(z, name="z")
+    dx, dy = _validate.cell_size(dx, dy)
     alt = float(altitude_deg)
     if not (0.0 < alt <= 90.0):
         raise InputError(f"altitude_deg: expected a light elevation in (0, 90] degrees, got {altitude_deg!r}")

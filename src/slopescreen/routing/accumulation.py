@@ -2,6 +2,26 @@
 
 Also the input checks shared by the routing functions (:func:`_prepare`) and
 the padded entry point the pipeline may call (:func:`_route_padded`).
+
+The router works on the surface it is given; it does not fill depressions
+(the pipeline fills first with :func:`slopescreen.terrain.fill_depressions`).
+Every method runs in four passes over a NaN-padded, flattened grid:
+
+1. a row-parallel pass gives each cell its receivers in compact form (one
+   ``uint8`` code, plus one ``float32`` fraction for D-infinity; see
+   :mod:`slopescreen.routing.directions`) and its effective contour width ``b``;
+2. flats (cells with no strictly lower valid neighbour) get the D8 direction
+   of the flat-drainage gradient (:mod:`slopescreen.routing.flats`);
+3. a serial pass counts each cell's donors (``uint8`` in-degree);
+4. a serial topological pass (Kahn's algorithm) accumulates the upslope area
+   in float64.
+
+Memory (D-infinity, per cell, padded grid): surface copy 4 B, code 1 B,
+fraction 4 B, width 4 B, in-degree 1 B, area 8 B, plus 4 B for the output
+of :func:`~slopescreen.routing.specific_catchment_area`; the flats step
+briefly needs 6 B and an int32 queue as long as the flats. MFD and D8 need no
+fraction array; MFD recomputes its fractions from the surface during
+accumulation.
 """
 
 import math
@@ -9,7 +29,7 @@ from typing import NamedTuple
 
 import numpy as np
 
-from .. import _checks
+from .. import _validate
 from .._neighbours import NO_DIRECTION, linear_offsets, pad_nan, unpad
 from .._numba import njit, njit_parallel, prange
 from ..errors import InputError
@@ -131,8 +151,8 @@ def _prepare(z, dx, dy, method, valid, mfd_exponent):
         raise InputError(f"mfd_exponent: expected a number > 0, got {mfd_exponent!r}") from None
     if not math.isfinite(p) or p <= 0.0:
         raise InputError(f"mfd_exponent: expected a finite number > 0, got {mfd_exponent!r}")
-    arr, _ = _checks.surface(z, valid, name="z")
-    dx, dy = _checks.cell_size(dx, dy)
+    arr, _ = _validate.surface(z, valid, name="z")
+    dx, dy = _validate.cell_size(dx, dy)
     return pad_nan(arr), dx, dy, _METHOD_CODE[method], p
 
 

@@ -35,7 +35,7 @@ def specific_catchment_area(z, dx, dy, method="dinf", valid=None, *, mfd_exponen
     Raises
     ------
     InputError
-        Bad surface or cell size (see :func:`slopescreen._checks.surface`),
+        Bad surface or cell size (see :func:`slopescreen._validate.surface`),
         an unknown ``method``, or an ``mfd_exponent`` that is not a finite
         number > 0.
 
@@ -58,7 +58,7 @@ def specific_catchment_area(z, dx, dy, method="dinf", valid=None, *, mfd_exponen
     the valid lower neighbours. MFD: f_k = S_k^p / sum_j S_j^p over the valid
     neighbours with S_k = (z0 - zk)/dk > 0. A cell with no strictly lower
     valid neighbour gets the flat-drainage direction
-    (:func:`slopescreen.flats.drainage_over_flats`); if it has none and it
+    (:func:`slopescreen.routing.drainage_over_flats`); if it has none and it
     touches nodata or the grid border it is an outlet (its area leaves the
     grid), otherwise it is undrained.
 

@@ -2,7 +2,15 @@
 
 A row-parallel pass gives each sloping cell its receiver code, D-infinity
 fraction and width; cells with no lower neighbour then take the
-flat-drainage direction, or are outlets or pits.
+flat-drainage direction (:mod:`slopescreen.routing.flats`), or are outlets or
+pits.
+
+Receiver codes (one ``uint8`` per cell): ``j`` in 0..7 is D-infinity facet
+``j`` (cardinal neighbour ``_FACET_CARD[j]``, diagonal neighbour
+``_FACET_DIAG[j]``, diagonal share in ``frac``); ``8 + k`` sends everything to
+neighbour ``k``; ``16`` is an MFD cell whose fractions are recomputed from the
+surface when needed; ``255`` sends nothing (an outlet on the data edge, a pit,
+or a flat with no outlet).
 """
 
 import math
@@ -11,7 +19,6 @@ import numpy as np
 
 from .._neighbours import NO_DIRECTION, linear_offsets
 from .._numba import njit, njit_parallel, prange
-from ..flats import _flat_directions_padded
 from ._geometry import (
     _F_COS,
     _F_D1,
@@ -35,6 +42,7 @@ from ._geometry import (
     _SINGLE,
     _tables,
 )
+from .flats import _flat_directions_padded
 
 
 def _receiver_codes(zp, dx, dy, method_code, exponent):

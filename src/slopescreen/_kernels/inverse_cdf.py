@@ -1,8 +1,11 @@
 """Sampling an encoded parameter by inverse transform (numba).
 
-:func:`_prepare_into` turns an encoded row ``[kind, a, b, low, high]`` into the
-row that :func:`_quantile_at` and :func:`_quantile_block` read; :func:`_draw`
-maps a 64-bit counter key to one value.
+Numba kernels receive a parameter as the float64 row of
+:meth:`slopescreen.parameters.Parameter.encode` ``[kind_code, a, b, low, high]``.
+:func:`_prepare_into` (or :func:`_prepare`) turns it into the row of
+:data:`PREPARED_WIDTH` values that :func:`_quantile_at`, :func:`_quantile_block`
+and :func:`_quantile` read; :func:`_draw` maps a 64-bit counter key of
+:mod:`slopescreen._kernels.counter_rng` to one value.
 """
 
 import math
@@ -10,7 +13,8 @@ import math
 import numpy as np
 
 from .._numba import njit
-from ._random import _ndtr, _ndtri, _ndtri_central, _uniform01
+from .counter_rng import _uniform01
+from .normal import _ndtr, _ndtri, _ndtri_central
 
 
 # ---------------------------------------------------------------------------

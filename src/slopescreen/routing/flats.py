@@ -21,9 +21,9 @@ Cell classes used by the kernels (one ``uint8`` per padded cell):
 
 import numpy as np
 
-from . import _checks
-from ._neighbours import NO_DIRECTION, linear_offsets, neighbour_distances, pad_nan, unpad
-from ._numba import njit, njit_parallel, prange
+from .. import _validate
+from .._neighbours import NO_DIRECTION, linear_offsets, neighbour_distances, pad_nan, unpad
+from .._numba import njit, njit_parallel, prange
 
 __all__ = ["drainage_over_flats"]
 
@@ -106,7 +106,7 @@ def drainage_over_flats(z, valid=None):
     7 = south-east).
 
     >>> import numpy as np
-    >>> from slopescreen.flats import drainage_over_flats
+    >>> from slopescreen.routing import drainage_over_flats
     >>> z = np.full((5, 7), 2.0)
     >>> z[1:4, 1:6] = 1.0
     >>> z[2, 6] = 0.0
@@ -115,7 +115,7 @@ def drainage_over_flats(z, valid=None):
            [  0,   0,   0,   0, 255],
            [  1,   1,   1,   0, 255]], dtype=uint8)
     """
-    arr, _ = _checks.surface(z, valid, name="z")
+    arr, _ = _validate.surface(z, valid, name="z")
     zp = pad_nan(arr)
     dirs, _ = _flat_directions_padded(zp)
     return np.ascontiguousarray(unpad(dirs))

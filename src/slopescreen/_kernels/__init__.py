@@ -1,0 +1,1 @@
+"""Numba point kernels shared by more than one package (private; import each module directly)."""

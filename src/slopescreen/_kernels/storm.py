@@ -1,0 +1,84 @@
+"""Least storm factor of safety of one cell over depth and time (Iverson 2000).
+
+:func:`_peak_head` gives the head where it peaks at one depth and
+:func:`_storm_min_point` the least FS over a grid of depths; the storm map
+(:func:`slopescreen.hydrology.storm_minimum`), the Monte Carlo of cells and
+the Monte Carlo of clusters call them (see docs/methods.md, "Storm response
+(Iverson 2000)").
+"""
+
+import math
+
+from .._numba import njit
+from .iverson import _head_point, _peak_star, _storm_fs_point
+
+
+_INF = math.inf
+
+
+@njit
+def _peak_head(z, cos_a, d, intensity, k, d0, duration, steady_ratio, horizon):
+    """(t, psi, capped) at vertical depth z where the head peaks within [0, horizon].
+
+    The head at a depth rises monotonically up to its post-storm peak
+    (:func:`_peak_star`), so it is highest at min(peak, horizon); without
+    rain the initial head holds (t = 0).
+    """
+    t = 0.0
+    if intensity > 0.0 and duration > 0.0:
+        tz = z * z / (4.0 * d0 * cos_a * cos_a)
+        t = _peak_star(duration / tz) * tz
+        if t > horizon:
+            t = horizon
+    psi, capped = _head_point(z, t, cos_a, d, intensity, k, d0, duration, steady_ratio)
+    return t, psi, capped
+
+
+@njit
+def _storm_min_point(soil_depth, n_depths, sin_a, cos_a, d, intensity, k, d0, duration,
+                     steady_ratio, horizon, cohesion, tan_phi, gamma, count_suction, want_time):
+    """Least FS over Z in {z k/n, k = 1..n} and t in [0, horizon] for one cell.
+
+    Returns (fs, depth, time, cap_bound). For each depth the head rises
+    monotonically up to its post-storm peak (:func:`_peak_head`), so the
+    least FS over time is at min(peak, horizon). With ``want_time`` and the
+    cap bound, the time returned is the first at which the head reaches the
+    cap (the FS stays at its least value from then until the head falls).
+    """
+    if (
+        math.isnan(soil_depth) or math.isnan(sin_a) or math.isnan(d) or math.isnan(intensity)
+        or math.isnan(k) or math.isnan(d0) or math.isnan(duration) or math.isnan(cohesion)
+        or math.isnan(tan_phi) or math.isnan(gamma) or math.isnan(steady_ratio)
+    ):
+        return math.nan, math.nan, math.nan, False
+    best_fs = _INF
+    best_z = math.nan
+    best_t = math.nan
+    best_cap = False
+    for j in range(1, n_depths + 1):
+        z = soil_depth * j / n_depths
+        t, psi, capped = _peak_head(z, cos_a, d, intensity, k, d0, duration, steady_ratio,
+                                    horizon)
+        fs = _storm_fs_point(z, psi, sin_a, cos_a, cohesion, tan_phi, gamma, count_suction)
+        if fs < best_fs:
+            best_fs = fs
+            best_z = z
+            best_t = t
+            best_cap = capped
+    if want_time and best_cap and best_t > 0.0:
+        lo = 0.0
+        hi = best_t
+        _, cap0 = _head_point(best_z, 0.0, cos_a, d, intensity, k, d0, duration, steady_ratio)
+        if cap0:
+            hi = 0.0
+        for _ in range(80):
+            if hi - lo <= 1e-9 * best_t:
+                break
+            mid = 0.5 * (lo + hi)
+            _, c = _head_point(best_z, mid, cos_a, d, intensity, k, d0, duration, steady_ratio)
+            if c:
+                hi = mid
+            else:
+                lo = mid
+        best_t = hi
+    return best_fs, best_z, best_t, best_cap
