@@ -82,6 +82,7 @@ def test_every_stage_reads_only_results_made_before_it(case):
         assert st.key not in made                      # one stage per result
         made.add(st.key)
     names = [s.name for s in stages]
+    assert names[:3] == ["conditioning", "routing", "slope"]
     assert names.index("routing") < names.index("critical recharge") < names.index("stability: wet")
     assert names.index("stability: storm") < names.index("clusters: storm")
     assert names[-2:] == ["maps", "report"]

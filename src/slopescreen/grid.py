@@ -36,6 +36,12 @@ CODE_NODATA = 0
 BLOCK = 256
 """Tile size of every product; products are written one row of tiles at a time."""
 
+DEFLATE_LEVEL = 1
+"""Deflate level of the products. With the predictors (floating-point for float bands,
+horizontal for class bands) level 1 makes files about 2 % larger than GDAL's default level 6
+and writes them more than twice as fast (measured in benchmarks/bench_run.py; see
+docs/performance.md); every GIS that reads deflate reads them."""
+
 _FOOT = 0.3048
 _US_SURVEY_FOOT = 1200.0 / 3937.0
 
@@ -265,7 +271,8 @@ def write_raster(path, array, grid: Grid, *, description: str, units: str, cauti
         "driver": "GTiff", "height": grid.shape[0], "width": grid.shape[1], "count": 1,
         "dtype": dtype, "crs": grid.crs, "transform": grid.transform, "nodata": nodata,
         "tiled": True, "blockxsize": BLOCK, "blockysize": BLOCK, "compress": "deflate",
-        "predictor": predictor, "BIGTIFF": "IF_SAFER", "NUM_THREADS": "ALL_CPUS",
+        "zlevel": DEFLATE_LEVEL, "predictor": predictor, "BIGTIFF": "IF_SAFER",
+        "NUM_THREADS": "ALL_CPUS",
     }
     tmp = path.with_name(f".{path.name}.partial")
     try:

@@ -58,6 +58,10 @@ class SoilFields:
     table: np.ndarray
     varies: bool
 
+    def products(self):
+        """A run writes no product of the soil fields themselves."""
+        return ()
+
     @property
     def labels(self) -> list[str]:
         """Labels of the units, in index order."""

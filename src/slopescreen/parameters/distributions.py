@@ -27,7 +27,7 @@ import dataclasses
 import math
 
 import numpy as np
-from scipy import special, stats
+from scipy import special
 
 from ..errors import InputError
 
@@ -176,6 +176,8 @@ class Parameter:
 
     def _truncnorm(self):
         loc, zl, zh = self._standard_bounds()
+        from scipy import stats  # only here: importing scipy.stats costs 50 MB and 0.5 s
+
         return stats.truncnorm(zl, zh, loc=loc, scale=self.b)
 
     # -- public API -----------------------------------------------------

@@ -31,9 +31,10 @@ from .records import manifest as manifest_of
 from .records import run_record
 from .report_stage import maps_stage, report_stage
 from .stability_stage import (
-    effective_uncertainty, probability_stage, recharge_stage, soil_stage, stability_stage,
+    effective_uncertainty, probability_stage, recharge_stage, soil_cells_stage, soil_fields_stage,
+    stability_stage,
 )
-from .staging import _commit, _Stages, _Writer
+from .staging import _commit, _release_memory, _Stages, _Writer
 from .terrain_stage import conditioning_stage, routing_stage, slope_stage
 
 log = logging.getLogger("slopescreen.pipeline")
@@ -97,15 +98,16 @@ def plan(scenario: Scenario) -> tuple[Stage, ...]:
     """The stages a run of ``scenario`` runs, in order, with what each reads."""
     slope, soil = ("slope",), ("soil",)
     stages = [
-        _stage("slope", slope, slope_stage),
         _stage("conditioning", ("conditioned",), conditioning_stage),
         _stage("routing", ("routing",), routing_stage, {"conditioned": ("conditioned",)}),
+        _stage("slope", slope, slope_stage),
     ]
     has_clusters = False
     if scenario.soil is not None:
         stages += [
-            _stage("soil units", soil, soil_stage, {"slope": slope, "routing": ("routing",)},
-                   show=False),
+            _stage("soil units", ("soil fields",), soil_fields_stage, show=False),
+            _stage("soil cells", soil, soil_cells_stage,
+                   {"soil": ("soil fields",), "slope": slope, "routing": ("routing",)}, show=False),
             _stage("critical recharge", ("recharge",), recharge_stage, {"cells": soil}),
         ]
         sampled = effective_uncertainty(scenario) is not None
@@ -131,7 +133,7 @@ def plan(scenario: Scenario) -> tuple[Stage, ...]:
                                  {"cases": Many(tuple(earlier))}, section="clusters"))
     report_needs = {"written": WRITTEN, "manifest": MANIFEST, "maps": ("maps",), "slope": slope}
     if scenario.soil is not None:
-        report_needs["soil"] = soil
+        report_needs["soil"] = ("soil fields",)
     if has_clusters:
         report_needs["clusters"] = ("cluster layers",)
     stages += [_stage("maps", ("maps",), maps_stage, {"written": WRITTEN}),
@@ -203,6 +205,7 @@ def run(scenario: Scenario, *, progress=None) -> RunResult:
     started = _dt.datetime.now(_dt.timezone.utc)
     with timer.stage("read inputs", show=False):  # silent: bad input must print one line only
         inputs = read_inputs(scenario)
+    _release_memory()
     grid = inputs.grid
     stages = plan(scenario)
     not_run = stages_not_run(scenario)
@@ -246,6 +249,7 @@ def run(scenario: Scenario, *, progress=None) -> RunResult:
             del result
             for key in [k for k in results if last.get(k, -1) <= i]:
                 del results[key]
+            _release_memory()
         manifest = manifest_now()
         _commit(staging, out, writer.products, manifest,
                 protected={p.resolve() for p in scenario.input_files()})

@@ -13,7 +13,7 @@ from .results import MapsResult, ReportResult, Written
 
 
 def _reader(written: Written, *, previews: bool):
-    """``read(entry)``: the writer's map copy, or the product read back (a few kept)."""
+    """``read(entry)``: the writer's map copy, or the product read back (the last one kept)."""
     from ..grid import read_band
 
     cache: dict[str, np.ndarray] = {}
@@ -23,8 +23,7 @@ def _reader(written: Written, *, previews: bool):
             return written.previews[(entry["key"], entry.get("rain"))]
         path = entry["path"]
         if path not in cache:
-            if len(cache) >= 2:  # large grids: keep two products at most
-                cache.pop(next(iter(cache)))
+            cache.clear()  # large grids: hold one product at a time
             cache[path] = read_band(written.staging / path)
         return cache[path]
 
@@ -63,8 +62,8 @@ def report_stage(scenario, inputs, written: Written, manifest: dict, maps: MapsR
         manifest=manifest, read=_reader(written, previews=False),
         cell_area_m2=inputs.grid.cell_area_m2, slope_deg=slope.slope_deg,
         aspect_deg=slope.aspect_deg,
-        unit_index=None if soil is None else soil.soil.index_array(),
-        unit_labels=[] if soil is None else soil.soil.labels, maps=images,
+        unit_index=None if soil is None else soil.index_array(),
+        unit_labels=[] if soil is None else soil.labels, maps=images,
         tables={"clusters": [] if clusters is None else list(clusters.records),
                 "size_resolved": [] if clusters is None else list(clusters.size_records)})
     return ReportResult(html.render_report(ctx).encode("utf-8"))

@@ -35,9 +35,13 @@ class SoilCells:
         return ()
 
 
-def soil_stage(scenario, inputs, slope, routing) -> SoilCells:
-    """Build the soil fields once; mask the terrain where a soil map leaves cells without a unit."""
-    soil = soil_of(scenario, inputs)
+def soil_fields_stage(scenario, inputs) -> SoilFields:
+    """The soil fields of the run, built once (a unit index and a per-unit table)."""
+    return soil_of(scenario, inputs)
+
+
+def soil_cells_stage(scenario, inputs, soil: SoilFields, slope, routing) -> SoilCells:
+    """The terrain on the cells with a soil unit (masked only where a soil map leaves cells out)."""
     arrays = (slope.slope_deg, routing.sca_m, routing.area_m2)
     if inputs.soil_codes is not None:  # cells without a code drop out
         arrays = tuple(np.where(soil.valid, a, np.nan).astype(np.float32) for a in arrays)

@@ -98,6 +98,35 @@ class _Writer:
                        staging=self.staging, preview_step=self.preview_step)
 
 
+def _libc_trim():
+    """glibc's ``malloc_trim``, or None where the C library has none."""
+    import ctypes
+    import ctypes.util
+
+    try:
+        libc = ctypes.CDLL(ctypes.util.find_library("c") or "libc.so.6")
+        trim = libc.malloc_trim
+    except (OSError, AttributeError):
+        return None
+    trim.argtypes = [ctypes.c_size_t]
+    trim.restype = ctypes.c_int
+    return trim
+
+
+_TRIM = _libc_trim()
+
+
+def _release_memory() -> None:
+    """Hand the heap memory freed by a stage back to the operating system.
+
+    glibc keeps freed blocks below its mmap threshold (GDAL's raster blocks,
+    numba's and numpy's mid-sized temporaries) for reuse; between stages
+    nothing reuses them, so without a trim they would add to the run's peak.
+    """
+    if _TRIM is not None:
+        _TRIM(0)
+
+
 def _commit(staging: Path, out: Path, products, manifest: dict, *, protected=frozenset()) -> None:
     """Move staged products into the output folder; the manifest goes last."""
     for p in products:

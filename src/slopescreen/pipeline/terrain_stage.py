@@ -1,7 +1,11 @@
-"""Terrain stages of a run: slope and aspect, conditioning, routing to specific catchment area.
+"""Terrain stages of a run: conditioning, routing to specific catchment area, slope and aspect.
 
-The slope used in stability is the slope of the original DEM; the
-conditioned (depression-filled) DEM serves routing only.
+The DEM is validated once and padded once for routing: the conditioning
+stage fills its own NaN-padded copy in place and the routing stage routes
+that padded surface directly, so neither re-validates nor re-pads it. The
+slope used in stability is the slope of the original DEM (the conditioned
+DEM serves routing only); it is computed last, so that its two rasters are
+not yet held while routing, the most memory-hungry stage, runs.
 """
 
 from __future__ import annotations
@@ -10,31 +14,48 @@ import numpy as np
 
 from .results import ConditionedDem, RoutingResult, SlopeResult
 
-
-def slope_stage(scenario, inputs) -> SlopeResult:
-    """Horn slope and aspect of the original DEM."""
-    from ..terrain import slope_aspect
-
-    slope_deg, aspect_deg = slope_aspect(inputs.z, inputs.grid.dx_m, inputs.grid.dy_m)
-    return SlopeResult(slope_deg=slope_deg, aspect_deg=aspect_deg)
+_ROWS = 512
+"""Rows per block when the specific catchment area is formed (keeps float64 temporaries small)."""
 
 
 def conditioning_stage(scenario, inputs) -> ConditionedDem:
-    """Priority-Flood depression filling of the DEM, for routing."""
-    from ..terrain import fill_depressions
+    """Priority-Flood depression filling of the DEM, for routing (padded, NaN ring)."""
+    from .. import _validate
+    from .._neighbours import pad_nan
+    from ..terrain import _fill_depressions_padded
 
-    return ConditionedDem(filled=fill_depressions(inputs.z))
+    z, _ = _validate.surface(inputs.z, name=f"{scenario.dem.name}: DEM")
+    zp = pad_nan(z)
+    _fill_depressions_padded(zp)
+    return ConditionedDem(filled=zp)
 
 
 def routing_stage(scenario, inputs, conditioned: ConditionedDem) -> RoutingResult:
     """Upslope area and specific catchment area a = A/b on the conditioned DEM."""
-    from ..routing import flow_accumulation
+    from ..routing.accumulation import _METHOD_CODE, _route_padded
 
     grid = inputs.grid
-    flow = flow_accumulation(conditioned.filled, grid.dx_m, grid.dy_m,
-                             method=scenario.routing.method,
-                             mfd_exponent=scenario.routing.mfd_exponent)
-    with np.errstate(invalid="ignore", divide="ignore"):
-        sca = (flow.area_m2 / flow.width_m).astype(np.float32)
-    return RoutingResult(area_m2=flow.area_m2.astype(np.float32), sca_m=sca,
-                         method=scenario.routing.method)
+    r = scenario.routing
+    acc, width, _codes = _route_padded(conditioned.filled, grid.dx_m, grid.dy_m,
+                                       _METHOD_CODE[r.method], float(r.mfd_exponent))
+    del _codes
+    rows, cols = grid.shape
+    area = np.empty((rows, cols), dtype=np.float32)
+    sca = np.empty((rows, cols), dtype=np.float32)
+    for r0 in range(0, rows, _ROWS):
+        block = slice(r0 + 1, min(r0 + _ROWS, rows) + 1)
+        a = acc[block, 1:-1]
+        area[r0:r0 + a.shape[0]] = a
+        with np.errstate(invalid="ignore", divide="ignore"):
+            sca[r0:r0 + a.shape[0]] = a / width[block, 1:-1]
+    return RoutingResult(area_m2=area, sca_m=sca, method=r.method)
+
+
+def slope_stage(scenario, inputs) -> SlopeResult:
+    """Horn slope and aspect of the original DEM."""
+    from .._neighbours import pad_nan
+    from ..terrain import _slope_aspect_padded
+
+    slope_deg, aspect_deg = _slope_aspect_padded(pad_nan(inputs.z), inputs.grid.dx_m,
+                                                 inputs.grid.dy_m)
+    return SlopeResult(slope_deg=slope_deg, aspect_deg=aspect_deg)

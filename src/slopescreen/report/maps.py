@@ -228,13 +228,19 @@ def png_bytes(fig, *, title="", caution=SHORT) -> bytes:
     return buf.getvalue()
 
 
-def display_step(shape, max_pixels=1400) -> int:
+MAP_PIXELS = 800
+"""Most grid cells drawn along a side of a map. The map area of a figure is at most 620 x 700
+pixels at 100 dpi, so a finer stride would not show: the products are drawn at the stride
+that brings them within this (the products themselves are never resampled)."""
+
+
+def display_step(shape, max_pixels=MAP_PIXELS) -> int:
     """Stride that brings a grid within ``max_pixels`` along its longer side."""
     return max(1, math.ceil(max(shape) / max_pixels))
 
 
 def product_maps(products, read, *, z, grid, title="", rain_texts=None, marks=(),
-                 max_pixels=1400, dpi=100):
+                 max_pixels=MAP_PIXELS, dpi=100):
     """Render a map of every product that has a :data:`STYLES` entry.
 
     Parameters

@@ -159,7 +159,7 @@ def _terrain_section(ctx):
         v = ctx.read(e)
         fin = v[np.isfinite(v)]
         if fin.size:
-            p = np.percentile(fin, [10, 50, 90])
+            p = np.percentile(fin, [10, 50, 90], overwrite_input=True)  # fin is our own copy
             blocks.append(para(f"10th, 50th and 90th percentiles: {p[0]:.3g}, {p[1]:.3g} and "
                                f"{p[2]:.3g}{NBSP}{e['units']}.", lead=product_title(key) + ":"))
         m = ctx.map_of(key)

@@ -13,6 +13,7 @@ from __future__ import annotations
 import numpy as np
 
 from ..products import title as product_title
+from .styles import at_least
 
 NBSP = "\u00a0"
 """No-break space between a number and its unit, so "5.3 %" never wraps."""
@@ -102,6 +103,12 @@ def band_areas(fs, cell_area_m2):
     return out
 
 
+def _floats(values) -> np.ndarray:
+    """A float array as it is (float32 stays float32: no copy of a whole product)."""
+    v = np.asarray(values)
+    return v if np.issubdtype(v.dtype, np.floating) else v.astype(np.float64)
+
+
 def _sector(aspect_deg):
     a = np.asarray(aspect_deg, dtype=np.float64)
     return np.floor(((a + 22.5) % 360.0) / 45.0).astype(np.int64)
@@ -143,17 +150,17 @@ def case_facts(fs, *, cell_area_m2, pf=None, wetness=None, slope_deg=None, aspec
     >>> f["fail_m2"], f["fail_share"], f["aspects"]
     (50.0, 0.5, [('north', 0.5), ('south', 0.5)])
     """
-    fs = np.asarray(fs, dtype=np.float64)
+    fs = _floats(fs)
     has = np.isfinite(fs)
-    fail = has & (fs < 1.0)
+    fail = has & ~at_least(fs, 1.0)
     n, k = int(has.sum()), int(fail.sum())
     facts = {"computed_m2": n * cell_area_m2, "fail_m2": k * cell_area_m2,
              "fail_share": k / n if n else 0.0, "pf_m2": None, "pf_share": None, "units": [],
              "slope_p10": None, "slope_p90": None, "aspects": [], "saturated_share": None}
     if pf is not None:
-        pf = np.asarray(pf, dtype=np.float64)
+        pf = _floats(pf)
         hp = np.isfinite(pf)
-        m = int((hp & (pf > 0.5)).sum())
+        m = int((hp & (pf > 0.5)).sum())  # 0.5 is exact in float32 and float64
         facts["pf_m2"] = m * cell_area_m2
         facts["pf_share"] = m / int(hp.sum()) if hp.any() else 0.0
     if k == 0:
@@ -164,20 +171,21 @@ def case_facts(fs, *, cell_area_m2, pf=None, wetness=None, slope_deg=None, aspec
         order = np.argsort(-counts, kind="stable")
         facts["units"] = [(unit_labels[i], float(counts[i] / k)) for i in order if counts[i] > 0]
     if slope_deg is not None:
-        s = np.asarray(slope_deg, dtype=np.float64)[fail]
+        s = np.asarray(slope_deg)[fail]
         s = s[np.isfinite(s)]
-        if s.size:
-            facts["slope_p10"], facts["slope_p90"] = (float(v) for v in np.percentile(s, [10, 90]))
+        if s.size:  # s is our own copy: the percentile may reorder it
+            facts["slope_p10"], facts["slope_p90"] = (
+                float(v) for v in np.percentile(s, [10, 90], overwrite_input=True))
     if aspect_deg is not None:
-        a = np.asarray(aspect_deg, dtype=np.float64)[fail]
+        a = np.asarray(aspect_deg)[fail].astype(np.float64)
         a = a[np.isfinite(a)]
         if a.size:
             counts = np.bincount(_sector(a), minlength=8)
             order = np.argsort(-counts, kind="stable")
             facts["aspects"] = [(ASPECT_SECTORS[i], float(counts[i] / a.size)) for i in order if counts[i] > 0]
     if wetness is not None:
-        w = np.asarray(wetness, dtype=np.float64)[fail]
-        facts["saturated_share"] = float(np.mean(w >= 0.999)) if w.size else None
+        w = np.asarray(wetness)[fail]
+        facts["saturated_share"] = float(np.mean(at_least(w, 0.999))) if w.size else None
     return facts
 
 
@@ -209,7 +217,7 @@ def recharge_distribution(q_cr, classes, cell_area_m2, rates=()):
     >>> d["rates"]
     [('wet', 5.0, 20.0, 0.6666666666666666)]
     """
-    q = np.asarray(q_cr, dtype=np.float64)
+    q = _floats(q_cr)
     c = np.asarray(classes)
     n = int((c > 0).sum())
     out = {"classes": [], "percentiles": [], "rates": []}
@@ -218,11 +226,12 @@ def recharge_distribution(q_cr, classes, cell_area_m2, rates=()):
         out["classes"].append((code, k * cell_area_m2, k / n if n else 0.0))
     has = (c == 2) & np.isfinite(q)
     if has.any():
-        out["percentiles"] = [(p, float(v)) for p, v in
-                              zip((10, 25, 50, 75, 90), np.percentile(q[has], [10, 25, 50, 75, 90]))]
+        ps = (10, 25, 50, 75, 90)
+        values = np.percentile(q[has], ps, overwrite_input=True)  # q[has] is our own copy
+        out["percentiles"] = [(p, float(v)) for p, v in zip(ps, values)]
     dry = int((c == 1).sum())
     for name, rate in rates:
-        k = dry + int((has & (q < rate)).sum())
+        k = dry + int((has & ~at_least(q, rate)).sum())
         out["rates"].append((name, rate, k * cell_area_m2, k / n if n else 0.0))
     return out
 

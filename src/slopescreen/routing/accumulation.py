@@ -126,12 +126,11 @@ def flow_accumulation(z, dx, dy, method="dinf", valid=None, *, mfd_exponent=1.1)
     undrained = np.zeros((nrows - 2, ncols - 2), dtype=bool)
     outflow = _outlets_kernel(zp.reshape(-1), codes.reshape(-1), acc.reshape(-1),
                               nrows, ncols, linear_offsets(ncols), undrained)
-    return FlowResult(
-        area_m2=np.ascontiguousarray(unpad(acc)),
-        width_m=np.ascontiguousarray(unpad(width)),
-        outflow_m2=float(outflow),
-        undrained=undrained,
-    )
+    del zp, codes  # let go of the padded surface and codes before the unpadded copies
+    area = np.ascontiguousarray(unpad(acc))
+    del acc
+    return FlowResult(area_m2=area, width_m=np.ascontiguousarray(unpad(width)),
+                      outflow_m2=float(outflow), undrained=undrained)
 
 
 # --------------------------------------------------------------------------
