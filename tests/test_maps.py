@@ -22,6 +22,7 @@ from rasterio.transform import from_origin
 from slopescreen.errors import InputError
 from slopescreen.grid import Grid
 from slopescreen.report import maps
+from slopescreen.report.map_layers import _outline_segments
 from slopescreen.report.cautions import SHORT
 
 
@@ -215,11 +216,11 @@ def test_cluster_outlines_trace_the_perimeter():
     # and two touching clusters share their common edge once
     lab = np.zeros((6, 7), dtype=int)
     lab[1:3, 2:5] = 1
-    segs = maps._outline_segments(lab, (0.0, 35.0, 0.0, 30.0))
+    segs = _outline_segments(lab, (0.0, 35.0, 0.0, 30.0))
     length = np.hypot(*(segs[:, 1] - segs[:, 0]).T).sum()
     assert length == pytest.approx(50.0)
     lab[3:5, 2:5] = 2                                        # a second cluster below, touching
-    segs = maps._outline_segments(lab, (0.0, 35.0, 0.0, 30.0))
+    segs = _outline_segments(lab, (0.0, 35.0, 0.0, 30.0))
     length = np.hypot(*(segs[:, 1] - segs[:, 0]).T).sum()
     assert length == pytest.approx(50.0 + 50.0 - 15.0)
 

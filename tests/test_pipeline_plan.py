@@ -225,3 +225,56 @@ def test_products_written_in_strips_read_back_exactly(tmp_path):
     write_raster(tmp_path / "c.tif", classes, grid, description="d", units="class", caution="c")
     got = read_back(tmp_path / "c.tif")[0]
     np.testing.assert_array_equal(got, np.where(valid, classes, np.nan))
+
+
+def test_figures_computed_in_memory_equal_figures_from_the_written_products(case, monkeypatch):
+    # The run sums each array while it is in memory; a report made from the products alone
+    # reads them back. Both must quote the same numbers (the products are the reference).
+    from slopescreen.report import html
+    from slopescreen.report.figures import figures_from_products
+    from slopescreen.terrain import slope_aspect
+
+    seen = {}
+    real = html.render_report
+
+    def capture(ctx):
+        seen["ctx"] = ctx
+        return real(ctx)
+
+    monkeypatch.setattr(html, "render_report", capture)
+    result = pipeline.run(load_scenario(case))
+    ctx = seen["ctx"]
+    out = result.output
+    z, _ = read_back(case.parent / "dem.tif")
+    _slope, aspect = slope_aspect(z.astype(np.float32), 5.0, 5.0)
+    reread = dataclasses.replace(
+        ctx, figures=None, read=lambda e: read_back(out / e["path"])[0].astype(np.float32),
+        slope_deg=read_back(out / "slope.tif")[0].astype(np.float32), aspect_deg=aspect,
+        unit_index=np.where(np.isfinite(z), 0, -1), unit_labels=["colluvium"])
+    again = figures_from_products(reread)
+    assert set(again.cases) == set(ctx.figures.cases) == {"wet", "storm"}
+    for name, fig in ctx.figures.cases.items():
+        assert again.cases[name].facts == fig.facts
+        assert again.cases[name].bands == fig.bands
+        assert again.cases[name].flag_shares == fig.flag_shares
+    assert ctx.figures.cases["storm"].flag_shares is not None
+    assert again.recharge == ctx.figures.recharge
+    assert dict(again.terrain) == dict(ctx.figures.terrain)
+
+
+def test_a_failed_background_write_fails_the_run_and_leaves_nothing(case, monkeypatch):
+    # rasters are written on a background thread; its failure must surface and roll back
+    from slopescreen.pipeline import staging
+
+    real = staging.write_raster
+
+    def failing(path, *args, **kwargs):
+        if "wetness" in path.name:
+            raise OSError("disk full (simulated)")
+        return real(path, *args, **kwargs)
+
+    monkeypatch.setattr(staging, "write_raster", failing)
+    with pytest.raises(OSError, match="disk full"):
+        pipeline.run(load_scenario(case))
+    out = case.parent / "out"
+    assert not out.exists() or sorted(p.name for p in out.iterdir()) == []

@@ -26,6 +26,7 @@ from typing import Callable
 from .. import __version__
 from ..scenario import Scenario
 from .clusters_stage import cluster_layers_stage, clusters_stage
+from .figures_stage import case_figures_stage, recharge_figures_stage, terrain_figures_stage
 from .inputs import RunResult, read_inputs
 from .records import manifest as manifest_of
 from .records import run_record
@@ -102,40 +103,48 @@ def plan(scenario: Scenario) -> tuple[Stage, ...]:
         _stage("routing", ("routing",), routing_stage, {"conditioned": ("conditioned",)}),
         _stage("slope", slope, slope_stage),
     ]
-    has_clusters = False
+    stages.append(_stage("terrain figures", ("terrain figures",), terrain_figures_stage,
+                         {"slope": slope, "routing": ("routing",)}, show=False))
+    report_needs = {"written": WRITTEN, "manifest": MANIFEST, "maps": ("maps",),
+                    "terrain": ("terrain figures",)}
     if scenario.soil is not None:
+        fields = ("soil fields",)
         stages += [
-            _stage("soil units", ("soil fields",), soil_fields_stage, show=False),
+            _stage("soil units", fields, soil_fields_stage, show=False),
             _stage("soil cells", soil, soil_cells_stage,
-                   {"soil": ("soil fields",), "slope": slope, "routing": ("routing",)}, show=False),
+                   {"soil": fields, "slope": slope, "routing": ("routing",)}, show=False),
             _stage("critical recharge", ("recharge",), recharge_stage, {"cells": soil}),
+            _stage("recharge figures", ("recharge figures",), recharge_figures_stage,
+                   {"recharge": ("recharge",)}, show=False),
         ]
+        report_needs["recharge"] = ("recharge figures",)
         sampled = effective_uncertainty(scenario) is not None
-        has_clusters = scenario.clusters is not None
-        earlier = []
+        earlier, figures = [], []
         for case in scenario.rain:
             stability = ("stability", case.name)
             stages.append(_stage(f"stability: {case.name}", stability, stability_stage,
                                  {"cells": soil}, case=case))
-            if has_clusters:
+            if scenario.clusters is not None:
                 key = ("clusters", case.name)
                 stages.append(_stage(f"clusters: {case.name}", key, clusters_stage,
                                      {"cells": soil, "slope": slope, "stability": stability,
                                       "earlier": Many(tuple(earlier))},
                                      case=case, section="clusters"))
                 earlier.append(key)
+            case_needs = {"stability": stability, "slope": slope, "soil": fields}
             if sampled:
                 stages.append(_stage(f"probability of failure: {case.name}",
                                      ("probability", case.name), probability_stage,
                                      {"cells": soil}, case=case))
-        if has_clusters:
+                case_needs["probability"] = ("probability", case.name)
+            stages.append(_stage(f"figures: {case.name}", ("figures", case.name),
+                                 case_figures_stage, case_needs, case=case, show=False))
+            figures.append(("figures", case.name))
+        report_needs["cases"] = Many(tuple(figures))
+        if scenario.clusters is not None:
             stages.append(_stage("write clusters", ("cluster layers",), cluster_layers_stage,
                                  {"cases": Many(tuple(earlier))}, section="clusters"))
-    report_needs = {"written": WRITTEN, "manifest": MANIFEST, "maps": ("maps",), "slope": slope}
-    if scenario.soil is not None:
-        report_needs["soil"] = ("soil fields",)
-    if has_clusters:
-        report_needs["clusters"] = ("cluster layers",)
+            report_needs["clusters"] = ("cluster layers",)
     stages += [_stage("maps", ("maps",), maps_stage, {"written": WRITTEN}),
                _stage("report", ("report",), report_stage, report_needs)]
     return tuple(stages)
@@ -217,6 +226,7 @@ def run(scenario: Scenario, *, progress=None) -> RunResult:
     for item in not_run:
         log.warning("[%s] is configured, but %s; skipped (the report says so)",
                     item["section"], item["reason"])
+    writer = None
     try:
         writer = _Writer(staging, grid, preview_step=display_step(grid.shape))
         last = _last_uses(stages)
@@ -250,10 +260,14 @@ def run(scenario: Scenario, *, progress=None) -> RunResult:
             for key in [k for k in results if last.get(k, -1) <= i]:
                 del results[key]
             _release_memory()
+        with timer.stage("write products", show=False):
+            writer.finish()
         manifest = manifest_now()
         _commit(staging, out, writer.products, manifest,
                 protected={p.resolve() for p in scenario.input_files()})
     finally:
+        if writer is not None:
+            writer.close()
         shutil.rmtree(staging, ignore_errors=True)
         _progress_call(progress, "end")
     return RunResult(output=out, manifest=manifest, products=writer.products,

@@ -216,3 +216,13 @@ class ReportResult:
 
     def products(self):
         return (Emit("report", self.html),)
+
+
+@dataclass(frozen=True)
+class FiguresResult:
+    """Numbers the report quotes, computed while the arrays are in memory (no product)."""
+
+    value: Any
+
+    def products(self):
+        return ()

@@ -30,6 +30,9 @@ log = logging.getLogger("slopescreen.pipeline")
 MAP_OVERLAYS = ("critical_recharge_class", "cluster_labels")
 """Rasters drawn on the maps of other products (classes, cluster outlines)."""
 
+MAX_PENDING = 2
+"""Rasters that may wait for the background writer before a stage waits for it."""
+
 
 class _Stages:
     """Times named stages and reports progress."""
@@ -50,14 +53,24 @@ class _Stages:
 
 
 class _Writer:
-    """Writes products into the staging folder and lists them."""
+    """Writes products into the staging folder and lists them.
+
+    Rasters are compressed and written on one background thread (GDAL and
+    the numba kernels release the GIL, so the next stage computes meanwhile);
+    at most :data:`MAX_PENDING` rasters wait, which bounds the memory held for
+    them. :meth:`finish` waits for every write and raises the first failure.
+    """
 
     def __init__(self, staging: Path, grid: Grid, *, preview_step: int):
+        from concurrent.futures import ThreadPoolExecutor
+
         self.staging = staging
         self.grid = grid
         self.products: list[Product] = []
         self.preview_step = preview_step
         self.previews: dict[tuple, np.ndarray] = {}
+        self._pool = ThreadPoolExecutor(max_workers=1, thread_name_prefix="slopescreen-writer")
+        self._pending: list = []
 
     def write(self, emit) -> Product:
         """Write one product of a stage; return its manifest entry."""
@@ -81,14 +94,31 @@ class _Writer:
         if data.dtype != np.dtype(entry.dtype):
             raise TypeError(f"product {entry.key}: a stage gave {data.dtype}, the registry "
                             f"says {entry.dtype}")
-        tags = dict(entry.tags) | dict(emit.tags)
-        write_raster(self.staging / name, data, self.grid,
-                     description=entry.description.format(**emit.fields), units=entry.units,
-                     caution=SHORT, tags=tags or None)
+        if data.shape != tuple(self.grid.shape):
+            raise ValueError(f"product {entry.key}: shape {data.shape} is not the grid's "
+                             f"{self.grid.shape}")
         if entry.key in STYLES or entry.key in MAP_OVERLAYS:
             step = self.preview_step
             rain = None if emit.rain is None else emit.rain.name
             self.previews[(entry.key, rain)] = np.ascontiguousarray(data[::step, ::step])
+        while len(self._pending) >= MAX_PENDING:
+            self._pending.pop(0).result()
+        self._pending.append(self._pool.submit(
+            write_raster, self.staging / name, data, self.grid,
+            description=entry.description.format(**emit.fields), units=entry.units,
+            caution=SHORT, tags=(dict(entry.tags) | dict(emit.tags)) or None))
+
+    def finish(self) -> None:
+        """Wait for every background write; raise the first failure."""
+        while self._pending:
+            self._pending.pop(0).result()
+
+    def close(self) -> None:
+        """Stop the background writer (after a failure: pending writes are dropped)."""
+        for future in self._pending:
+            future.cancel()
+        self._pool.shutdown(wait=True)
+        self._pending.clear()
 
     def snapshot(self):
         """What has been written so far, for the maps and the report (read only)."""

@@ -116,6 +116,8 @@ class ReportContext:
         Soil-unit row per cell (-1 = none); rows match ``unit_labels``.
     unit_labels : list of str
     maps : list of MapImage
+    tables : dict
+    figures : ReportFigures or None
     """
 
     manifest: dict
@@ -128,6 +130,9 @@ class ReportContext:
     maps: list = field(default_factory=list)
     tables: dict = field(default_factory=dict)
     """Attribute tables of vector products, e.g. ``{"clusters": [row dict, ...]}``."""
+    figures: object = None
+    """The numbers the report quotes (:class:`~slopescreen.report.figures.ReportFigures`), as a
+    run computes them; None computes them from the products through ``read``."""
 
     def products(self, key, rain=None, *, any_rain=False):
         """Manifest entries with this key (and rain case, unless ``any_rain``)."""

@@ -22,33 +22,27 @@ The parts live in modules of their own: the blocks and the context in
 :mod:`~slopescreen.report.blocks`, the summaries and text helpers in
 :mod:`~slopescreen.report.summaries`, the sections in
 :mod:`~slopescreen.report.sections` and :mod:`~slopescreen.report.stages`.
-Every name stays importable from this module.
+The public names of those modules stay importable from this one.
 """
 
 from __future__ import annotations
 
-from .blocks import (  # noqa: F401
-    Block, MapImage, ReportContext, Section, bullets, data_uri, figure, note, para, table,
-)
+from .blocks import Block, MapImage, ReportContext, Section, data_uri, para
 from .cautions import CAUTIONS, SHORT
-from .sections import (  # noqa: F401
-    METHODS, REFERENCES, _anchor, _case_sections, _facts, _glance, _inputs_section,
-    _methods_section, _products_section, _provenance_section, _rain_cases, _recharge_section,
-    _routing_text, _terrain_section,
+from .sections import (
+    _case_sections, _glance, _inputs_section, _methods_section, _products_section,
+    _provenance_section, _recharge_section, _terrain_section,
 )
-from .stages import (  # noqa: F401
-    STAGE_SECTIONS, StageSection, _cluster_blocks, _generic_stage_blocks, _stage_sections,
-)
-from .summaries import (  # noqa: F401
-    ASPECT_SECTORS, NBSP, PROPERTY_UNITS, _join, _map_alt, _map_caption, _num,
-    _pct, _sector, _units_text, band_areas, case_facts, describe_case, format_area,
-    parameter_text, rain_text, recharge_distribution,
+from .stages import STAGE_SECTIONS, StageSection, _stage_sections
+from .summaries import (
+    band_areas, case_facts, describe_case, format_area, parameter_text, rain_text,
+    recharge_distribution,
 )
 
 __all__ = [
     "Block", "Section", "StageSection", "STAGE_SECTIONS", "ReportContext", "MapImage",
     "band_areas", "case_facts", "recharge_distribution", "describe_case", "render_report",
-    "data_uri", "format_area",
+    "data_uri", "format_area", "parameter_text", "rain_text",
 ]
 
 
@@ -92,18 +86,19 @@ def render_report(ctx: ReportContext) -> str:
     >>> "&lt;b&gt;t&lt;/b&gt;" in page and "<script" not in page
     True
     """
-    facts = {}
-    for case in _rain_cases(ctx):
-        facts[case["name"]] = _facts(ctx, case["name"])
+    from .figures import figures_from_products
+
+    figures = ctx.figures if ctx.figures is not None else figures_from_products(ctx)
+    facts = {name: fig.facts for name, fig in figures.cases.items()}
     glance = _glance(ctx, facts)
     body = []
-    cases = _case_sections(ctx, facts)
+    cases = _case_sections(ctx, figures)
     if cases:
         body.append(Section("cases", "Maps and tables by rain case",
                             [para("Each rain case is computed on its own; the maps show the same "
                                   "ground under each case.")]))
         body.extend(cases)
-    for part in (_recharge_section(ctx), _terrain_section(ctx)):
+    for part in (_recharge_section(ctx, figures.recharge), _terrain_section(ctx, figures.terrain)):
         if part is not None:
             body.append(part)
     body.extend(_stage_sections(ctx))

@@ -29,14 +29,12 @@ from matplotlib.figure import Figure
 
 from ..errors import InputError
 from .cautions import SHORT
-from .map_layers import _legend_handles, _outline_segments, _rgba, draw_product  # noqa: F401
-from .map_parts import (  # noqa: F401
-    MapFrame, _hillshade_kernel, add_north_arrow, add_scale_bar, crs_label, hillshade, nice_length,
-)
-from .styles import (  # noqa: F401
-    _COOL, _EARTH, _WARM, FS_BANDS, FS_STYLE, NO_VALUE_COLOUR, Style, fs_band,
-)
 from ..products import STYLES, spec
+from .map_layers import _legend_handles, _outline_segments, draw_product
+from .map_parts import (
+    MapFrame, add_north_arrow, add_scale_bar, crs_label, hillshade, nice_length,
+)
+from .styles import FS_BANDS, Style, fs_band
 
 __all__ = [
     "FS_BANDS", "STYLES", "MapFrame", "Style", "hillshade", "fs_band", "nice_length",

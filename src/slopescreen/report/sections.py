@@ -10,14 +10,13 @@ and provenance. The sections of the optional stages are in
 
 from __future__ import annotations
 
-import numpy as np
 
 from .blocks import Block, Section, bullets, figure, para, table
 from ..products import title as product_title
 from .stages import STAGE_SECTIONS
 from .summaries import (
-    NBSP, PROPERTY_UNITS, _map_alt, _map_caption, _pct, _units_text, band_areas,
-    case_facts, describe_case, format_area, parameter_text, rain_text, recharge_distribution,
+    NBSP, PROPERTY_UNITS, _map_alt, _map_caption, _pct, _units_text, describe_case, format_area,
+    parameter_text, rain_text,
 )
 
 # ---------------------------------------------------------------------------
@@ -27,21 +26,6 @@ from .summaries import (
 
 def _rain_cases(ctx):
     return ctx.manifest.get("rain") or []
-
-
-def _facts(ctx, case_name):
-    fs_e = ctx.product("factor_of_safety", case_name)
-    if fs_e is None:
-        return None
-    pf_e = ctx.product("failure_probability", case_name)
-    case = next((c for c in _rain_cases(ctx) if c["name"] == case_name), {})
-    # saturation to the surface is a steady-state notion; storm wetness is an equivalent head
-    wet_e = ctx.product("wetness", case_name) if case.get("steady_mm_per_day") is not None else None
-    return case_facts(ctx.read(fs_e), cell_area_m2=ctx.cell_area_m2,
-                      pf=None if pf_e is None else ctx.read(pf_e),
-                      wetness=None if wet_e is None else ctx.read(wet_e),
-                      slope_deg=ctx.slope_deg, aspect_deg=ctx.aspect_deg,
-                      unit_index=ctx.unit_index, unit_labels=ctx.unit_labels)
 
 
 def _glance(ctx, facts_by_case):
@@ -74,33 +58,26 @@ def _glance(ctx, facts_by_case):
     return Section("glance", "What fails where", blocks)
 
 
-def _case_sections(ctx, facts_by_case):
+def _case_sections(ctx, figures):
     out = []
     flags_text = {1: "pressure head at its cap (saturated to the surface)",
                   2: "rain above the saturated conductivity (excess ran off)",
                   4: "least FS late compared with A/D₀ (short-time solution doubtful)"}
     for case in _rain_cases(ctx):
         name = case["name"]
-        f = facts_by_case.get(name)
+        fig = figures.cases.get(name)
+        f = None if fig is None else fig.facts
         blocks = [para(rain_text(case), lead="Rain:")]
-        fs_e = ctx.product("factor_of_safety", name)
-        if fs_e is not None:
-            rows = [[label, format_area(a), _pct(s)] for label, a, s in
-                    band_areas(ctx.read(fs_e), ctx.cell_area_m2)]
-            if f is not None and f["pf_m2"] is not None:
+        if fig is not None:
+            rows = [[label, format_area(a), _pct(s)] for label, a, s in fig.bands]
+            if f["pf_m2"] is not None:
                 rows.append(["probability of failure above 0.5 (any FS band)", format_area(f["pf_m2"]),
                              _pct(f["pf_share"])])
             blocks.append(table(f"Area by factor-of-safety band (common screening practice), “{name}”",
                                 ["factor of safety", "area", "share of the computed area"], rows,
                                 [False, True, True]))
-        flags_e = ctx.product("storm_flags", name)
-        if flags_e is not None:
-            flags = ctx.read(flags_e)
-            fin = np.isfinite(flags) & (flags > 0)
-            n = int(fin.sum())
-            bits = np.where(fin, flags, 0).astype(np.int64)
-            rows = [[text, _pct(((bits & bit) > 0).sum() / n if n else 0.0)]
-                    for bit, text in flags_text.items()]
+        if fig is not None and fig.flag_shares is not None:
+            rows = [[flags_text[bit], _pct(share)] for bit, share in fig.flag_shares]
             blocks.append(table("Where the storm model's limits bind", ["flag", "share of cells"], rows,
                                 [False, True]))
         for key in ("factor_of_safety", "failure_probability", "wetness", "cluster_fs_bound"):
@@ -118,14 +95,10 @@ def _anchor(text):
     return slugify(text)
 
 
-def _recharge_section(ctx):
+def _recharge_section(ctx, dist):
     q_e = ctx.product("critical_recharge")
-    c_e = ctx.product("critical_recharge_class")
-    if q_e is None or c_e is None:
+    if q_e is None or dist is None:
         return None
-    rates = [(c["name"], c["steady_mm_per_day"]) for c in _rain_cases(ctx)
-             if c.get("steady_mm_per_day") is not None]
-    dist = recharge_distribution(ctx.read(q_e), ctx.read(c_e), ctx.cell_area_m2, rates)
     labels = {1: "fails even when dry", 2: "fails under enough recharge (a rate is given)",
               3: "stable even when saturated"}
     blocks = [para("The steady recharge, per unit of horizontal area, that brings a cell to FS = 1 "
@@ -150,16 +123,14 @@ def _recharge_section(ctx):
     return Section("recharge", "Critical recharge", blocks)
 
 
-def _terrain_section(ctx):
+def _terrain_section(ctx, percentiles):
     blocks = []
     for key in ("slope", "specific_catchment_area"):
         e = ctx.product(key)
         if e is None:
             continue
-        v = ctx.read(e)
-        fin = v[np.isfinite(v)]
-        if fin.size:
-            p = np.percentile(fin, [10, 50, 90], overwrite_input=True)  # fin is our own copy
+        p = percentiles.get(key)
+        if p is not None:
             blocks.append(para(f"10th, 50th and 90th percentiles: {p[0]:.3g}, {p[1]:.3g} and "
                                f"{p[2]:.3g}{NBSP}{e['units']}.", lead=product_title(key) + ":"))
         m = ctx.map_of(key)
