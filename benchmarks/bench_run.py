@@ -36,10 +36,11 @@ Reference fill
     same DEM array, the seed equal to the DEM on the border and to its maximum inside
     (``bench_fill.skimage_fill``, seed built inside the timing); printed as wall / reference.
 Terrain and routing only
-    This script in ``--terrain-only DEM`` mode, a child process sampled the same way: it reads
-    the DEM, runs ``slope_aspect``, ``fill_depressions`` and ``flow_accumulation`` and derives
-    the specific catchment area, as the pipeline's terrain stage does. The whole run's peak
-    is printed over this one (target: at most 1.10).
+    This script in ``--terrain-only SCENARIO`` mode, a child process sampled the same way: it
+    reads the inputs and runs the run's own terrain stages (``conditioning_stage``,
+    ``routing_stage``, ``slope_stage`` of ``slopescreen.pipeline.terrain_stage``), letting the
+    filled DEM go after routing as the run does. The whole run's peak is printed over this
+    one (target: at most 1.10).
 
 Peak memory is printed in MB (2**20 bytes) and in bytes per DEM cell. No timing is asserted.
 """
@@ -169,21 +170,18 @@ def whole_run(cli, scenario):
     return out | {"stage_seconds": manifest["stage_seconds"]}
 
 
-def terrain_only(dem_path):
-    """Helper mode: the terrain stage of a run (slope, fill, routing, SCA) and nothing else."""
-    from slopescreen.grid import read_dem
-    from slopescreen.routing import flow_accumulation
-    from slopescreen.terrain import fill_depressions, slope_aspect
+def terrain_only(scenario_path):
+    """Helper mode: the run's own terrain stages (conditioning, routing, slope) and nothing else."""
+    from slopescreen.pipeline.inputs import read_inputs
+    from slopescreen.pipeline.terrain_stage import conditioning_stage, routing_stage, slope_stage
+    from slopescreen.scenario import load_scenario
 
-    z, grid = read_dem(dem_path)
-    slope_deg, aspect_deg = slope_aspect(z, grid.dx_m, grid.dy_m)
-    filled = fill_depressions(z)
-    flow = flow_accumulation(filled, grid.dx_m, grid.dy_m, method=METHOD)
-    del filled
-    with np.errstate(invalid="ignore", divide="ignore"):
-        sca = (flow.area_m2 / flow.width_m).astype(np.float32)
-    area_m2 = flow.area_m2.astype(np.float32)
-    return slope_deg, aspect_deg, sca, area_m2
+    scenario = load_scenario(scenario_path)
+    inputs = read_inputs(scenario)
+    conditioned = conditioning_stage(scenario, inputs)
+    routing = routing_stage(scenario, inputs, conditioned)
+    del conditioned  # as the run does: the filled DEM goes after routing
+    return routing, slope_stage(scenario, inputs)
 
 
 def reference_fill(dem):
@@ -242,8 +240,8 @@ def main(argv=None):
     ap.add_argument("--repeat", type=int, default=1, help="timed runs after the warm-up")
     ap.add_argument("--work", type=Path, help="work folder (default under benchmarks/_data)")
     ap.add_argument("--json", type=Path, metavar="PATH", help="also write the figures here")
-    ap.add_argument("--terrain-only", type=Path, metavar="DEM",
-                    help="helper mode: run only the terrain stage on DEM and exit")
+    ap.add_argument("--terrain-only", type=Path, metavar="SCENARIO",
+                    help="helper mode: run only the terrain stages of SCENARIO and exit")
     args = ap.parse_args(argv)
     if args.terrain_only:
         terrain_only(args.terrain_only)
@@ -261,7 +259,7 @@ def main(argv=None):
     warmup = whole_run(cli, scenario)
     runs = [whole_run(cli, scenario) for _ in range(args.repeat)]
     terrain = run_sampled([sys.executable, str(Path(__file__).resolve()), "--terrain-only",
-                           str(work / "dem.tif")])
+                           str(scenario)])
     run = median_run(runs)
 
     reference, reference_s = reference_fill(dem)

@@ -28,6 +28,7 @@ from ..scenario import Scenario
 from .clusters_stage import cluster_layers_stage, clusters_stage
 from .figures_stage import case_figures_stage, recharge_figures_stage, terrain_figures_stage
 from .inputs import RunResult, read_inputs
+from .records import inputs_sha256
 from .records import manifest as manifest_of
 from .records import run_record
 from .report_stage import maps_stage, report_stage
@@ -232,8 +233,10 @@ def run(scenario: Scenario, *, progress=None) -> RunResult:
         last = _last_uses(stages)
         results: dict = {}
 
+        hashes = inputs_sha256(scenario)
+
         def manifest_now() -> dict:
-            return (manifest_of(scenario, grid, writer.products, timer.timings, started)
+            return (manifest_of(scenario, grid, writer.products, timer.timings, started, hashes)
                     | run_record(not_run))
 
         def value(need):

@@ -53,7 +53,8 @@ def run_record(not_run) -> dict:
     return {"not_run": list(not_run), "environment": _environment_record()}
 
 
-def manifest(scenario: Scenario, grid: Grid, products, timings, started) -> dict:
+def inputs_sha256(scenario: Scenario) -> dict:
+    """SHA-256 of every input file, keyed by its path relative to the output folder."""
     inputs = {}
     for p in scenario.input_files():
         try:
@@ -61,6 +62,13 @@ def manifest(scenario: Scenario, grid: Grid, products, timings, started) -> dict
         except ValueError:  # another drive on Windows
             rel = str(p)
         inputs[rel] = _sha256(p)
+    return inputs
+
+
+def manifest(scenario: Scenario, grid: Grid, products, timings, started, inputs=None) -> dict:
+    """The manifest of a run (``inputs``: :func:`inputs_sha256`, computed once per run)."""
+    if inputs is None:
+        inputs = inputs_sha256(scenario)
     return {
         "tool": "slopescreen",
         "version": __version__,

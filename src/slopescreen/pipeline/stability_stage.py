@@ -24,12 +24,16 @@ STRENGTH = {"cohesion_kpa": "cohesion_kpa", "root_cohesion_kpa": "root_cohesion_
 
 @dataclass(frozen=True)
 class SoilCells:
-    """The soil fields and the terrain on the cells that have a soil unit (NaN elsewhere)."""
+    """The soil fields and the terrain on the cells that have a soil unit (NaN elsewhere).
+
+    ``area_m2`` (the upslope area, for the storm model's time-scale check) is
+    None when the scenario has no storm case: nothing reads it then.
+    """
 
     soil: SoilFields
     slope_deg: np.ndarray
     sca_m: np.ndarray
-    area_m2: np.ndarray
+    area_m2: np.ndarray | None
 
     def products(self):
         return ()
@@ -42,9 +46,11 @@ def soil_fields_stage(scenario, inputs) -> SoilFields:
 
 def soil_cells_stage(scenario, inputs, soil: SoilFields, slope, routing) -> SoilCells:
     """The terrain on the cells with a soil unit (masked only where a soil map leaves cells out)."""
-    arrays = (slope.slope_deg, routing.sca_m, routing.area_m2)
+    storms = any(case.is_storm for case in scenario.rain)
+    arrays = (slope.slope_deg, routing.sca_m, routing.area_m2 if storms else None)
     if inputs.soil_codes is not None:  # cells without a code drop out
-        arrays = tuple(np.where(soil.valid, a, np.nan).astype(np.float32) for a in arrays)
+        arrays = tuple(None if a is None else np.where(soil.valid, a, np.nan).astype(np.float32)
+                       for a in arrays)
     return SoilCells(soil, *arrays)
 
 

@@ -14,6 +14,7 @@ from types import MappingProxyType
 
 import numpy as np
 
+from .quantiles import percentiles
 from .summaries import band_areas, case_facts, recharge_distribution
 
 __all__ = ["CaseFigures", "ReportFigures", "case_figures", "recharge_figures", "terrain_figures",
@@ -87,14 +88,10 @@ def terrain_figures(values) -> tuple | None:
 
     Examples
     --------
-    >>> terrain_figures(np.array([1.0, 2.0, np.nan, 3.0]))
+    >>> terrain_figures(np.array([1.0, 2.0, np.nan, 3.0], dtype=np.float32))
     (1.2, 2.0, 2.8)
     """
-    v = np.asarray(values)
-    fin = v[np.isfinite(v)]
-    if not fin.size:
-        return None
-    return tuple(float(p) for p in np.percentile(fin, TERRAIN_PERCENTILES, overwrite_input=True))
+    return percentiles(values, TERRAIN_PERCENTILES)
 
 
 def steady_rates(rain_records) -> list:

@@ -13,6 +13,7 @@ from __future__ import annotations
 import numpy as np
 
 from ..products import title as product_title
+from .quantiles import percentiles
 from .styles import at_least
 
 NBSP = "\u00a0"
@@ -171,11 +172,9 @@ def case_facts(fs, *, cell_area_m2, pf=None, wetness=None, slope_deg=None, aspec
         order = np.argsort(-counts, kind="stable")
         facts["units"] = [(unit_labels[i], float(counts[i] / k)) for i in order if counts[i] > 0]
     if slope_deg is not None:
-        s = np.asarray(slope_deg)[fail]
-        s = s[np.isfinite(s)]
-        if s.size:  # s is our own copy: the percentile may reorder it
-            facts["slope_p10"], facts["slope_p90"] = (
-                float(v) for v in np.percentile(s, [10, 90], overwrite_input=True))
+        p = percentiles(np.asarray(slope_deg)[fail], (10, 90))
+        if p is not None:
+            facts["slope_p10"], facts["slope_p90"] = p
     if aspect_deg is not None:
         a = np.asarray(aspect_deg)[fail].astype(np.float64)
         a = a[np.isfinite(a)]
@@ -227,8 +226,7 @@ def recharge_distribution(q_cr, classes, cell_area_m2, rates=()):
     has = (c == 2) & np.isfinite(q)
     if has.any():
         ps = (10, 25, 50, 75, 90)
-        values = np.percentile(q[has], ps, overwrite_input=True)  # q[has] is our own copy
-        out["percentiles"] = [(p, float(v)) for p, v in zip(ps, values)]
+        out["percentiles"] = list(zip(ps, percentiles(q[has], ps)))
     dry = int((c == 1).sum())
     for name, rate in rates:
         k = dry + int((has & ~at_least(q, rate)).sum())
