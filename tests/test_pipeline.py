@@ -222,3 +222,28 @@ def test_failing_clusters_product(tmp_path, capsys):
     assert np.all(scols["lower_bound"] <= scols["fs"] + 1e-9)
     proven = scols["proven"].astype(bool)
     np.testing.assert_allclose(scols["lower_bound"][proven], scols["fs"][proven], rtol=1e-5)
+
+
+def test_dry_case_is_accepted_and_gives_the_dry_handbook_fs(tmp_path, capsys):
+    # Handbook infinite-slope FS with no water (docs/methods.md, "Infinite-slope factor of
+    # safety"): FS = C / (gamma z sin cos) + tan(phi') / tan(theta). Once refused ("> 0").
+    rain = '\n[[rain]]\nname = "dry"\nsteady_mm_per_day = 0\n'
+    path = write_case(tmp_path, rain=rain)
+    manifest = run_ok(capsys, path)
+    out = tmp_path / "out"
+    fs, _ = product(manifest, out, "factor_of_safety", "dry")
+    wet, _ = product(manifest, out, "wetness", "dry")
+    theta = math.atan(0.6)
+    expected = 3.0 / (18.0 * 1.0 * math.sin(theta) * math.cos(theta)) + math.tan(math.radians(35.0)) / 0.6
+    np.testing.assert_allclose(fs[np.isfinite(fs)], expected, rtol=1e-5)
+    assert np.nanmax(wet) == 0.0
+    report = (out / "report.html").read_text(encoding="utf-8")
+    assert "dry: no recharge" in report
+
+
+def test_negative_recharge_is_still_refused(tmp_path, capsys):
+    path = write_case(tmp_path, rain='\n[[rain]]\nname = "x"\nsteady_mm_per_day = -1\n')
+    assert main(["-q", "run", str(path)]) == 2
+    err = capsys.readouterr().err
+    assert "steady_mm_per_day" in err and len(err.strip().splitlines()) == 1
+    assert not (tmp_path / "out").exists()

@@ -2,9 +2,10 @@
 
 Oracles: analytic planes and a cone (geometry), the identity between Horn's
 operator and numpy.gradient smoothed by 1-2-1 weights (algebra on the Horn
-1981 stencil), a plain-numpy implementation of the stencil with the
-"missing neighbour takes the centre value" rule, and the USGS DEM shipped
-with matplotlib (jacksboro_fault_dem.npz).
+1981 stencil), a plain-numpy weighted least-squares plane fit (numpy.linalg.lstsq)
+for cells with missing neighbours (Horn's stencil is that fit with weights
+4-2-1 on a full window), and the USGS DEM shipped with matplotlib
+(jacksboro_fault_dem.npz).
 """
 
 import numpy as np
@@ -36,20 +37,39 @@ def analytic_aspect(a, b):
 
 
 def horn_numpy(z, dx, dy):
-    """Plain-numpy Horn (1981) stencil; missing neighbours take the centre value."""
+    """Plain-numpy reference: Horn's stencil where all eight neighbours have values, else the
+    weighted least-squares plane (weights 4 centre, 2 edge, 1 corner) through the cells of the
+    3x3 window that have values, solved by numpy.linalg.lstsq (minimum-norm gradient when the
+    cells with values lie on one line)."""
     z = np.asarray(z, dtype=np.float64)
     rows, cols = z.shape
     p = np.pad(z, 1, constant_values=np.nan)
-
-    def nb(dr, dc):
-        v = p[1 + dr : 1 + dr + rows, 1 + dc : 1 + dc + cols]
-        return np.where(np.isnan(v), z, v)
-
-    a, b, c = nb(-1, -1), nb(-1, 0), nb(-1, 1)
-    d, f = nb(0, -1), nb(0, 1)
-    g, h, i = nb(1, -1), nb(1, 0), nb(1, 1)
-    dzdx = ((c + 2 * f + i) - (a + 2 * d + g)) / (8 * dx)
-    dzdy = ((a + 2 * b + c) - (g + 2 * h + i)) / (8 * dy)
+    dzdx = np.full(z.shape, np.nan)
+    dzdy = np.full(z.shape, np.nan)
+    offsets = [(dr, dc) for dr in (-1, 0, 1) for dc in (-1, 0, 1)]
+    weight = {(0, 0): 4.0, (-1, 0): 2.0, (1, 0): 2.0, (0, -1): 2.0, (0, 1): 2.0}
+    for r in range(rows):
+        for c in range(cols):
+            if np.isnan(z[r, c]):
+                continue
+            win = p[r:r + 3, c:c + 3]
+            if np.isfinite(win).all():
+                a, b, cc, d, _e, f, g, h, i = win.reshape(-1)
+                dzdx[r, c] = ((cc + 2 * f + i) - (a + 2 * d + g)) / (8 * dx)
+                dzdy[r, c] = ((a + 2 * b + cc) - (g + 2 * h + i)) / (8 * dy)
+                continue
+            rows_a, rhs = [], []
+            for dr, dc in offsets:
+                v = win[1 + dr, 1 + dc]
+                if np.isfinite(v):
+                    w = np.sqrt(weight.get((dr, dc), 1.0))
+                    rows_a.append([w, w * dc, w * -dr])      # x east, y north (row 0 is north)
+                    rhs.append(w * v)
+            A, y = np.array(rows_a), np.array(rhs)
+            centred = A[:, 1:] - A[:, :1] * (A[:, :1].T @ A[:, 1:]) / (A[:, 0] @ A[:, 0])
+            yc = y - A[:, 0] * (A[:, 0] @ y) / (A[:, 0] @ A[:, 0])
+            grad = np.linalg.lstsq(centred, yc, rcond=1e-9)[0]
+            dzdx[r, c], dzdy[r, c] = grad[0] / dx, grad[1] / dy
     slope = np.degrees(np.arctan(np.hypot(dzdx, dzdy)))
     with np.errstate(invalid="ignore"):
         aspect = np.where(
@@ -103,28 +123,57 @@ def test_plane_interior_is_exact(a, b, facing, dx, dy):
 
 
 @pytest.mark.parametrize("dx, dy", [(10.0, 10.0), (10.0, 4.0)])
-def test_plane_edges_follow_replicate_rule(dx, dy):
-    # Analytic, worked by hand from the stencil with a missing neighbour
-    # replaced by the centre value: on a west or east edge cell (not a
-    # corner) dz/dx halves and dz/dy keeps 3/4; on a north or south edge
-    # dz/dy halves and dz/dx keeps 3/4. The edge slope is therefore lower
-    # than the plane's.
+def test_regression_plane_edges_and_corners_have_the_true_slope(dx, dy):
+    # Once a false stable ring: neighbours outside the grid took the centre value, so a
+    # 35-degree plane read 19.3 degrees on a west edge and 15.5 at a corner. Analytic: on a
+    # plane every edge and corner cell has the plane's slope and aspect.
     a, b = 0.3, -0.5
     z = plane(a, b, (8, 10), dx, dy)
     s, asp = slope_aspect(z, dx, dy)
-    west_east = analytic_slope(a / 2, 3 * b / 4)
-    north_south = analytic_slope(3 * a / 4, b / 2)
-    np.testing.assert_allclose(s[1:-1, 0], west_east, atol=1e-4)
-    np.testing.assert_allclose(s[1:-1, -1], west_east, atol=1e-4)
-    np.testing.assert_allclose(s[0, 1:-1], north_south, atol=1e-4)
-    np.testing.assert_allclose(s[-1, 1:-1], north_south, atol=1e-4)
-    assert angle_diff(asp[1:-1, 0], analytic_aspect(a / 2, 3 * b / 4)).max() < 1e-4
-    assert angle_diff(asp[0, 1:-1], analytic_aspect(3 * a / 4, b / 2)).max() < 1e-4
-    assert (s[1:-1, 0] < analytic_slope(a, b)).all()
-    # Corners and every other cell: the plain-numpy stencil with the same rule.
+    np.testing.assert_allclose(s, analytic_slope(a, b), atol=1e-4)
+    assert angle_diff(asp, analytic_aspect(a, b)).max() < 1e-4
     ref_s, ref_a = horn_numpy(z, dx, dy)
     np.testing.assert_allclose(s, ref_s, atol=1e-4)
-    assert angle_diff(asp, ref_a).max() < 1e-4
+
+
+@pytest.mark.parametrize("azimuth", [0.0, 22.5, 90.0, 145.0, 200.0, 315.0])
+def test_masked_plane_every_edge_corner_and_hole_cell_within_half_a_degree(azimuth):
+    # Analytic: a 35-degree plane clipped by a ragged polygon (a rasterised irregular
+    # outline), with round holes, and cut by the grid edges.
+    rows, cols, dx, dy = 70, 80, 5.0, 4.0
+    g = np.tan(np.radians(35.0))
+    t = np.radians(azimuth)
+    y, x = np.mgrid[0:rows, 0:cols]
+    east, north = x * dx, (rows - 1 - y) * dy
+    z = 500.0 - g * (east * np.sin(t) + north * np.cos(t))      # falls toward the azimuth
+    angle = np.arctan2(y - rows / 2, x - cols / 2)
+    radius = np.hypot((y - rows / 2) * 1.1, x - cols / 2)
+    outline = 30 + 4 * np.sin(5 * angle) + 2 * np.cos(11 * angle + 1.0)
+    keep = (radius < outline) | (x < 3) | (y > rows - 3)         # ragged inside, grid edges too
+    for cy, cx, cr in ((30, 30, 3.5), (45, 55, 2.5), (20, 50, 4.0)):
+        keep &= np.hypot(y - cy, x - cx) > cr
+    zz = np.where(keep, z, np.nan)
+    s, asp = slope_aspect(zz, dx, dy)
+    valid = keep
+    pad = np.pad(valid, 1)
+    edge = valid & ~(pad[:-2, :-2] & pad[:-2, 1:-1] & pad[:-2, 2:] & pad[1:-1, :-2]
+                     & pad[1:-1, 2:] & pad[2:, :-2] & pad[2:, 1:-1] & pad[2:, 2:])
+    assert edge.sum() > 300                                       # edges, corners, hole rims
+    assert np.abs(s[valid] - 35.0).max() < 0.5
+    assert angle_diff(asp[valid], azimuth).max() < 0.5
+
+
+def test_cells_on_one_line_get_the_gradient_along_it():
+    # Minimum-norm plane through collinear points (numpy.linalg.lstsq): a one-cell-wide
+    # north-south strip of a plane z = a x + b y knows only dz/dy = b.
+    a, b = 0.4, -0.3
+    z = plane(a, b, (7, 7), 2.0, 2.0)
+    strip = np.full_like(z, np.nan)
+    strip[:, 3] = z[:, 3]
+    s, asp = slope_aspect(strip, 2.0, 2.0)
+    np.testing.assert_allclose(s[:, 3], analytic_slope(0.0, b), atol=1e-4)
+    ref_s, _ = horn_numpy(strip, 2.0, 2.0)
+    np.testing.assert_allclose(s[:, 3], ref_s[:, 3], atol=1e-4)
 
 
 def test_flat_has_zero_slope_and_no_aspect():
@@ -139,8 +188,8 @@ def test_flat_has_zero_slope_and_no_aspect():
 # --------------------------------------------------------------------------
 
 
-def test_nan_cells_stay_nan_and_neighbours_use_centre():
-    # Oracle: plain-numpy stencil with the same replicate rule, on seeded
+def test_nan_cells_stay_nan_and_their_neighbours_fit_a_plane():
+    # Oracle: the plain-numpy weighted least-squares plane of horn_numpy, on seeded
     # random terrain with holes.
     rng = np.random.default_rng(8)
     z = rng.uniform(0.0, 20.0, (20, 25))
@@ -161,7 +210,7 @@ def test_nan_cells_stay_nan_and_neighbours_use_centre():
 
 
 def test_isolated_cell_has_zero_slope():
-    # Replicate rule: a valid cell with no valid neighbour sees a flat window.
+    # A valid cell with no valid neighbour: no gradient can be estimated, so 0.
     z = np.full((3, 3), np.nan)
     z[1, 1] = 4.0
     s, asp = slope_aspect(z, 1.0, 1.0)

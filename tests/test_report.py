@@ -400,3 +400,18 @@ def test_size_resolved_answers_are_explained_with_their_proof_status():
     assert "By size:" in text and "Not proven: 1 of 2 answers." in text
     assert "no (time_limit)" in text and "0.790" in text
     assert "centroid (E, N)" in text and "500,012, 5,099,988" in text   # "—" where absent
+
+
+def test_compass_sectors_counted_in_place_match_the_floor_formula():
+    # Definition of the 45-degree sectors (the first centred on north):
+    # floor(((a + 22.5) mod 360) / 45), in float64; checked at every edge and beside it.
+    from slopescreen.report.summaries import _sector_counts
+
+    rng = np.random.default_rng(3)
+    a = rng.uniform(0, 360, 50_000).astype(np.float32)
+    edges = np.array([22.5 + 45 * k for k in range(8)], dtype=np.float32)
+    a[:16] = np.concatenate([edges, np.nextafter(edges, np.float32(0))])
+    a[16], a[17], a[18] = np.nan, 0.0, np.float32(359.99997)
+    fin = a[np.isfinite(a)].astype(np.float64)
+    expected = np.bincount(np.floor(((fin + 22.5) % 360.0) / 45.0).astype(np.int64), minlength=8)
+    np.testing.assert_array_equal(_sector_counts(a), expected)

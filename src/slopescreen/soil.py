@@ -13,6 +13,7 @@ numbers, so a one-unit scenario calls it once on the whole grid.
 from __future__ import annotations
 
 from dataclasses import dataclass
+from functools import cached_property
 from types import MappingProxyType
 from typing import Callable
 
@@ -67,11 +68,18 @@ class SoilFields:
         """Labels of the units, in index order."""
         return [u.label for u in self.units]
 
+    @cached_property
+    def _one_unit_index(self) -> np.ndarray:
+        index = np.full(self.valid.shape, -1, dtype=np.int8)
+        index[self.valid] = 0
+        return index
+
     def index_array(self) -> np.ndarray:
-        """The unit index per cell as a raster (int8 for one unit), for consumers that need one."""
+        """The unit index per cell as a raster (int8 for one unit, made once), for consumers
+        that need one (Monte Carlo, FOSM, the cluster probabilities, the report)."""
         if self.index is not None:
             return self.index
-        return np.where(self.valid, 0, -1).astype(np.int8)
+        return self._one_unit_index
 
     def value(self, key: str, unit: int) -> np.float32:
         """Central value of ``key`` in unit ``unit`` (float32, the precision of the products)."""

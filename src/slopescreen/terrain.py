@@ -483,12 +483,18 @@ def slope_aspect(z, dx, dy, valid=None):
     the aspect taken modulo 360 degrees. Horn's estimate is the central
     difference smoothed with weights 1-2-1 across it; it is exact on planes.
 
-    **Edges and nodata:** a neighbour outside the grid or nodata takes the
-    centre cell's value, so cells on the data edge still get a slope. On a
-    plane this halves the gradient component across a straight edge and
-    takes the component along it to 3/4 (corners mix the two), so edge
-    slopes come out lower than the true slope. Mask or interpret the
-    outermost ring of cells accordingly.
+    **Edges and nodata:** Horn's estimate is the weighted least-squares
+    plane through the 3x3 window (weights 4 centre, 2 edge, 1 corner). Where
+    neighbours are outside the grid or nodata, the same weighted plane is
+    fitted to the cells that have values, a one-sided estimate that is exact
+    on a plane whenever those cells are not all on one line: cells on a data
+    edge, at a corner or beside a hole get the true slope of a plane.
+    (Filling missing neighbours with the centre value instead halves the
+    gradient across a straight edge and rings every clip or mask with cells
+    that look stable.) Where the cells with values lie on one line (a
+    one-cell-wide strip), only the gradient along the line is known and the
+    component across it is taken as 0. Cells with all eight neighbours use
+    Horn's formula as written above.
 
     The differences are taken in float64; the angles are computed and
     returned in float32 (within float32 rounding, a few 1e-5 degrees, of a
@@ -536,9 +542,71 @@ def _slope_aspect_padded(zp, dx, dy):
     return slope, aspect
 
 
+@njit
+def _edge_gradient(a, b, cc, d, e, f, g, h, i, dx, dy):
+    """Gradient of a cell with missing neighbours: a weighted least-squares plane.
+
+    The plane z = z0 + gx x + gy y is fitted to the centre and the neighbours
+    that have values, with Horn's weights (4 centre, 2 edge, 1 corner). With
+    all eight neighbours this is exactly Horn's estimate; with some missing it
+    is a one-sided estimate that is exact on a plane as long as the points
+    with values are not on one line. On one line (a one-cell-wide strip), the
+    component along the strip comes from its row or column differences and
+    the component across it is 0.
+    """
+    sw = 0.0
+    sx = 0.0
+    sy = 0.0
+    sxx = 0.0
+    syy = 0.0
+    sxy = 0.0
+    sz = 0.0
+    sxz = 0.0
+    syz = 0.0
+    # (value, x, y, weight): x east in units of dx, y north in units of dy (row 0 is north)
+    for v, x, y, w in ((a, -1.0, 1.0, 1.0), (b, 0.0, 1.0, 2.0), (cc, 1.0, 1.0, 1.0),
+                       (d, -1.0, 0.0, 2.0), (e, 0.0, 0.0, 4.0), (f, 1.0, 0.0, 2.0),
+                       (g, -1.0, -1.0, 1.0), (h, 0.0, -1.0, 2.0), (i, 1.0, -1.0, 1.0)):
+        if np.isnan(v):
+            continue
+        sw += w
+        sx += w * x
+        sy += w * y
+        sxx += w * x * x
+        syy += w * y * y
+        sxy += w * x * y
+        sz += w * v
+        sxz += w * x * v
+        syz += w * y * v
+    # eliminate the intercept: centred sums
+    cxx = sxx - sx * sx / sw
+    cyy = syy - sy * sy / sw
+    cxy = sxy - sx * sy / sw
+    cxz = sxz - sx * sz / sw
+    cyz = syz - sy * sz / sw
+    det = cxx * cyy - cxy * cxy
+    if det > 1e-9 * max(cxx * cyy, 1e-300):
+        gx = (cxz * cyy - cyz * cxy) / det
+        gy = (cyz * cxx - cxz * cxy) / det
+        return gx / dx, gy / dy
+    # the points with values lie on one line
+    gx = 0.0
+    gy = 0.0
+    if cxx > 0.0 and cyy == 0.0:
+        gx = cxz / cxx
+    elif cyy > 0.0 and cxx == 0.0:
+        gy = cyz / cyy
+    elif cxx > 0.0 and cyy > 0.0:  # a diagonal line: the gradient along it
+        t = (cxz + (cyz if cxy > 0.0 else -cyz)) / (cxx + cyy)
+        gx = t
+        gy = t if cxy > 0.0 else -t
+        gx, gy = 0.5 * gx, 0.5 * gy
+    return gx / dx, gy / dy
+
+
 @njit_parallel
 def _horn_kernel(zp, dx, dy, slope, aspect):
-    """Horn (1981) slope and aspect; missing neighbours take the centre value.
+    """Horn (1981) slope and aspect; one-sided differences where neighbours are missing.
 
     Differences in float64; the angles from float32 arctan/arctan2 of the
     float64 gradient rounded to float32 (the outputs are float32 anyway, and
@@ -564,24 +632,11 @@ def _horn_kernel(zp, dx, dy, slope, aspect):
             g = np.float64(zp[r + 2, c])
             h = np.float64(zp[r + 2, c + 1])
             i = np.float64(zp[r + 2, c + 2])
-            if np.isnan(a):
-                a = e
-            if np.isnan(b):
-                b = e
-            if np.isnan(cc):
-                cc = e
-            if np.isnan(d):
-                d = e
-            if np.isnan(f):
-                f = e
-            if np.isnan(g):
-                g = e
-            if np.isnan(h):
-                h = e
-            if np.isnan(i):
-                i = e
-            dzdx = ((cc + 2.0 * f + i) - (a + 2.0 * d + g)) * inv8dx
-            dzdy = ((a + 2.0 * b + cc) - (g + 2.0 * h + i)) * inv8dy
+            if np.isnan(a + b + cc + d + f + g + h + i):
+                dzdx, dzdy = _edge_gradient(a, b, cc, d, e, f, g, h, i, dx, dy)
+            else:
+                dzdx = ((cc + 2.0 * f + i) - (a + 2.0 * d + g)) * inv8dx
+                dzdy = ((a + 2.0 * b + cc) - (g + 2.0 * h + i)) * inv8dy
             s = np.arctan(np.float32(np.hypot(dzdx, dzdy))) * rad2deg
             slope[r, c] = s
             if s == 0.0:

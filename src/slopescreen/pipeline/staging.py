@@ -30,7 +30,7 @@ log = logging.getLogger("slopescreen.pipeline")
 MAP_OVERLAYS = ("critical_recharge_class", "cluster_labels")
 """Rasters drawn on the maps of other products (classes, cluster outlines)."""
 
-MAX_PENDING = 1
+MAX_PENDING = 2
 """Rasters the background writer may hold at once; the next waits for it (bounds the memory)."""
 
 

@@ -110,9 +110,26 @@ def _floats(values) -> np.ndarray:
     return v if np.issubdtype(v.dtype, np.floating) else v.astype(np.float64)
 
 
-def _sector(aspect_deg):
-    a = np.asarray(aspect_deg, dtype=np.float64)
-    return np.floor(((a + 22.5) % 360.0) / 45.0).astype(np.int64)
+def _sector_counts(aspect_deg) -> np.ndarray:
+    """Cells per 45-degree compass sector (the first centred on north) of finite aspects.
+
+    A cell's sector is the number of sector edges 22.5 + 45 k (k = 0..7) at or
+    below its aspect, modulo 8: the same as floor(((a + 22.5) mod 360) / 45),
+    counted without a float64 or int64 copy of the cells.
+    """
+    a = np.asarray(aspect_deg)
+    finite = np.isfinite(a)
+    sector = np.zeros(a.shape, dtype=np.int8)
+    for k in range(8):
+        sector += at_least(a, 22.5 + 45.0 * k)
+    sector[sector == 8] = 0
+    return _small_counts(sector[finite], 8)
+
+
+def _small_counts(values, n) -> np.ndarray:
+    """``numpy.bincount(values, minlength=n)`` for small non-negative codes, without an intp copy."""
+    v = np.asarray(values)
+    return np.array([int(np.count_nonzero(v == i)) for i in range(n)], dtype=np.int64)
 
 
 def case_facts(fs, *, cell_area_m2, pf=None, wetness=None, slope_deg=None, aspect_deg=None,
@@ -168,7 +185,7 @@ def case_facts(fs, *, cell_area_m2, pf=None, wetness=None, slope_deg=None, aspec
         return facts
     if unit_index is not None and len(unit_labels):
         idx = np.asarray(unit_index)[fail]
-        counts = np.bincount(idx[idx >= 0], minlength=len(unit_labels))
+        counts = _small_counts(idx, len(unit_labels))
         order = np.argsort(-counts, kind="stable")
         facts["units"] = [(unit_labels[i], float(counts[i] / k)) for i in order if counts[i] > 0]
     if slope_deg is not None:
@@ -176,12 +193,12 @@ def case_facts(fs, *, cell_area_m2, pf=None, wetness=None, slope_deg=None, aspec
         if p is not None:
             facts["slope_p10"], facts["slope_p90"] = p
     if aspect_deg is not None:
-        a = np.asarray(aspect_deg)[fail].astype(np.float64)
-        a = a[np.isfinite(a)]
-        if a.size:
-            counts = np.bincount(_sector(a), minlength=8)
+        counts = _sector_counts(np.asarray(aspect_deg)[fail])
+        total = int(counts.sum())
+        if total:
             order = np.argsort(-counts, kind="stable")
-            facts["aspects"] = [(ASPECT_SECTORS[i], float(counts[i] / a.size)) for i in order if counts[i] > 0]
+            facts["aspects"] = [(ASPECT_SECTORS[i], float(counts[i] / total)) for i in order
+                                if counts[i] > 0]
     if wetness is not None:
         w = np.asarray(wetness)[fail]
         facts["saturated_share"] = float(np.mean(at_least(w, 0.999))) if w.size else None
@@ -307,6 +324,8 @@ def describe_case(name, rain_text, facts) -> str:
 def rain_text(case: dict) -> str:
     """A rain case of the manifest in words."""
     if case.get("steady_mm_per_day") is not None:
+        if case["steady_mm_per_day"] == 0:
+            return "dry: no recharge (0 mm/day), the soil drained"
         return f"steady recharge {case['steady_mm_per_day']:g} mm/day"
     total = case["storm_mm_per_h"] * case["duration_h"]
     return (f"storm of {case['storm_mm_per_h']:g} mm/h for {case['duration_h']:g} h ({total:g} mm), "

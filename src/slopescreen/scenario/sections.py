@@ -93,7 +93,7 @@ def _parse_rain(table, ctx: Ctx, base: Path):
         if name in names:
             raise c.child("name").fail(f"rain case name {name!r} is used twice; names must differ")
         names.add(name)
-        steady = get_number(item, "steady_mm_per_day", c, low=0.0, high=5000.0, low_open=True)
+        steady = get_number(item, "steady_mm_per_day", c, low=0.0, high=5000.0)  # 0: a dry case
         storm = get_number(item, "storm_mm_per_h", c, low=0.0, high=1000.0, low_open=True)
         if steady is None and storm is None:
             raise c.fail("give steady_mm_per_day (steady recharge) or storm_mm_per_h with "
