@@ -7,14 +7,18 @@ numbers or arrays of a physical quantity (:data:`PHYSICAL_RANGE` bounds the
 soil parameters), :func:`physical_parameter` for a distribution of one,
 :func:`broadcast_flat` to hand broadcast inputs to a kernel, and
 :func:`nonnegative`, :func:`positive_int` and :func:`samples_and_seed` for
-scalar options. Every failure is an :class:`~slopescreen.errors.InputError`
-whose message names the input.
+scalar options; :func:`read_only` and :func:`parameter_objects` for the
+parameter objects (frozen dataclasses of validated inputs) of the public
+functions. Every failure is an :class:`~slopescreen.errors.InputError` whose
+message names the input.
 """
 
+import dataclasses
 import math
 
 import numpy as np
 
+from ._kernels.slope_stability import GAMMA_W
 from ._numba import njit
 from .errors import InputError
 
@@ -217,7 +221,22 @@ def grid_field(value, shape, key, low, high, *, open_low=False):
     InputError
         Also when the value does not broadcast to ``shape``.
     """
-    arr = field(value, key, low, high, open_low=open_low)
+    return on_grid(field(value, key, low, high, open_low=open_low), shape, key)
+
+
+def on_grid(arr, shape, key):
+    """An already validated array broadcast to a grid of ``shape``, C-contiguous float64.
+
+    Raises
+    ------
+    InputError
+        When ``arr`` does not broadcast to ``shape`` (the message names ``key``).
+
+    Examples
+    --------
+    >>> on_grid(np.array(2.0), (2, 2), "cohesion_kpa").tolist()
+    [[2.0, 2.0], [2.0, 2.0]]
+    """
     try:
         return np.ascontiguousarray(np.broadcast_to(arr, shape), dtype=np.float64)
     except ValueError:
@@ -266,6 +285,24 @@ def physical_parameter(param, key):
             f"{name}: the {param.kind} distribution ({param.a}, {param.b}) within bounds "
             f"[{param.low}, {param.high}] lies outside the physical range [{lo}, {hi}]"
         ) from None
+
+
+def saturated_unit_weight(strength):
+    """The saturated unit weight of a :class:`~slopescreen.stability.SoilStrength`.
+
+    Its own ``saturated_unit_weight_kn_m3`` (checked when the object was
+    built), or else the moist ``unit_weight_kn_m3`` standing in for it,
+    checked here to lie in [GAMMA_W, 30] kN/m^3.
+
+    Raises
+    ------
+    InputError
+        A moist unit weight below 9.81 kN/m^3 where it stands in for the saturated one.
+    """
+    if strength.saturated_unit_weight_kn_m3 is not None:
+        return strength.saturated_unit_weight_kn_m3
+    return field(strength.unit_weight_kn_m3,
+                 "saturated_unit_weight_kn_m3 (defaults to unit_weight_kn_m3)", GAMMA_W, 30.0)
 
 
 def broadcast_flat(arrays):
@@ -355,3 +392,92 @@ def samples_and_seed(samples, seed):
     if s != seed or not 0 <= s < 2**64:
         raise InputError(f"seed: expected an integer in [0, 2**64), got {seed!r}")
     return n, s
+
+
+# ---------------------------------------------------------------------------
+# parameter objects
+# ---------------------------------------------------------------------------
+
+
+def read_only(arr):
+    """A read-only view of a validated array (no copy; ``arr`` itself stays writable).
+
+    A parameter object stores its arrays this way, so nothing can be written
+    into them through the object.
+
+    Examples
+    --------
+    >>> a = np.zeros(3)
+    >>> v = read_only(a)
+    >>> v.flags.writeable, a.flags.writeable
+    (False, True)
+    """
+    view = arr.view()
+    view.flags.writeable = False
+    return view
+
+
+def parameter_objects(function, loose, *specs):
+    """The parameter objects of a public call, given as objects or as loose keywords.
+
+    Parameters
+    ----------
+    function : str
+        Name of the public function, for messages.
+    loose : dict
+        The loose keyword arguments of the call (field name -> value).
+    *specs : tuple of (str, type, object or None)
+        Per parameter object: its keyword, its class (a dataclass) and the
+        object the caller gave, or None to build it from the loose keywords
+        that name its fields.
+
+    Returns
+    -------
+    list
+        One object per spec, in order.
+
+    Raises
+    ------
+    TypeError
+        A loose keyword that is a field of none of the classes, or a required
+        field missing (as Python says of a wrong call).
+    InputError
+        An object that is not of its class, or an object given together with
+        loose keywords of its fields. The constructors raise the input errors
+        of the values themselves.
+
+    Examples
+    --------
+    >>> @dataclasses.dataclass(frozen=True)
+    ... class Box:
+    ...     side_m: float
+    >>> parameter_objects("volume", {"side_m": 2.0}, ("box", Box, None))
+    [Box(side_m=2.0)]
+    """
+    left = dict(loose)
+    chosen = []
+    for name, cls, given in specs:
+        fields = [f for f in dataclasses.fields(cls) if f.init]
+        mine = {f.name: left.pop(f.name) for f in fields if f.name in left}
+        if given is not None:
+            if not isinstance(given, cls):
+                raise InputError(f"{name}: expected a {cls.__name__}, got {type(given).__name__}")
+            if mine:
+                raise InputError(f"{name}: given as a {cls.__name__} and as the loose keywords "
+                                 f"{', '.join(mine)}; give one or the other")
+        chosen.append((name, cls, given, fields, mine))
+    if left:
+        raise TypeError(f"{function}() got an unexpected keyword argument {next(iter(left))!r}")
+    out = []
+    for name, cls, given, fields, mine in chosen:
+        if given is None:
+            missing = [f.name for f in fields if f.name not in mine
+                       and f.default is dataclasses.MISSING
+                       and f.default_factory is dataclasses.MISSING]
+            if missing:
+                raise TypeError(f"{function}() missing required keyword argument(s) "
+                                f"{', '.join(map(repr, missing))} (or give {name}="
+                                f"{cls.__name__}(...))")
+            given = cls(**mine)
+        out.append(given)
+    return out

@@ -12,6 +12,7 @@ band must not carry infinity, so every FS this package writes is clipped to
 and a flat cell (slope 0) carries 100. Nodata (NaN in any input) stays NaN.
 """
 
+import dataclasses
 import math
 
 import numpy as np
@@ -25,6 +26,7 @@ __all__ = [
     "GAMMA_W",
     "FS_CAP",
     "CLASS_LABELS",
+    "SoilStrength",
     "factor_of_safety",
     "critical_recharge",
 ]
@@ -36,6 +38,92 @@ CLASS_LABELS = {
     3: "stable even when saturated",
 }
 """Labels of the stability classes returned by :func:`critical_recharge`."""
+
+
+@dataclasses.dataclass(frozen=True, kw_only=True, eq=False)
+class SoilStrength:
+    """Strength and weight of the soil above a slip plane, validated once.
+
+    Every field is a number or an array (per cell); they broadcast against
+    each other and against the other inputs of the function they are given
+    to. :func:`factor_of_safety`, :func:`slopescreen.hydrology.storm_factor_of_safety`
+    and :func:`slopescreen.hydrology.storm_minimum` take one, and the cluster
+    strength :class:`slopescreen.clusters.ClusterStrength` is one with lateral
+    roots added.
+
+    Parameters
+    ----------
+    cohesion_kpa : array_like
+        Effective soil cohesion c', kPa (>= 0).
+    root_cohesion_kpa : array_like
+        Basal root cohesion c_r (roots crossing the slip plane), kPa (>= 0); it adds to c'.
+    friction_deg : array_like
+        Effective friction angle phi', degrees in [0, 60].
+    unit_weight_kn_m3 : array_like
+        Moist unit weight gamma_m above the water table, kN/m^3 (0 < gamma_m <= 30);
+        the storm model's one depth-averaged unit weight gamma_s.
+    saturated_unit_weight_kn_m3 : array_like, optional
+        Saturated unit weight gamma_sat below the water table, kN/m^3 in
+        [9.81, 30] and >= gamma_m. Default None: gamma_m (one bulk unit
+        weight, the Montgomery-Dietrich form; a function that needs gamma_sat
+        then checks gamma_m against [9.81, 30]). The storm functions use one
+        unit weight and refuse a separate gamma_sat.
+
+    Raises
+    ------
+    InputError
+        A value out of its range (the message names the field), infinite
+        values, an all-NaN field, gamma_sat lower than gamma_m in some cells.
+
+    Notes
+    -----
+    Each field is stored as a read-only numpy array: a float32 input as a
+    view of the caller's array (an array changed by its owner afterwards is
+    seen changed by the object), anything else as a float64 copy.
+
+    Examples
+    --------
+    >>> s = SoilStrength(cohesion_kpa=2.0, root_cohesion_kpa=0.0, friction_deg=35.0,
+    ...                  unit_weight_kn_m3=18.0)
+    >>> float(s.friction_deg), s.saturated_unit_weight_kn_m3 is None
+    (35.0, True)
+    >>> SoilStrength(cohesion_kpa=2.0, root_cohesion_kpa=0.0, friction_deg=70.0,
+    ...              unit_weight_kn_m3=18.0)
+    Traceback (most recent call last):
+    ...
+    slopescreen.errors.InputError: friction_deg: got 70.0; expected values >= 0.0 and <= 60.0
+    """
+
+    cohesion_kpa: np.ndarray
+    root_cohesion_kpa: np.ndarray
+    friction_deg: np.ndarray
+    unit_weight_kn_m3: np.ndarray
+    saturated_unit_weight_kn_m3: np.ndarray | None = None
+
+    def __post_init__(self):
+        for key in ("cohesion_kpa", "root_cohesion_kpa", "friction_deg", "unit_weight_kn_m3"):
+            self._store(key, _validate.physical_field(getattr(self, key), key))
+        if self.saturated_unit_weight_kn_m3 is None:
+            return
+        gs = _validate.field(self.saturated_unit_weight_kn_m3, "saturated_unit_weight_kn_m3",
+                             GAMMA_W, 30.0)
+        gm = self.unit_weight_kn_m3
+        try:
+            shape = np.broadcast_shapes(gs.shape, gm.shape)
+        except ValueError:
+            raise InputError(f"saturated_unit_weight_kn_m3: shape {gs.shape} does not broadcast "
+                             f"with unit_weight_kn_m3 {gm.shape}") from None
+        with np.errstate(invalid="ignore"):
+            lighter = np.broadcast_to(gs, shape) < gm
+        if lighter.any():
+            raise InputError(
+                "saturated_unit_weight_kn_m3: lower than unit_weight_kn_m3 in some cells; "
+                "the saturated unit weight of a soil is at least its moist unit weight"
+            )
+        self._store("saturated_unit_weight_kn_m3", gs)
+
+    def _store(self, key, arr):
+        object.__setattr__(self, key, _validate.read_only(arr))
 
 
 @njit_parallel
@@ -57,17 +145,7 @@ def _factor_of_safety_kernel(slope, depth, wet, coh, root, phi, gm, gs, st, out)
         out[i] = fs
 
 
-def factor_of_safety(
-    slope_deg,
-    depth_m,
-    wetness,
-    *,
-    cohesion_kpa,
-    root_cohesion_kpa,
-    friction_deg,
-    unit_weight_kn_m3,
-    saturated_unit_weight_kn_m3=None,
-):
+def factor_of_safety(slope_deg, depth_m, wetness, *, strength=None, **strength_fields):
     """Infinite-slope factor of safety with a slope-parallel water table.
 
     Parameters
@@ -78,18 +156,13 @@ def factor_of_safety(
         Vertical depth z to the slip plane, m (> 0).
     wetness : array_like
         Saturated fraction W = h_w / z of the column, in [0, 1] (h_w vertical).
-    cohesion_kpa : array_like
-        Effective soil cohesion c', kPa (>= 0).
-    root_cohesion_kpa : array_like
-        Basal root cohesion c_r, kPa (>= 0); it adds to c'.
-    friction_deg : array_like
-        Effective friction angle phi', degrees in [0, 60].
-    unit_weight_kn_m3 : array_like
-        Moist unit weight gamma_m above the water table, kN/m^3 (0 < gamma_m <= 30).
-    saturated_unit_weight_kn_m3 : array_like, optional
-        Saturated unit weight gamma_sat below the water table, kN/m^3 in
-        [9.81, 30] and >= gamma_m. Default: gamma_m (one bulk unit weight,
-        the Montgomery-Dietrich form).
+    strength : SoilStrength
+        c', c_r, phi', gamma_m and the optional gamma_sat (default gamma_m).
+    **strength_fields
+        Instead of ``strength``: its fields as loose keywords
+        (``cohesion_kpa=..., root_cohesion_kpa=..., friction_deg=...,
+        unit_weight_kn_m3=...`` and optionally ``saturated_unit_weight_kn_m3``),
+        from which a :class:`SoilStrength` is built.
 
     All inputs broadcast against each other.
 
@@ -131,33 +204,28 @@ def factor_of_safety(
 
     Examples
     --------
+    >>> soil = SoilStrength(cohesion_kpa=0.0, root_cohesion_kpa=0.0, friction_deg=35.0,
+    ...                     unit_weight_kn_m3=18.0)
+    >>> fs = factor_of_safety(30.0, 1.0, 0.0, strength=soil)
+    >>> round(float(fs), 5)  # tan 35 / tan 30
+    1.2128
+
+    The same call with the strength as loose keywords:
+
     >>> fs = factor_of_safety(30.0, 1.0, 0.0, cohesion_kpa=0.0, root_cohesion_kpa=0.0,
     ...                       friction_deg=35.0, unit_weight_kn_m3=18.0)
-    >>> round(float(fs), 5)  # tan 35 / tan 30
+    >>> round(float(fs), 5)
     1.2128
     """
     slope = _validate.slope_field(slope_deg)
     depth = _validate.physical_field(depth_m, "depth_m")
     wet = _validate.field(wetness, "wetness", 0.0, 1.0)
-    coh = _validate.physical_field(cohesion_kpa, "cohesion_kpa")
-    root = _validate.physical_field(root_cohesion_kpa, "root_cohesion_kpa")
-    phi = _validate.physical_field(friction_deg, "friction_deg")
-    gm = _validate.physical_field(unit_weight_kn_m3, "unit_weight_kn_m3")
-    if saturated_unit_weight_kn_m3 is None:
-        gs = _validate.field(
-            gm, "saturated_unit_weight_kn_m3 (defaults to unit_weight_kn_m3)", GAMMA_W, 30.0
-        )
-    else:
-        gs = _validate.field(saturated_unit_weight_kn_m3, "saturated_unit_weight_kn_m3", GAMMA_W,
-                             30.0)
-        with np.errstate(invalid="ignore"):
-            lighter = np.broadcast_to(gs, np.broadcast_shapes(gs.shape, gm.shape)) < gm
-        if lighter.any():
-            raise InputError(
-                "saturated_unit_weight_kn_m3: lower than unit_weight_kn_m3 in some cells; "
-                "the saturated unit weight of a soil is at least its moist unit weight"
-            )
-    shape, arrs, st = _validate.broadcast_flat([slope, depth, wet, coh, root, phi, gm, gs])
+    (s,) = _validate.parameter_objects("factor_of_safety", strength_fields,
+                                       ("strength", SoilStrength, strength))
+    gs = _validate.saturated_unit_weight(s)
+    shape, arrs, st = _validate.broadcast_flat(
+        [slope, depth, wet, s.cohesion_kpa, s.root_cohesion_kpa, s.friction_deg,
+         s.unit_weight_kn_m3, gs])
     out = np.empty(int(np.prod(shape)), dtype=np.float32)
     _factor_of_safety_kernel(*arrs, st, out)
     return out.reshape(shape)

@@ -9,6 +9,7 @@ from .forces import (
     nonsubmodular_faces,
 )
 from .band import BandResult, least_stable_in_band
+from .inputs import ClusterOptions, ClusterStrength, ClusterUncertainty
 from .probability import ClusterProbability, cluster_failure_probability, cluster_parameter_draws
 from .search import WindowResult, failing_set, fs_bound_map, least_stable_in_window
 from .sizes import (
@@ -23,8 +24,11 @@ from .stage import TABLE_COLUMNS, ClusterResult, cluster_table, failure_clusters
 __all__ = [
     "BandResult",
     "ClusterForces",
+    "ClusterOptions",
     "ClusterProbability",
     "ClusterResult",
+    "ClusterStrength",
+    "ClusterUncertainty",
     "SIZE_COLUMNS",
     "SizeResolved",
     "TABLE_COLUMNS",

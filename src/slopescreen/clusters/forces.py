@@ -23,6 +23,7 @@ from .. import _validate
 from .._kernels.slope_stability import FS_CAP, GAMMA_W
 from ..errors import InputError
 from ._force_kernels import _face_per_length, _forces_kernel
+from .inputs import ClusterStrength
 
 __all__ = [
     "FACE_DROW",
@@ -241,10 +242,8 @@ def downslope_vectors(slope, aspect_deg):
     return down
 
 
-def cluster_forces(slope_deg, aspect_deg, depth_m, wetness, *, dx, dy, cohesion_kpa,
-                   root_cohesion_kpa, lateral_root_cohesion_kpa, friction_deg,
-                   unit_weight_kn_m3, saturated_unit_weight_kn_m3=None, passive_fraction=0.5,
-                   jaky_full=False):
+def cluster_forces(slope_deg, aspect_deg, depth_m, wetness, *, dx, dy, strength=None,
+                   passive_fraction=0.5, jaky_full=False, **strength_fields):
     """Per-cell basal forces and per-face earth-pressure forces of candidate slides.
 
     Parameters
@@ -261,22 +260,18 @@ def cluster_forces(slope_deg, aspect_deg, depth_m, wetness, *, dx, dy, cohesion_
         Saturated fraction W = h_w / z in [0, 1].
     dx, dy : float
         Cell width (east-west) and height (north-south), m.
-    cohesion_kpa : array_like
-        Effective soil cohesion c', kPa (>= 0): on the base, the sides and the toe.
-    root_cohesion_kpa : array_like
-        Basal root cohesion, kPa (>= 0).
-    lateral_root_cohesion_kpa : array_like
-        Root cohesion on the side and head faces, kPa (>= 0).
-    friction_deg : array_like
-        phi', degrees in [0, 60).
-    unit_weight_kn_m3 : array_like
-        Moist unit weight gamma_m, kN/m^3.
-    saturated_unit_weight_kn_m3 : array_like, optional
-        gamma_sat in [9.81, 30], default gamma_m.
+    strength : ClusterStrength
+        c' (on the base, the sides and the toe), basal and lateral root
+        cohesion, phi' (< 60 degrees), gamma_m and the optional gamma_sat
+        (default gamma_m, then in [9.81, 30]); each per cell or one value.
     passive_fraction : float
         Share eta in [0, 1] of full Rankine passive resistance at the toe (default 0.5).
     jaky_full : bool
         Use Jaky's full K_0 on the sides (default: the simplified 1 - sin phi').
+    **strength_fields
+        Instead of ``strength``: its fields as loose keywords
+        (``cohesion_kpa=..., lateral_root_cohesion_kpa=...``, and so on),
+        from which a :class:`ClusterStrength` is built.
 
     Returns
     -------
@@ -324,10 +319,20 @@ def cluster_forces(slope_deg, aspect_deg, depth_m, wetness, *, dx, dy, cohesion_
     Examples
     --------
     >>> import numpy as np
+    >>> from slopescreen.clusters import ClusterStrength
+    >>> soil = ClusterStrength(cohesion_kpa=2.0, root_cohesion_kpa=0.0,
+    ...     lateral_root_cohesion_kpa=5.0, friction_deg=32.0, unit_weight_kn_m3=18.0)
+    >>> f = cluster_forces(np.full((3, 3), 35.0), np.full((3, 3), 180.0), 1.0, 0.5, dx=5.0,
+    ...     dy=5.0, strength=soil)
+    >>> bool(f.face_thrust[1, 1, 1] > 0)   # the north face is the head of a south-facing slope
+    True
+
+    The same call with the strength as loose keywords:
+
     >>> f = cluster_forces(np.full((3, 3), 35.0), np.full((3, 3), 180.0), 1.0, 0.5, dx=5.0,
     ...     dy=5.0, cohesion_kpa=2.0, root_cohesion_kpa=0.0, lateral_root_cohesion_kpa=5.0,
     ...     friction_deg=32.0, unit_weight_kn_m3=18.0)
-    >>> bool(f.face_thrust[1, 1, 1] > 0)   # the north face is the head of a south-facing slope
+    >>> bool(f.face_thrust[1, 1, 1] > 0)
     True
     """
     slope, valid = _validate.surface(slope_deg, name="slope_deg", min_size=1)
@@ -339,22 +344,14 @@ def cluster_forces(slope_deg, aspect_deg, depth_m, wetness, *, dx, dy, cohesion_
     aspect = grid(aspect_deg, shape, "aspect_deg", 0.0, 360.0)
     depth = grid(depth_m, shape, "depth_m", 0.0, math.inf, open_low=True)
     wet = grid(wetness, shape, "wetness", 0.0, 1.0)
-    coh = grid(cohesion_kpa, shape, "cohesion_kpa", 0.0, math.inf)
-    root_b = grid(root_cohesion_kpa, shape, "root_cohesion_kpa", 0.0, math.inf)
-    root_l = grid(lateral_root_cohesion_kpa, shape, "lateral_root_cohesion_kpa", 0.0, math.inf)
-    phi = grid(friction_deg, shape, "friction_deg", 0.0, 60.0)
-    if np.nanmax(phi) >= 60.0:
-        raise InputError("friction_deg: must be < 60 degrees (K_p grows without bound)")
-    gm = grid(unit_weight_kn_m3, shape, "unit_weight_kn_m3", 0.0, 30.0, open_low=True)
-    if saturated_unit_weight_kn_m3 is None:
-        gs = grid(gm, shape, "saturated_unit_weight_kn_m3 (defaults to unit_weight_kn_m3)",
-                  GAMMA_W, 30.0)
-    else:
-        gs = grid(saturated_unit_weight_kn_m3, shape, "saturated_unit_weight_kn_m3", GAMMA_W, 30.0)
-    with np.errstate(invalid="ignore"):
-        if (gs < gm).any():
-            raise InputError("saturated_unit_weight_kn_m3: lower than unit_weight_kn_m3 in "
-                             "some cells; a saturated soil is at least as heavy as moist soil")
+    (s,) = _validate.parameter_objects("cluster_forces", strength_fields,
+                                       ("strength", ClusterStrength, strength))
+    coh, root_b, root_l, phi, gm = (
+        _validate.on_grid(getattr(s, key), shape, key)
+        for key in ("cohesion_kpa", "root_cohesion_kpa", "lateral_root_cohesion_kpa",
+                    "friction_deg", "unit_weight_kn_m3"))
+    gs = _validate.on_grid(_validate.saturated_unit_weight(s), shape,
+                           "saturated_unit_weight_kn_m3")
     eta = float(_validate.field(passive_fraction, "passive_fraction", 0.0, 1.0, allow_nan=False))
     for arr in (depth, wet, coh, root_b, root_l, phi, gm, gs):
         valid &= np.isfinite(arr)

@@ -66,9 +66,9 @@ from .._kernels.unit_draws import _UNIT_DOMAIN, _prepare_table, _unit_draws_kern
 from .._kernels.wetness import _wetness_point
 from .._numba import njit, njit_parallel, prange
 from ..errors import InputError
-from ..parameters import Parameter, fixed
 from ._force_kernels import _basal_forces, _face_force
 from .forces import downslope_vectors
+from .inputs import ClusterUncertainty, _encode_lateral
 
 __all__ = ["ClusterProbability", "cluster_parameter_draws", "cluster_failure_probability"]
 
@@ -95,31 +95,6 @@ def _lateral_draws_kernel(prep, samples, run_key, n_units, out):
         key = _stream_key(run_key, n_units + u)
         for s in range(samples):
             out[u, s] = _quantile_at(prep, u, 0, _uniform01(_counter_key(key, s)))
-
-
-def _encode_lateral(lateral, n_units):
-    """Encoded rows (n_units, 1, 5) of the lateral root cohesion, truncated to >= 0."""
-    if isinstance(lateral, (Parameter, int, float, np.integer, np.floating)):
-        values = [lateral] * n_units
-    else:
-        try:
-            values = list(lateral)
-        except TypeError:
-            raise InputError("lateral_root_cohesion_kpa: expected a number, a Parameter or one "
-                             "per soil unit") from None
-        if len(values) != n_units:
-            raise InputError(f"lateral_root_cohesion_kpa: {len(values)} values for "
-                             f"{n_units} soil units; give one per unit")
-    out = np.empty((n_units, 1, 5))
-    for u, v in enumerate(values):
-        name = f"unit {u} lateral_root_cohesion_kpa"
-        if isinstance(v, Parameter):
-            par = Parameter(v.kind, v.a, v.b, v.low, v.high, name=name)
-        else:
-            par = fixed(v, name=name)
-        # same physical range as the basal root cohesion: [0, inf)
-        out[u, 0] = _validate.physical_parameter(par, "root_cohesion_kpa").encode()
-    return out
 
 
 def cluster_parameter_draws(table, lateral_root_cohesion_kpa, *, samples, seed):
@@ -306,10 +281,9 @@ def _cluster_cells(clusters, shape):
             cc)
 
 
-def cluster_failure_probability(clusters, slope_deg, aspect_deg, unit_index, table, *,
-                                lateral_root_cohesion_kpa, dx, dy, rain=None, sca_m=None,
-                                wetness=None, samples=400, seed=0, passive_fraction=0.5,
-                                jaky_full=False, keep_samples=False):
+def cluster_failure_probability(clusters, slope_deg, aspect_deg, unit_index=None, table=None, *,
+                                dx, dy, uncertainty=None, wetness=None, passive_fraction=0.5,
+                                jaky_full=False, keep_samples=False, **uncertainty_fields):
     """Probability that each cluster fails, from Monte Carlo samples of the soil parameters.
 
     Parameters
@@ -322,34 +296,28 @@ def cluster_failure_probability(clusters, slope_deg, aspect_deg, unit_index, tab
         Slope, degrees in [0, 90); NaN is nodata.
     aspect_deg : array_like, shape (rows, cols)
         Downslope direction, degrees clockwise from north (NaN on flats).
-    unit_index : array_like of int, shape (rows, cols)
-        Row of ``table`` of each cell's soil unit; -1 is nodata.
-    table : numpy.ndarray, shape (n_units, 7, 5)
-        Encoded soil parameters of the stability stage.
-    lateral_root_cohesion_kpa : float, Parameter or sequence
-        Lateral root cohesion per unit (scenario key of the same name), kPa.
+    unit_index, table : optional
+        The first two fields of ``uncertainty``, positionally (the form of
+        earlier releases); give ``uncertainty`` instead.
     dx, dy : float
         Cell sizes, m.
-    rain : SteadyRain or StormRain, optional
-        The rain case: wetness recomputed per sample from the drawn
-        parameters (a steady case needs ``sca_m``; a storm needs the
-        diffusivity in ``table``).
-    sca_m : array_like, optional
-        Specific catchment area a, m (steady case).
+    uncertainty : ClusterUncertainty
+        Unit index, encoded soil table, lateral root cohesion, samples, seed,
+        and the rain case (with ``sca_m`` for a steady one), or None for a
+        fixed ``wetness``.
     wetness : array_like, optional
-        Fixed wetness W in [0, 1], held over the samples. Give either
-        ``rain`` or ``wetness``.
-    samples : int
-        Number of samples N (>= 1).
-    seed : int
-        Seed in [0, 2**64); the same seed gives bit-identical results with
-        any number of threads.
+        Fixed wetness W in [0, 1], held over the samples. Give either a rain
+        case in ``uncertainty`` or ``wetness``.
     passive_fraction : float
         Share of Rankine passive resistance at the toe, in [0, 1].
     jaky_full : bool
         Jaky's full K_0 on the sides.
     keep_samples : bool
         Also return every FS sample.
+    **uncertainty_fields
+        Instead of ``uncertainty``: its fields as loose keywords
+        (``lateral_root_cohesion_kpa=..., samples=..., seed=..., rain=...,
+        sca_m=...``), from which a :class:`ClusterUncertainty` is built.
 
     Returns
     -------
@@ -387,16 +355,26 @@ def cluster_failure_probability(clusters, slope_deg, aspect_deg, unit_index, tab
     --------
     >>> import numpy as np
     >>> from slopescreen.parameters import normal
+    >>> from slopescreen.clusters import ClusterUncertainty
     >>> from slopescreen.probability import encode_table
     >>> t = encode_table([{"depth_m": 1.0, "cohesion_kpa": 0.0, "root_cohesion_kpa": 0.0,
     ...     "friction_deg": normal(33.0, 3.0), "unit_weight_kn_m3": 18.0,
     ...     "conductivity_m_per_day": 1.0}])
+    >>> unc = ClusterUncertainty(unit_index=np.zeros((6, 6), int), table=t,
+    ...     lateral_root_cohesion_kpa=1.0, samples=200, seed=3)
     >>> lab = np.zeros((6, 6), np.int32); lab[1:5, 1:4] = 1
+    >>> res = cluster_failure_probability(lab, np.full((6, 6), 30.0), np.full((6, 6), 180.0),
+    ...     dx=5.0, dy=5.0, uncertainty=unc, wetness=0.3)
+    >>> res.ids.tolist(), float(res.p_f[0])
+    ([1], 0.32)
+
+    The same call in the loose form:
+
     >>> res = cluster_failure_probability(lab, np.full((6, 6), 30.0), np.full((6, 6), 180.0),
     ...     np.zeros((6, 6), int), t, lateral_root_cohesion_kpa=1.0, dx=5.0, dy=5.0,
     ...     wetness=0.3, samples=200, seed=3)
-    >>> res.ids.tolist(), float(res.p_f[0])
-    ([1], 0.32)
+    >>> float(res.p_f[0])
+    0.32
     """
     slope, _ = _validate.surface(slope_deg, name="slope_deg", min_size=1)
     dx, dy = _validate.cell_size(dx, dy)
@@ -408,19 +386,22 @@ def cluster_failure_probability(clusters, slope_deg, aspect_deg, unit_index, tab
         raise InputError(f"aspect_deg: shape {aspect.shape} does not match slope_deg {shape}")
     if np.isinf(aspect).any():
         raise InputError("aspect_deg: holds infinite values; use NaN for no direction")
-    unit = np.asarray(unit_index)
-    if unit.shape != shape or not np.issubdtype(unit.dtype, np.integer):
+    loose = dict(uncertainty_fields)
+    for key, value in (("unit_index", unit_index), ("table", table)):
+        if value is not None:
+            loose[key] = value
+    (unc,) = _validate.parameter_objects("cluster_failure_probability", loose,
+                                         ("uncertainty", ClusterUncertainty, uncertainty))
+    unit = unc.unit_index
+    if unit.shape != shape:
         raise InputError(f"unit_index: expected an integer array of shape {shape}")
+    rain = unc.rain
     if (rain is None) == (wetness is None):
         raise InputError("rain, wetness: give either a rain case (wetness per sample) or a "
                          "fixed wetness raster, not both or neither")
     rain_kind, rain_vec = (_FIXED, np.zeros(5)) if rain is None else _rain_vector(rain)
-    encoded, _ = _checked_table(table, rain_kind == _STORM)
-    n_units = encoded.shape[0]
-    if unit.size and (unit.min() < -1 or unit.max() >= n_units):
-        raise InputError(f"unit_index: values must lie in [-1, {n_units - 1}], got "
-                         f"[{unit.min()}, {unit.max()}]")
-    n, s = _validate.samples_and_seed(samples, seed)
+    encoded = unc.table
+    n, s = unc.samples, unc.seed
     eta = float(_validate.field(passive_fraction, "passive_fraction", 0.0, 1.0, allow_nan=False))
     valid = np.isfinite(slope) & (unit >= 0)
     wet = np.zeros((1, 1))
@@ -433,9 +414,7 @@ def cluster_failure_probability(clusters, slope_deg, aspect_deg, unit_index, tab
             raise InputError(f"wetness: shape {w.shape} does not broadcast to {shape}") from None
         valid &= np.isfinite(wet)
     if rain_kind == _STEADY:
-        if sca_m is None:
-            raise InputError("sca_m: a steady rain case needs the specific catchment area")
-        sca = np.asarray(_validate.field(sca_m, "sca_m", 0.0, math.inf), dtype=np.float64)
+        sca = np.asarray(unc.sca_m, dtype=np.float64)
         if sca.shape != shape:
             raise InputError(f"sca_m: shape {sca.shape} does not match slope_deg {shape}")
         valid &= np.isfinite(sca)
@@ -443,7 +422,7 @@ def cluster_failure_probability(clusters, slope_deg, aspect_deg, unit_index, tab
     if rr.size and not valid[rr, cc].all():
         raise InputError("clusters: some cluster cells have no soil unit or hold nodata "
                          "(slope, wetness or catchment area)")
-    draws, lateral = cluster_parameter_draws(encoded, lateral_root_cohesion_kpa, samples=n,
+    draws, lateral = cluster_parameter_draws(encoded, unc.lateral_root_cohesion_kpa, samples=n,
                                              seed=s)
     down = downslope_vectors(slope, aspect)
     out = np.empty((ids.size, n), dtype=np.float64)

@@ -20,8 +20,9 @@ and greedy repair for connected sets in an area band; its single-cell moves in
 area band, with the relaxation and MILP bounds; ``_solve`` checks every cvxpy
 solve and runs it in the killable child process of ``_highs_process``), ``sizes``
 (candidate windows, area bands, the size-resolved table), ``probability``
-(Monte Carlo probability that a found cluster fails) and ``stage`` (the stage
-function and the cluster table).
+(Monte Carlo probability that a found cluster fails), ``inputs`` (the parameter
+objects: strength, options, uncertainty) and ``stage`` (the stage function and
+the cluster table).
 """
 
 from typing import NamedTuple
@@ -31,8 +32,9 @@ import math
 import numpy as np
 from scipy import ndimage
 
-from ..errors import InputError
+from .. import _validate
 from .forces import _extent, cluster_factor_of_safety, cluster_forces
+from .inputs import ClusterOptions, ClusterStrength, ClusterUncertainty
 from .probability import cluster_failure_probability
 from .search import FOUR_CONNECTED, _sub, failing_set, fs_bound_map
 from .sizes import candidate_windows, size_resolved_clusters
@@ -122,14 +124,8 @@ def cluster_table(forces, labels, *, bound_map=None, extent_cells=0, min_area_m2
     return {k: np.asarray(v, dtype=dtypes.get(k, np.float64)) for k, v in out.items()}
 
 
-def failure_clusters(slope_deg, depth_m, wetness, *, dx, dy, aspect_deg, cohesion_kpa,
-                     root_cohesion_kpa, lateral_root_cohesion_kpa, friction_deg,
-                     unit_weight_kn_m3, saturated_unit_weight_kn_m3=None, passive_fraction=0.5,
-                     min_area_m2=None, max_area_m2=None, tile_cells=200, halo_cells=24,
-                     bound_window_cells=40, bound_stride_cells=20, bound=True,
-                     size_resolved=False, size_bands=1, size_time_limit_s=10.0,
-                     size_window_cells=40, size_n_least=4, size_max_clusters=None,
-                     uncertainty=None):
+def failure_clusters(slope_deg, depth_m, wetness, *, dx, dy, aspect_deg, strength=None,
+                     options=None, uncertainty=None, **fields):
     """Failing multi-cell clusters of one rain case and the cluster FS bound raster.
 
     Parameters
@@ -143,54 +139,25 @@ def failure_clusters(slope_deg, depth_m, wetness, *, dx, dy, aspect_deg, cohesio
         Cell sizes, m.
     aspect_deg : array_like, shape (rows, cols)
         Downslope direction, degrees clockwise from north (NaN on flats).
-    cohesion_kpa, root_cohesion_kpa, lateral_root_cohesion_kpa : array_like
-        c', basal and lateral root cohesion, kPa.
-    friction_deg : array_like
-        phi', degrees in [0, 60).
-    unit_weight_kn_m3 : array_like
-        Moist unit weight, kN/m^3.
-    saturated_unit_weight_kn_m3 : array_like, optional
-        Default: the moist unit weight (the stability stage's convention).
-    passive_fraction : float
-        Share of Rankine passive resistance at the toe (scenario
-        ``[clusters] passive_fraction``, default 0.5).
-    min_area_m2, max_area_m2 : float, optional
-        Area band of the scenario; sets the ``in_area_band`` column only
-        (the failing clusters of the exact cut have whatever size the
-        physics gives them).
-    tile_cells, halo_cells : int
-        Tile core and halo of the tiled cut (see
-        :func:`~slopescreen.clusters.search.failing_set`).
-    bound_window_cells, bound_stride_cells : int
-        Window side W and stride s of ``cluster_fs_bound``; the bound holds
-        for clusters whose bounding box spans at most W - s rows and columns.
-    bound : bool
-        Compute ``cluster_fs_bound`` (the slower product); NaN raster if False.
-    size_resolved : bool
-        Also run the size-resolved search (needs ``min_area_m2`` and
-        ``max_area_m2``): the least-stable connected cluster of each area
-        band in windows around each failing cluster and in the
-        ``size_n_least`` least-stable bound-map windows
-        (:func:`~slopescreen.clusters.sizes.size_resolved_clusters`).
-    size_bands : int or sequence of (float, float)
-        Area bands (:func:`~slopescreen.clusters.sizes.area_bands`).
-    size_time_limit_s : float
-        Time limit of the mixed-integer solves per window and band, s.
-    size_window_cells : int
-        Side of the windows centred on failing clusters, cells.
-    size_n_least : int
-        Least-stable bound-map windows added as candidates (needs ``bound``).
-    size_max_clusters : int, optional
-        Search at most this many windows centred on failing clusters, the
-        least stable first; a cluster inside a window already chosen adds
-        none (default: every cluster not so covered).
-    uncertainty : dict, optional
+    strength : ClusterStrength
+        c', basal and lateral root cohesion, phi' and the unit weights (the
+        saturated one defaults to the moist one, the stability stage's
+        convention).
+    options : ClusterOptions, optional
+        Passive share, area band, tiles, bound windows and the size-resolved
+        search; default ``ClusterOptions()``.
+    uncertainty : ClusterUncertainty, optional
         Fill the ``probability`` columns by
-        :func:`~slopescreen.clusters.probability.cluster_failure_probability`:
-        keys ``unit_index``, ``table``, ``lateral_root_cohesion_kpa``,
-        ``samples``, ``seed`` and ``rain`` (a SteadyRain with ``sca_m``, or
-        a StormRain: wetness recomputed per sample); without ``rain`` the
-        ``wetness`` given here is held fixed.
+        :func:`~slopescreen.clusters.probability.cluster_failure_probability`
+        with these distributions, samples and rain case (a SteadyRain with
+        ``sca_m``, or a StormRain: wetness recomputed per sample); without a
+        rain case the ``wetness`` given here is held fixed. A mapping of its
+        fields (the form of earlier releases) is accepted and converted by
+        :meth:`ClusterUncertainty.from_mapping`.
+    **fields
+        Instead of ``strength`` or ``options``: the fields of either as
+        loose keywords (``cohesion_kpa=..., friction_deg=..., bound=False,
+        size_resolved=True``, and so on), from which the objects are built.
 
     Returns
     -------
@@ -211,7 +178,7 @@ def failure_clusters(slope_deg, depth_m, wetness, *, dx, dy, aspect_deg, cohesio
     (possible only within the rounding error of the integer scale). The
     ``lower_bound`` column is the least ``cluster_fs_bound`` over the
     cluster's cells (NaN when the cluster is larger than the bound's extent
-    or ``bound`` is False); ``proven`` says that the
+    or ``options.bound`` is False); ``proven`` says that the
     cluster is an exact component of the global minimiser (no undecided
     tile cell touches it).
 
@@ -224,23 +191,31 @@ def failure_clusters(slope_deg, depth_m, wetness, *, dx, dy, aspect_deg, cohesio
     Examples
     --------
     >>> import numpy as np
+    >>> from slopescreen.clusters import ClusterOptions, ClusterStrength
     >>> slope = np.full((6, 8), 25.0); slope[1:4, 2:6] = 45.0
+    >>> soil = ClusterStrength(cohesion_kpa=0.0, root_cohesion_kpa=0.0,
+    ...     lateral_root_cohesion_kpa=0.0, friction_deg=35.0, unit_weight_kn_m3=19.0)
+    >>> res = failure_clusters(slope, 1.0, 1.0, dx=5.0, dy=5.0, aspect_deg=np.full((6, 8), 180.0),
+    ...     strength=soil, options=ClusterOptions(bound=False))
+    >>> int(res.labels.max()), bool(res.table["fs"][0] < 1)
+    (1, True)
+
+    The same call with loose keywords:
+
     >>> res = failure_clusters(slope, 1.0, 1.0, dx=5.0, dy=5.0, aspect_deg=np.full((6, 8), 180.0),
     ...     cohesion_kpa=0.0, root_cohesion_kpa=0.0, lateral_root_cohesion_kpa=0.0,
     ...     friction_deg=35.0, unit_weight_kn_m3=19.0, bound=False)
-    >>> int(res.labels.max()), bool(res.table["fs"][0] < 1)
-    (1, True)
+    >>> int(res.labels.max())
+    1
     """
+    strength, opts = _validate.parameter_objects(
+        "failure_clusters", fields, ("strength", ClusterStrength, strength),
+        ("options", ClusterOptions, options))
+    if uncertainty is not None and not isinstance(uncertainty, ClusterUncertainty):
+        uncertainty = ClusterUncertainty.from_mapping(uncertainty)
     forces = cluster_forces(slope_deg, aspect_deg, depth_m, wetness, dx=dx, dy=dy,
-                            cohesion_kpa=cohesion_kpa, root_cohesion_kpa=root_cohesion_kpa,
-                            lateral_root_cohesion_kpa=lateral_root_cohesion_kpa,
-                            friction_deg=friction_deg, unit_weight_kn_m3=unit_weight_kn_m3,
-                            saturated_unit_weight_kn_m3=saturated_unit_weight_kn_m3,
-                            passive_fraction=passive_fraction)
-    for name, v in (("tile_cells", tile_cells), ("halo_cells", halo_cells)):
-        if int(v) != v or v < (1 if name == "tile_cells" else 0):
-            raise InputError(f"{name}: expected a non-negative integer (tile >= 1), got {v!r}")
-    fset = failing_set(forces, tile_cells=int(tile_cells), halo_cells=int(halo_cells))
+                            strength=strength, passive_fraction=opts.passive_fraction)
+    fset = failing_set(forces, tile_cells=opts.tile_cells, halo_cells=opts.halo_cells)
     undecided = fset.upper & ~fset.lower
     labels, n = ndimage.label(fset.lower, structure=FOUR_CONNECTED)
     near_undecided = ndimage.binary_dilation(undecided, structure=FOUR_CONNECTED)
@@ -256,63 +231,40 @@ def failure_clusters(slope_deg, depth_m, wetness, *, dx, dy, aspect_deg, cohesio
     relabel[keep] = np.arange(1, int(keep.sum()) + 1, dtype=np.int32)
     out_labels = relabel[labels]
     windows = None
-    if bound:
-        bmap, windows, extent = fs_bound_map(forces, window_cells=bound_window_cells,
-                                             stride_cells=bound_stride_cells)
+    if opts.bound:
+        bmap, windows, extent = fs_bound_map(forces, window_cells=opts.bound_window_cells,
+                                             stride_cells=opts.bound_stride_cells)
     else:
         bmap = np.full(forces.valid.shape, np.nan, dtype=np.float32)
         extent = 0
-    table = cluster_table(forces, out_labels, bound_map=bmap if bound else None,
-                          extent_cells=extent, min_area_m2=min_area_m2, max_area_m2=max_area_m2,
-                          proven=proven)
+    table = cluster_table(forces, out_labels, bound_map=bmap if opts.bound else None,
+                          extent_cells=extent, min_area_m2=opts.min_area_m2,
+                          max_area_m2=opts.max_area_m2, proven=proven)
     sizes = None
-    if size_resolved:
-        if min_area_m2 is None or max_area_m2 is None:
-            raise InputError("min_area_m2, max_area_m2: the size-resolved search needs the "
-                             "scenario's area range ([clusters] min_area_m2, max_area_m2)")
+    if opts.size_resolved:
         # windows around the least-stable failing clusters first; a cluster inside a window
         # already chosen adds none
         order = np.asarray(table["id"])[np.argsort(table["fs"], kind="stable")]
         cands = candidate_windows(forces.valid.shape, labels=out_labels, windows=windows,
-                                  window_cells=size_window_cells, n_least=size_n_least,
-                                  order=order, max_clusters=size_max_clusters)
-        sizes = size_resolved_clusters(forces, candidates=cands, min_area_m2=min_area_m2,
-                                       max_area_m2=max_area_m2, bands=size_bands,
-                                       time_limit_s=size_time_limit_s)
+                                  window_cells=opts.size_window_cells, n_least=opts.size_n_least,
+                                  order=order, max_clusters=opts.size_max_clusters)
+        sizes = size_resolved_clusters(forces, candidates=cands, min_area_m2=opts.min_area_m2,
+                                       max_area_m2=opts.max_area_m2, bands=opts.size_bands,
+                                       time_limit_s=opts.size_time_limit_s)
     if uncertainty is not None:
         _add_probability(table, out_labels, sizes, slope_deg, aspect_deg, wetness, dx, dy,
-                         passive_fraction, uncertainty)
+                         opts.passive_fraction, uncertainty)
     return ClusterResult(out_labels, table, bmap, extent, fset.modular_faces,
                          int(undecided.sum()), int(n - keep[1:].sum()), sizes)
-
-
-_UNCERTAINTY_KEYS = {"unit_index", "table", "lateral_root_cohesion_kpa", "samples", "seed",
-                     "rain", "sca_m"}
 
 
 def _add_probability(table, labels, sizes, slope_deg, aspect_deg, wetness, dx, dy,
                      passive_fraction, uncertainty):
     """Fill the probability columns of the cluster table (and of the size-resolved table)."""
-    try:
-        extra = set(uncertainty) - _UNCERTAINTY_KEYS
-    except TypeError:
-        raise InputError("uncertainty: expected a mapping of keyword arguments") from None
-    if extra:
-        raise InputError(f"uncertainty: unknown key(s) {sorted(extra)}; expected "
-                         f"{sorted(_UNCERTAINTY_KEYS)}")
-    args = dict(uncertainty)
-    for key in ("unit_index", "table", "lateral_root_cohesion_kpa"):
-        if key not in args:
-            raise InputError(f"uncertainty: missing {key!r}")
-    unit = args.pop("unit_index")
-    tab = args.pop("table")
-    if args.get("rain") is None:
-        args.pop("rain", None)
-        args.pop("sca_m", None)
-        args["wetness"] = wetness
-    common = dict(dx=dx, dy=dy, passive_fraction=passive_fraction, **args)
+    common = dict(dx=dx, dy=dy, passive_fraction=passive_fraction, uncertainty=uncertainty,
+                  wetness=wetness if uncertainty.rain is None else None)
     if labels.max() > 0:
-        res = cluster_failure_probability(labels, slope_deg, aspect_deg, unit, tab, **common)
+        res = cluster_failure_probability(labels, slope_deg, aspect_deg, **common)
         table["probability"][res.ids - 1] = res.p_f
         table["probability_se"][res.ids - 1] = res.standard_error
     if sizes is not None:
@@ -320,6 +272,6 @@ def _add_probability(table, labels, sizes, slope_deg, aspect_deg, wetness, dx, d
         if rows:
             shape = labels.shape
             res = cluster_failure_probability([sizes.grid_mask(i, shape) for i in rows],
-                                              slope_deg, aspect_deg, unit, tab, **common)
+                                              slope_deg, aspect_deg, **common)
             sizes.table["probability"][rows] = res.p_f
             sizes.table["probability_se"][rows] = res.standard_error

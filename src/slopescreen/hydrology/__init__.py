@@ -1,6 +1,6 @@
 """Wetness of the soil column under rain: steady recharge and storms (Iverson 2000)."""
 
-from .iverson import iverson_response, storm_factor_of_safety, storm_pressure_head
+from .iverson import StormInputs, iverson_response, storm_factor_of_safety, storm_pressure_head
 from .rain import SteadyRain, StormRain
 from .steady import steady_wetness
 from .storm import StormMinimum, storm_minimum
@@ -8,6 +8,7 @@ from .storm import StormMinimum, storm_minimum
 __all__ = [
     "SteadyRain",
     "StormRain",
+    "StormInputs",
     "StormMinimum",
     "steady_wetness",
     "iverson_response",

@@ -1,11 +1,13 @@
 """Iverson's (2000) storm response: pressure head and factor of safety at (Z, t).
 
-:func:`iverson_response`, :func:`storm_pressure_head` and
+:class:`StormInputs` (the storm and the soil's hydraulic properties, validated
+once), :func:`iverson_response`, :func:`storm_pressure_head` and
 :func:`storm_factor_of_safety`; their point kernels are in
 :mod:`slopescreen._kernels.iverson`, shared with the least-FS search and the
 probability modules.
 """
 
+import dataclasses
 import math
 
 import numpy as np
@@ -15,7 +17,105 @@ from .._kernels.iverson import _head_point, _response, _storm_fs_point
 from .._kernels.slope_stability import _rad
 from .._numba import njit, njit_parallel, prange
 from ..errors import InputError
+from ..stability import SoilStrength
 from .rain import _INF
+
+
+@dataclasses.dataclass(frozen=True, kw_only=True, eq=False)
+class StormInputs:
+    """A storm on near-saturated soil and the soil's hydraulic properties, validated once.
+
+    The inputs of Iverson's (2000) response besides the depth, time and slope
+    (docs/methods.md, "Storm response (Iverson 2000)"), in SI units. Every
+    field is a number or an array (per cell); they broadcast against each
+    other and against the other inputs of :func:`storm_pressure_head`,
+    :func:`storm_factor_of_safety` and
+    :func:`~slopescreen.hydrology.storm_minimum`, which take one.
+
+    Parameters
+    ----------
+    water_table_depth_m : array_like
+        Vertical depth d of the steady water table before the storm, m (>= 0).
+    intensity_m_per_s : array_like
+        Rain intensity I, m/s (>= 0); I_Z = min(I, K_Z) infiltrates, the rest runs off.
+    conductivity_m_per_s : array_like
+        Saturated conductivity K_Z, m/s (> 0).
+    diffusivity_m2_per_s : array_like
+        Maximum hydraulic diffusivity D0, m^2/s (> 0).
+    duration_s : array_like
+        Storm duration T, s (>= 0).
+    steady_ratio : array_like, optional
+        Long-term infiltration ratio (I_Z/K_Z)_LT in [0, 1]; beta =
+        cos^2(alpha) - steady_ratio (clipped at 0). Default 0.
+
+    Raises
+    ------
+    InputError
+        A value out of its range (the message names the field), infinite
+        values, an all-NaN field.
+
+    Notes
+    -----
+    Each field is stored as a read-only numpy array: a float32 input as a
+    view of the caller's array (an array changed by its owner afterwards is
+    seen changed by the object), anything else as a float64 copy.
+
+    References
+    ----------
+    Iverson, R.M. (2000). Landslide triggering by rain infiltration. Water
+    Resources Research 36(7), 1897-1910. doi 10.1029/2000WR900090
+
+    Examples
+    --------
+    >>> storm = StormInputs(water_table_depth_m=1.0, intensity_m_per_s=5e-6,
+    ...     conductivity_m_per_s=1e-5, diffusivity_m2_per_s=1e-4, duration_s=24 * 3600.0)
+    >>> float(storm.duration_s), float(storm.steady_ratio)
+    (86400.0, 0.0)
+    >>> StormInputs(water_table_depth_m=1.0, intensity_m_per_s=5e-6, conductivity_m_per_s=0.0,
+    ...     diffusivity_m2_per_s=1e-4, duration_s=3600.0)
+    Traceback (most recent call last):
+    ...
+    slopescreen.errors.InputError: conductivity_m_per_s: got 0.0; expected values > 0.0 and <= inf
+    """
+
+    water_table_depth_m: np.ndarray
+    intensity_m_per_s: np.ndarray
+    conductivity_m_per_s: np.ndarray
+    diffusivity_m2_per_s: np.ndarray
+    duration_s: np.ndarray
+    steady_ratio: np.ndarray = 0.0
+
+    # field -> (low, high, open_low) of its check
+    _RANGES = {
+        "water_table_depth_m": (0.0, _INF, False),
+        "intensity_m_per_s": (0.0, _INF, False),
+        "conductivity_m_per_s": (0.0, _INF, True),
+        "diffusivity_m2_per_s": (0.0, _INF, True),
+        "duration_s": (0.0, _INF, False),
+        "steady_ratio": (0.0, 1.0, False),
+    }
+
+    def __post_init__(self):
+        for key, (low, high, open_low) in self._RANGES.items():
+            arr = _validate.field(getattr(self, key), key, low, high, open_low=open_low)
+            object.__setattr__(self, key, _validate.read_only(arr))
+
+    def _arrays(self):
+        """The fields in the order the kernels take them (d, I, K, D0, T, ratio)."""
+        return [getattr(self, key) for key in self._RANGES]
+
+
+def _storm_and_strength(function, fields, storm, strength=None, *, with_strength=False):
+    """The StormInputs (and SoilStrength) of a call: the objects or built from loose keywords."""
+    specs = [("storm", StormInputs, storm)]
+    if with_strength:
+        specs.append(("strength", SoilStrength, strength))
+    out = _validate.parameter_objects(function, fields, *specs)
+    if with_strength and out[1].saturated_unit_weight_kn_m3 is not None:
+        raise InputError("saturated_unit_weight_kn_m3: the storm model uses one depth-averaged "
+                         "unit weight (unit_weight_kn_m3); leave saturated_unit_weight_kn_m3 "
+                         "unset")
+    return out
 
 
 def iverson_response(t_star):
@@ -82,34 +182,21 @@ def _head_kernel(depth, time, slope, d, intens, k, d0, dur, ratio, st, out):
         out[i] = psi
 
 
-def _storm_fields(depth_m, time_s, slope_deg, water_table_depth_m, intensity_m_per_s,
-                  conductivity_m_per_s, diffusivity_m2_per_s, duration_s, steady_ratio,
-                  depth_name="depth_m"):
+def _strength_arrays(strength):
+    """c', c_r, phi', gamma of a SoilStrength in the order the storm kernels take them."""
+    return [strength.cohesion_kpa, strength.root_cohesion_kpa, strength.friction_deg,
+            strength.unit_weight_kn_m3]
+
+
+def _point_fields(depth_m, time_s, slope_deg):
     return [
-        _validate.field(depth_m, depth_name, 0.0, _INF, open_low=True),
+        _validate.field(depth_m, "depth_m", 0.0, _INF, open_low=True),
         _validate.field(time_s, "time_s", 0.0, _INF),
         _validate.slope_field(slope_deg),
-        _validate.field(water_table_depth_m, "water_table_depth_m", 0.0, _INF),
-        _validate.field(intensity_m_per_s, "intensity_m_per_s", 0.0, _INF),
-        _validate.field(conductivity_m_per_s, "conductivity_m_per_s", 0.0, _INF, open_low=True),
-        _validate.field(diffusivity_m2_per_s, "diffusivity_m2_per_s", 0.0, _INF, open_low=True),
-        _validate.field(duration_s, "duration_s", 0.0, _INF),
-        _validate.field(steady_ratio, "steady_ratio", 0.0, 1.0),
     ]
 
 
-def storm_pressure_head(
-    depth_m,
-    time_s,
-    *,
-    slope_deg,
-    water_table_depth_m,
-    intensity_m_per_s,
-    conductivity_m_per_s,
-    diffusivity_m2_per_s,
-    duration_s,
-    steady_ratio=0.0,
-):
+def storm_pressure_head(depth_m, time_s, *, slope_deg, storm=None, **storm_fields):
     """Pressure head at vertical depth Z and time t during and after a storm.
 
     Parameters
@@ -120,18 +207,13 @@ def storm_pressure_head(
         Time since the storm began, s (>= 0).
     slope_deg : array_like
         Slope angle alpha, degrees in [0, 90).
-    water_table_depth_m : array_like
-        Vertical depth d of the steady water table before the storm, m (>= 0).
-    intensity_m_per_s : array_like
-        Rain intensity I, m/s (>= 0); I_Z = min(I, K_Z) infiltrates, the rest runs off.
-    conductivity_m_per_s : array_like
-        Saturated conductivity K_Z, m/s (> 0).
-    diffusivity_m2_per_s : array_like
-        Maximum hydraulic diffusivity D0, m^2/s (> 0).
-    duration_s : array_like
-        Storm duration T, s (>= 0).
-    steady_ratio : array_like, optional
-        Long-term infiltration ratio (I_Z/K_Z)_LT in [0, 1]; default 0.
+    storm : StormInputs
+        Water table depth d, intensity I, conductivity K_Z, diffusivity D0,
+        duration T and the steady ratio.
+    **storm_fields
+        Instead of ``storm``: its fields as loose keywords
+        (``water_table_depth_m=..., intensity_m_per_s=...``, and so on), from
+        which a :class:`StormInputs` is built.
 
     All inputs broadcast against each other.
 
@@ -165,15 +247,23 @@ def storm_pressure_head(
 
     Examples
     --------
+    >>> storm = StormInputs(water_table_depth_m=1.0, intensity_m_per_s=5e-6,
+    ...     conductivity_m_per_s=1e-5, diffusivity_m2_per_s=1e-4, duration_s=24 * 3600.0)
+    >>> psi = storm_pressure_head(1.0, 12 * 3600.0, slope_deg=35.0, storm=storm)
+    >>> round(float(psi), 4)  # 0.5 R(11.595), water table at Z
+    0.5422
+
+    The same call with the storm as loose keywords:
+
     >>> psi = storm_pressure_head(1.0, 12 * 3600.0, slope_deg=35.0, water_table_depth_m=1.0,
     ...     intensity_m_per_s=5e-6, conductivity_m_per_s=1e-5, diffusivity_m2_per_s=1e-4,
     ...     duration_s=24 * 3600.0)
-    >>> round(float(psi), 4)  # 0.5 R(11.595), water table at Z
+    >>> round(float(psi), 4)
     0.5422
     """
-    fields = _storm_fields(depth_m, time_s, slope_deg, water_table_depth_m, intensity_m_per_s,
-                           conductivity_m_per_s, diffusivity_m2_per_s, duration_s, steady_ratio)
-    shape, arrs, st = _validate.broadcast_flat(fields)
+    fields = _point_fields(depth_m, time_s, slope_deg)
+    (storm,) = _storm_and_strength("storm_pressure_head", storm_fields, storm)
+    shape, arrs, st = _validate.broadcast_flat(fields + storm._arrays())
     out = np.empty(int(np.prod(shape)), dtype=np.float64)
     _head_kernel(*arrs, st, out)
     return out.reshape(shape)
@@ -196,52 +286,26 @@ def _storm_fs_kernel(depth, time, slope, d, intens, k, d0, dur, ratio, coh, root
         )
 
 
-def _strength_fields(cohesion_kpa, root_cohesion_kpa, friction_deg, unit_weight_kn_m3):
-    return [
-        _validate.physical_field(cohesion_kpa, "cohesion_kpa"),
-        _validate.physical_field(root_cohesion_kpa, "root_cohesion_kpa"),
-        _validate.physical_field(friction_deg, "friction_deg"),
-        _validate.physical_field(unit_weight_kn_m3, "unit_weight_kn_m3"),
-    ]
-
-
-def storm_factor_of_safety(
-    depth_m,
-    time_s,
-    *,
-    slope_deg,
-    water_table_depth_m,
-    intensity_m_per_s,
-    conductivity_m_per_s,
-    diffusivity_m2_per_s,
-    duration_s,
-    cohesion_kpa,
-    root_cohesion_kpa,
-    friction_deg,
-    unit_weight_kn_m3,
-    steady_ratio=0.0,
-    count_suction=False,
-):
+def storm_factor_of_safety(depth_m, time_s, *, slope_deg, storm=None, strength=None,
+                           count_suction=False, **fields):
     """Factor of safety FS(Z, t) on a slip plane at vertical depth Z during a storm.
 
     Parameters
     ----------
-    depth_m, time_s, slope_deg, water_table_depth_m : array_like
+    depth_m, time_s, slope_deg : array_like
         As in :func:`storm_pressure_head`.
-    intensity_m_per_s, conductivity_m_per_s, diffusivity_m2_per_s : array_like
-        As in :func:`storm_pressure_head`.
-    duration_s, steady_ratio : array_like
-        As in :func:`storm_pressure_head`.
-    cohesion_kpa, root_cohesion_kpa : array_like
-        c' and basal c_r, kPa (>= 0).
-    friction_deg : array_like
-        phi', degrees in [0, 60].
-    unit_weight_kn_m3 : array_like
-        Depth-averaged soil unit weight gamma_s, kN/m^3 (0, 30].
+    storm : StormInputs
+        The storm and the soil's hydraulic properties.
+    strength : slopescreen.stability.SoilStrength
+        c', basal c_r, phi' and the depth-averaged unit weight gamma_s
+        (``unit_weight_kn_m3``); one unit weight, so no gamma_sat.
     count_suction : bool, keyword-only
         If False (default), negative pressure heads (above the water table)
         are taken as 0: suction is conservatively not counted as strength
         (docs/methods.md, "Infinite-slope factor of safety"). True uses Iverson's psi as it is.
+    **fields
+        Instead of ``storm`` or ``strength``: the fields of either as loose
+        keywords, from which the object is built.
 
     Returns
     -------
@@ -269,17 +333,28 @@ def storm_factor_of_safety(
 
     Examples
     --------
+    >>> from slopescreen.stability import SoilStrength
+    >>> dry = StormInputs(water_table_depth_m=5.0, intensity_m_per_s=0.0,
+    ...     conductivity_m_per_s=1e-5, diffusivity_m2_per_s=1e-4, duration_s=0.0)
+    >>> sand = SoilStrength(cohesion_kpa=0.0, root_cohesion_kpa=0.0, friction_deg=35.0,
+    ...     unit_weight_kn_m3=18.0)
+    >>> fs = storm_factor_of_safety(1.0, 0.0, slope_deg=30.0, storm=dry, strength=sand)
+    >>> round(float(fs), 5)  # dry: tan 35 / tan 30
+    1.2128
+
+    The same call with loose keywords:
+
     >>> fs = storm_factor_of_safety(1.0, 0.0, slope_deg=30.0, water_table_depth_m=5.0,
     ...     intensity_m_per_s=0.0, conductivity_m_per_s=1e-5, diffusivity_m2_per_s=1e-4,
     ...     duration_s=0.0, cohesion_kpa=0.0, root_cohesion_kpa=0.0, friction_deg=35.0,
     ...     unit_weight_kn_m3=18.0)
-    >>> round(float(fs), 5)  # dry: tan 35 / tan 30
+    >>> round(float(fs), 5)
     1.2128
     """
-    fields = _storm_fields(depth_m, time_s, slope_deg, water_table_depth_m, intensity_m_per_s,
-                           conductivity_m_per_s, diffusivity_m2_per_s, duration_s, steady_ratio)
-    fields += _strength_fields(cohesion_kpa, root_cohesion_kpa, friction_deg, unit_weight_kn_m3)
-    shape, arrs, st = _validate.broadcast_flat(fields)
+    point = _point_fields(depth_m, time_s, slope_deg)
+    storm, strength = _storm_and_strength("storm_factor_of_safety", fields, storm, strength,
+                                          with_strength=True)
+    shape, arrs, st = _validate.broadcast_flat(point + storm._arrays() + _strength_arrays(strength))
     out = np.empty(int(np.prod(shape)), dtype=np.float32)
     _storm_fs_kernel(*arrs[:13], bool(count_suction), st, out)
     return out.reshape(shape)

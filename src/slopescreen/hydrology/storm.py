@@ -13,7 +13,7 @@ from .. import _validate
 from .._kernels.slope_stability import _rad
 from .._kernels.storm import _storm_min_point
 from .._numba import njit_parallel, prange
-from .iverson import _storm_fields, _strength_fields
+from .iverson import _storm_and_strength, _strength_arrays
 from .rain import _INF
 
 
@@ -57,26 +57,9 @@ class StormMinimum(NamedTuple):
     """bool: the time of the least FS exceeds validity_ratio * A / D0 (needs the area)."""
 
 
-def storm_minimum(
-    slope_deg,
-    *,
-    soil_depth_m,
-    water_table_depth_m,
-    intensity_m_per_s,
-    conductivity_m_per_s,
-    diffusivity_m2_per_s,
-    duration_s,
-    cohesion_kpa,
-    root_cohesion_kpa,
-    friction_deg,
-    unit_weight_kn_m3,
-    steady_ratio=0.0,
-    horizon_s=None,
-    n_depths=20,
-    contributing_area_m2=None,
-    validity_ratio=0.1,
-    count_suction=False,
-):
+def storm_minimum(slope_deg, *, soil_depth_m, storm=None, strength=None, horizon_s=None,
+                  n_depths=20, contributing_area_m2=None, validity_ratio=0.1,
+                  count_suction=False, **fields):
     """Least storm factor of safety per cell over depth and time.
 
     Parameters
@@ -85,12 +68,11 @@ def storm_minimum(
         Slope angle alpha, degrees in [0, 90). NaN is nodata.
     soil_depth_m : array_like
         Vertical soil depth, m (> 0); depths z k / n_depths, k = 1..n_depths, are tried.
-    water_table_depth_m, intensity_m_per_s, conductivity_m_per_s : array_like
-        As in :func:`storm_pressure_head`.
-    diffusivity_m2_per_s, duration_s, steady_ratio : array_like
-        As in :func:`storm_pressure_head`.
-    cohesion_kpa, root_cohesion_kpa, friction_deg, unit_weight_kn_m3 : array_like
-        As in :func:`storm_factor_of_safety`.
+    storm : StormInputs
+        The storm and the soil's hydraulic properties.
+    strength : slopescreen.stability.SoilStrength
+        c', basal c_r, phi' and the depth-averaged unit weight (no gamma_sat),
+        as in :func:`storm_factor_of_safety`.
     horizon_s : float, optional
         Latest time considered, s from the storm start. Default None: no limit,
         which amounts to the post-storm peak of the head at the soil base
@@ -105,6 +87,9 @@ def storm_minimum(
         (default 0.1; Iverson asks for t << A / D0).
     count_suction : bool
         See :func:`storm_factor_of_safety`.
+    **fields
+        Instead of ``storm`` or ``strength``: the fields of either as loose
+        keywords, from which the object is built.
 
     Returns
     -------
@@ -136,18 +121,30 @@ def storm_minimum(
 
     Examples
     --------
-    >>> res = storm_minimum(35.0, soil_depth_m=1.0, water_table_depth_m=1.0,
+    >>> from slopescreen.hydrology import StormInputs
+    >>> from slopescreen.stability import SoilStrength
+    >>> storm = StormInputs(water_table_depth_m=1.0, intensity_m_per_s=5e-6,
+    ...     conductivity_m_per_s=1e-5, diffusivity_m2_per_s=1e-4, duration_s=7200.0)
+    >>> soil = SoilStrength(cohesion_kpa=4.0, root_cohesion_kpa=0.0, friction_deg=38.0,
+    ...     unit_weight_kn_m3=19.0)
+    >>> res = storm_minimum(35.0, soil_depth_m=1.0, storm=storm, strength=soil, n_depths=10)
+    >>> bool(res.time_s > 7200.0)  # the least FS comes after the rain stops
+    True
+
+    The same call with loose keywords gives the same result:
+
+    >>> loose = storm_minimum(35.0, soil_depth_m=1.0, water_table_depth_m=1.0,
     ...     intensity_m_per_s=5e-6, conductivity_m_per_s=1e-5, diffusivity_m2_per_s=1e-4,
     ...     duration_s=7200.0, cohesion_kpa=4.0, root_cohesion_kpa=0.0, friction_deg=38.0,
     ...     unit_weight_kn_m3=19.0, n_depths=10)
-    >>> bool(res.time_s > 7200.0)  # the least FS comes after the rain stops
+    >>> bool(loose.fs == res.fs and loose.time_s == res.time_s)
     True
     """
-    fields = _storm_fields(soil_depth_m, 0.0, slope_deg, water_table_depth_m, intensity_m_per_s,
-                           conductivity_m_per_s, diffusivity_m2_per_s, duration_s, steady_ratio,
-                           depth_name="soil_depth_m")
-    fields = [fields[2], fields[0]] + fields[3:]
-    fields += _strength_fields(cohesion_kpa, root_cohesion_kpa, friction_deg, unit_weight_kn_m3)
+    depth = _validate.field(soil_depth_m, "soil_depth_m", 0.0, _INF, open_low=True)
+    slope = _validate.slope_field(slope_deg)
+    storm, strength = _storm_and_strength("storm_minimum", fields, storm, strength,
+                                          with_strength=True)
+    fields = [slope, depth] + storm._arrays() + _strength_arrays(strength)
     if contributing_area_m2 is None:
         area = np.array(np.nan)
     else:
