@@ -57,7 +57,7 @@ def clusters_stage(scenario, inputs, cells: SoilCells, slope, stability, earlier
     of the cases before it (``earlier``), in the scenario's order, so the
     ``cluster_labels`` rasters match the one ``clusters`` layer.
     """
-    from ..clusters import failure_clusters
+    from ..clusters import ClusterOptions, ClusterStrength, ClusterUncertainty, failure_clusters
     from ..vectors import label_polygons
 
     soil = cells.soil
@@ -65,22 +65,25 @@ def clusters_stage(scenario, inputs, cells: SoilCells, slope, stability, earlier
     grid = inputs.grid
     depth = stability.storm.depth_m if stability.storm is not None else soil.cell_map("depth_m")
     unc = effective_uncertainty(scenario)
-    uncertainty = None if unc is None else dict(
+    uncertainty = None if unc is None else ClusterUncertainty(
         unit_index=soil.index_array(), table=soil.table,
         lateral_root_cohesion_kpa=[u.lateral_root_cohesion_kpa for u in soil.units],
         samples=unc.samples, seed=unc.seed, rain=rain_model(case),
         sca_m=None if case.is_storm else cells.sca_m)
-    result = failure_clusters(
-        cells.slope_deg, depth, stability.wetness, dx=grid.dx_m, dy=grid.dy_m,
-        aspect_deg=slope.aspect_deg, cohesion_kpa=soil.cell_map("cohesion_kpa"),
+    strength = ClusterStrength(
+        cohesion_kpa=soil.cell_map("cohesion_kpa"),
         root_cohesion_kpa=soil.cell_map("root_cohesion_kpa"),
         lateral_root_cohesion_kpa=soil.cell_map("lateral_root_cohesion_kpa"),
         friction_deg=soil.cell_map("friction_deg"),
-        unit_weight_kn_m3=soil.cell_map("unit_weight_kn_m3"), passive_fraction=c.passive_fraction,
-        min_area_m2=c.min_area_m2, max_area_m2=c.max_area_m2,
+        unit_weight_kn_m3=soil.cell_map("unit_weight_kn_m3"))
+    options = ClusterOptions(
+        min_area_m2=c.min_area_m2, max_area_m2=c.max_area_m2, passive_fraction=c.passive_fraction,
         size_resolved=c.size_windows > 0, size_bands=c.size_bands,
         size_time_limit_s=c.size_time_limit_s, size_max_clusters=c.size_windows,
-        size_n_least=min(2, c.size_windows), uncertainty=uncertainty)
+        size_n_least=min(2, c.size_windows))
+    result = failure_clusters(cells.slope_deg, depth, stability.wetness, dx=grid.dx_m, dy=grid.dy_m,
+                              aspect_deg=slope.aspect_deg, strength=strength, options=options,
+                              uncertainty=uncertainty)
     table = result.table
     offset = sum(len(e.records) for e in earlier)
     labels = np.where(result.labels > 0, result.labels + offset, 0).astype(np.int32)

@@ -97,16 +97,19 @@ def _steady_cells(slope_deg, sca_m, *, recharge_mm_per_day, depth_m, conductivit
 def _storm_cells(slope_deg, area_m2, *, case, depth_m, conductivity_m_per_day,
                  diffusivity_m2_per_s, cohesion_kpa, root_cohesion_kpa, friction_deg,
                  unit_weight_kn_m3):
-    from ..hydrology import storm_minimum, storm_pressure_head
+    from ..hydrology import StormInputs, storm_minimum, storm_pressure_head
+    from ..stability import SoilStrength
 
-    hydro = dict(water_table_depth_m=case.water_table_depth_m,
-                 intensity_m_per_s=case.storm_mm_per_h / 3.6e6,
-                 conductivity_m_per_s=conductivity_m_per_day / 86400.0,
-                 diffusivity_m2_per_s=diffusivity_m2_per_s, duration_s=case.duration_h * 3600.0)
-    least = storm_minimum(slope_deg, soil_depth_m=depth_m, contributing_area_m2=area_m2, **hydro,
-                          cohesion_kpa=cohesion_kpa, root_cohesion_kpa=root_cohesion_kpa,
-                          friction_deg=friction_deg, unit_weight_kn_m3=unit_weight_kn_m3)
-    psi = storm_pressure_head(least.depth_m, least.time_s, slope_deg=slope_deg, **hydro)
+    storm = StormInputs(water_table_depth_m=case.water_table_depth_m,
+                        intensity_m_per_s=case.storm_mm_per_h / 3.6e6,
+                        conductivity_m_per_s=conductivity_m_per_day / 86400.0,
+                        diffusivity_m2_per_s=diffusivity_m2_per_s,
+                        duration_s=case.duration_h * 3600.0)
+    strength = SoilStrength(cohesion_kpa=cohesion_kpa, root_cohesion_kpa=root_cohesion_kpa,
+                            friction_deg=friction_deg, unit_weight_kn_m3=unit_weight_kn_m3)
+    least = storm_minimum(slope_deg, soil_depth_m=depth_m, contributing_area_m2=area_m2,
+                          storm=storm, strength=strength)
+    psi = storm_pressure_head(least.depth_m, least.time_s, slope_deg=slope_deg, storm=storm)
     cos2 = np.cos(np.radians(slope_deg.astype(np.float64))) ** 2
     with np.errstate(invalid="ignore", divide="ignore"):
         wet = np.clip(psi / (least.depth_m * cos2), 0.0, 1.0).astype(np.float32)
