@@ -240,12 +240,40 @@ def test_reproducible_bit_for_bit_and_thread_independent():
     assert a.ids.tolist() == [1, 2]
 
 
-def test_lateral_stream_is_independent_of_the_table_streams():
-    # same distribution for basal and lateral root cohesion: separate streams give
-    # uncorrelated draws (|r| < 4 / sqrt(N)) with the same mean (4 standard errors)
+def test_basal_and_lateral_root_cohesion_come_from_one_quantile():
+    # The same roots cross the base and the margins: each sample draws both at one quantile
+    # (perfect rank correlation, scipy.stats.spearmanr = 1), each from its own distribution
+    # (Kolmogorov-Smirnov against scipy's distribution); with equal distributions they are equal.
     t = encode_table([_unit(root_cohesion_kpa=normal(5.0, 1.0))])
-    draws, lat = cluster_parameter_draws(t, normal(5.0, 1.0), samples=5000, seed=9)
-    r = np.corrcoef(draws[0, 2], lat[0])[0, 1]
-    assert abs(r) < 4 / math.sqrt(5000)
-    assert abs(lat[0].mean() - 5.0) < 4 / math.sqrt(5000)
-    assert not np.array_equal(draws[0, 2], lat[0])
+    draws, lat = cluster_parameter_draws(t, normal(5.0, 1.0), samples=2000, seed=9)
+    np.testing.assert_array_equal(draws[0, 2], lat[0])
+    t = encode_table([_unit(root_cohesion_kpa=uniform(2.0, 8.0))])
+    draws, lat = cluster_parameter_draws(t, lognormal(20.0, 0.4), samples=4000, seed=9)
+    assert stats.spearmanr(draws[0, 2], lat[0]).statistic == pytest.approx(1.0)
+    assert stats.kstest(lat[0], stats.lognorm(0.4, scale=20.0).cdf).pvalue > 1e-3
+    assert stats.kstest(draws[0, 2], stats.uniform(2.0, 6.0).cdf).pvalue > 1e-3
+
+
+def test_correlated_root_cohesions_slab_probability():
+    # FS is linear in the basal (c_b) and lateral (c_l) root cohesion of the slab. With
+    # c_l = m_l + s_l (c_b - m_b) / s_b (one quantile), FS < 1 <=> coef c_b + per_kpa c_l <
+    # threshold, a normal variable whose sd adds the two terms (independent draws would add
+    # them in quadrature and give another probability); exact value from scipy.stats.norm.
+    lab, slope, aspect = _grid(6, 3)
+    r_a, d_a, coef = _slab_terms(6, 3, 0.8, 0.0)
+    r_b, _, _ = _slab_terms(6, 3, 0.8, 1.0)
+    per_kpa = r_b - r_a
+    threshold = d_a - r_a
+    mb, sl = 4.0, 0.7
+    sb = per_kpa * sl / coef                           # the two terms equally uncertain
+    sd = coef * sb + per_kpa * sl
+    ml = (threshold - coef * mb + sd) / per_kpa        # mean resistance one sd above failure
+    assert ml > 8 * sl and mb > 8 * sb                 # truncation at 0 negligible
+    mu = coef * mb + per_kpa * ml
+    exact = stats.norm.cdf((threshold - mu) / (coef * sb + per_kpa * sl))
+    independent = stats.norm.cdf((threshold - mu) / math.hypot(coef * sb, per_kpa * sl))
+    res = _run(lab, slope, aspect, [_unit(root_cohesion_kpa=normal(mb, sb))], normal(ml, sl),
+               4000, wetness=0.8)
+    se = math.sqrt(exact * (1 - exact) / 4000)
+    assert 0.05 < exact < 0.95 and abs(exact - independent) > 8 * se
+    assert abs(res.p_f[0] - exact) < 4 * se

@@ -21,9 +21,12 @@ a mean of n independent cells falls as 1/n) and make large clusters look
 far more certain than the soil data allow. Parameters are independent of
 one another, as in the stability stage. The draws of the encoded table are
 the stability stage's draws with ``correlation="unit"`` for the same seed
-(same counter-based streams: stream u for unit u); the lateral root
-cohesion, which the encoded table has no entry for, comes from its own
-streams n_units + u.
+(same counter-based streams: stream u for unit u). The lateral root
+cohesion, which the encoded table has no entry for, is drawn at the same
+quantile as the basal root cohesion of its unit and sample: basal and
+lateral root cohesion come from the same roots, so a sample with strong
+roots at the base has strong roots on the margins (perfect rank
+correlation; each keeps its own distribution).
 
 Wetness
 -------
@@ -90,11 +93,17 @@ class ClusterProbability(NamedTuple):
 
 @njit_parallel
 def _lateral_draws_kernel(prep, samples, run_key, n_units, out):
-    """out[u, s]: lateral root cohesion of unit u, sample s, from stream n_units + u."""
+    """out[u, s]: lateral root cohesion of unit u, sample s, at the quantile of the basal one.
+
+    The uniform number is the one the basal root cohesion of unit u and
+    sample s is drawn at (stream u, counter s * 7 + root), so the two are
+    perfectly rank-correlated: they come from the same roots.
+    """
     for u in prange(prep.shape[0]):
-        key = _stream_key(run_key, n_units + u)
+        key = _stream_key(run_key, u)
         for s in range(samples):
-            out[u, s] = _quantile_at(prep, u, 0, _uniform01(_counter_key(key, s)))
+            uni = _uniform01(_counter_key(key, s * _N_PAR + _ROOT))
+            out[u, s] = _quantile_at(prep, u, 0, uni)
 
 
 def cluster_parameter_draws(table, lateral_root_cohesion_kpa, *, samples, seed):
@@ -131,8 +140,9 @@ def cluster_parameter_draws(table, lateral_root_cohesion_kpa, *, samples, seed):
     Counter-based generator: the draw of parameter p of unit u in sample s
     is the inverse CDF at a uniform number keyed by (seed, stream u,
     counter s * 7 + p), the same as the stability stage's draws with
-    ``correlation="unit"``; the lateral root cohesion uses stream
-    n_units + u, counter s. Results are reproducible bit for bit and do
+    ``correlation="unit"``; the lateral root cohesion is the inverse CDF of
+    its own distribution at the basal root cohesion's uniform number
+    (stream u, counter s * 7 + 2), so the two are perfectly rank-correlated. Results are reproducible bit for bit and do
     not depend on the number of threads.
 
     Examples
