@@ -388,10 +388,11 @@ def failing_set(forces, *, tile_cells=200, halo_cells=24, max_rounds=4, scale=No
     side = tile_cells + 2 * halo_cells + 2
     if scale is None:
         scale = scale_for(max_box_sum(m, min(rows, 2 * side), min(cols, 2 * side)))
-    limit = SCALE_TARGET / scale
-    # the scale was made from this very sum on a grid smaller than a tile: SCALE_TARGET / scale
-    # gives the sum back to within rounding, so the check allows a few ulps
-    if max_box_sum(m, min(rows, side), min(cols, side)) > limit * (1.0 + 1e-12):
+    # the scale may have been made from the very sum checked against it (a grid or window
+    # smaller than a tile): SCALE_TARGET / scale gives that sum back only to within rounding,
+    # so both checks below allow a few ulps (2**30 leaves room for far more)
+    limit = SCALE_TARGET / scale * (1.0 + 1e-12)
+    if max_box_sum(m, min(rows, side), min(cols, side)) > limit:
         raise InputError(f"scale: {scale} is too large for tiles of {side} cells (int32 overflow)")
     ui, ci = integer_terms(unary, cap, scale)
     lower = np.zeros((rows, cols), dtype=bool)
