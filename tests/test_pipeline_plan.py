@@ -278,3 +278,26 @@ def test_a_failed_background_write_fails_the_run_and_leaves_nothing(case, monkey
         pipeline.run(load_scenario(case))
     out = case.parent / "out"
     assert not out.exists() or sorted(p.name for p in out.iterdir()) == []
+
+
+def test_modular_faces_reach_the_layer_the_manifest_and_the_report(case, capsys):
+    # with no passive resistance (passive_fraction = 0) the head and toe faces fail the
+    # submodularity check: the answer must say it is not proven, in every place a reader looks
+    from slopescreen.vectors import read_layer
+
+    text = case.read_text(encoding="utf-8").replace("size_windows = 0",
+                                                    "size_windows = 0\npassive_fraction = 0.0")
+    case.write_text(text, encoding="utf-8")
+    assert main(["-q", "run", str(case)]) == 0, capsys.readouterr().err
+    out = case.parent / "out"
+    manifest = json.loads((out / "manifest.json").read_text())
+    search = {r["rain"]: r for r in manifest["cluster_search"]}
+    assert set(search) == {"wet", "storm"}
+    assert any(r["modular_faces"] > 0 for r in search.values())
+    _geoms, columns, _meta = read_layer(out / "clusters.gpkg", layer="clusters")
+    touching = np.asarray(columns["modular_faces"])
+    proven = np.asarray(columns["proven"]).astype(bool)
+    assert (touching > 0).any() and not proven[touching > 0].any()
+    report = (out / "report.html").read_text(encoding="utf-8")
+    assert "submodularity check" in report
+    assert sum(r["not_proven"] for r in search.values()) >= 1

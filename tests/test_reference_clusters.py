@@ -376,3 +376,31 @@ def test_regression_merged_window_not_left_undecided_by_one_ulp():
         tiled = failing_set(f, tile_cells=2, halo_cells=0, scale=whole.scale)
         assert not (tiled.upper & ~tiled.lower).any(), trial
         assert np.array_equal(tiled.lower, whole.lower), trial
+
+
+def test_regression_clusters_touching_a_modular_face_are_not_proven():
+    # Once reported proven although the cut had replaced non-submodular faces by their modular
+    # lower bound (with no passive resistance, eta = 0, head/toe faces fail the check of
+    # docs/methods.md, "Multi-cell failure clusters"). Oracle: a plain loop over every face.
+    rng = np.random.default_rng(2)
+    slope = np.full((8, 10), 38.0) + rng.normal(0, 1, (8, 10))
+    kw = dict(dx=5.0, dy=5.0, aspect_deg=np.full((8, 10), 180.0), cohesion_kpa=0.5,
+              root_cohesion_kpa=0.5, lateral_root_cohesion_kpa=1.0, friction_deg=35.0,
+              unit_weight_kn_m3=18.5, bound=False)
+    res = failure_clusters(slope, 1.2, 0.8, passive_fraction=0.0, **kw)
+    f = cluster_forces(slope, kw["aspect_deg"], 1.2, 0.8, dx=5.0, dy=5.0, cohesion_kpa=0.5,
+                       root_cohesion_kpa=0.5, lateral_root_cohesion_kpa=1.0, friction_deg=35.0,
+                       unit_weight_kn_m3=18.5, passive_fraction=0.0)
+    east, south = nonsubmodular_faces(f, 1.0)
+    assert res.modular_faces == int(east.sum() + south.sum()) > 0
+    for i, cid in enumerate(res.table["id"]):
+        inside = res.labels == cid
+        touching = sum(1 for r in range(8) for c in range(9) if east[r, c] and (inside[r, c] or inside[r, c + 1]))
+        touching += sum(1 for r in range(7) for c in range(10) if south[r, c] and (inside[r, c] or inside[r + 1, c]))
+        assert res.table["modular_faces"][i] == touching
+        assert bool(res.table["proven"][i]) == (touching == 0)
+    assert not res.table["proven"].any()
+    # with passive resistance at the toe every face is submodular and the answer is proven
+    res = failure_clusters(slope, 1.2, 0.8, passive_fraction=0.5, **kw)
+    assert res.modular_faces == 0 and (res.table["modular_faces"] == 0).all()
+    assert res.table["proven"].all() and len(res.table["id"]) > 0

@@ -33,7 +33,7 @@ import numpy as np
 from scipy import ndimage
 
 from .. import _validate
-from .forces import _extent, cluster_factor_of_safety, cluster_forces
+from .forces import _extent, cluster_factor_of_safety, cluster_forces, nonsubmodular_faces
 from .inputs import ClusterOptions, ClusterStrength, ClusterUncertainty
 from .probability import cluster_failure_probability
 from .search import FOUR_CONNECTED, _sub, failing_set, fs_bound_map
@@ -44,9 +44,11 @@ __all__ = ["ClusterResult", "TABLE_COLUMNS", "failure_clusters", "cluster_table"
 TABLE_COLUMNS = (
     "id", "fs", "area_m2", "volume_m3", "mean_depth_m", "length_m", "width_m", "n_cells",
     "min_cell_fs", "lower_bound", "proven", "in_area_band", "probability", "probability_se",
+    "modular_faces",
 )
 """Columns of the cluster table, in order (``probability`` and its standard error are NaN
-unless ``uncertainty`` is given to :func:`failure_clusters`)."""
+unless ``uncertainty`` is given to :func:`failure_clusters`; ``modular_faces`` counts the faces
+touching the cluster whose pair term was not submodular, which make ``proven`` False)."""
 
 
 class ClusterResult(NamedTuple):
@@ -71,7 +73,7 @@ class ClusterResult(NamedTuple):
 
 
 def cluster_table(forces, labels, *, bound_map=None, extent_cells=0, min_area_m2=None,
-                  max_area_m2=None, proven=None):
+                  max_area_m2=None, proven=None, modular_faces=None):
     """Table of clusters from a label raster (FS recomputed from the force terms).
 
     Parameters
@@ -90,6 +92,9 @@ def cluster_table(forces, labels, *, bound_map=None, extent_cells=0, min_area_m2
         Area band for the ``in_area_band`` column.
     proven : array_like of bool, optional
         Per cluster: exact component of the global minimiser (default True).
+    modular_faces : array_like of int, optional
+        Per cluster: faces touching it that the cut replaced by their modular
+        lower bound (default 0).
 
     Returns
     -------
@@ -118,9 +123,11 @@ def cluster_table(forces, labels, *, bound_map=None, extent_cells=0, min_area_m2
         for k, v in zip(TABLE_COLUMNS, (
                 i, fs, area, float(depth.sum()) * cell_area, float(depth.mean()), length, width,
                 ncell, float(np.min(sub.cell_fs[comp])), lb,
-                True if proven is None else bool(proven[i - 1]), band, math.nan, math.nan)):
+                True if proven is None else bool(proven[i - 1]), band, math.nan, math.nan,
+                0 if modular_faces is None else int(modular_faces[i - 1]))):
             out[k].append(v)
-    dtypes = {"id": np.int32, "n_cells": np.int32, "proven": bool, "in_area_band": bool}
+    dtypes = {"id": np.int32, "n_cells": np.int32, "proven": bool, "in_area_band": bool,
+              "modular_faces": np.int32}
     return {k: np.asarray(v, dtype=dtypes.get(k, np.float64)) for k, v in out.items()}
 
 
@@ -230,6 +237,10 @@ def failure_clusters(slope_deg, depth_m, wetness, *, dx, dy, aspect_deg, strengt
     relabel = np.zeros(n + 1, dtype=np.int32)
     relabel[keep] = np.arange(1, int(keep.sum()) + 1, dtype=np.int32)
     out_labels = relabel[labels]
+    # a face replaced by its modular lower bound can make the cut report a set that is not the
+    # least minimiser: a cluster it touches (either of its two cells inside) is not proven
+    touching = _modular_face_counts(forces, out_labels, int(keep.sum()))
+    proven = [p and touching[i] == 0 for i, p in enumerate(proven, start=1)]
     windows = None
     if opts.bound:
         bmap, windows, extent = fs_bound_map(forces, window_cells=opts.bound_window_cells,
@@ -239,7 +250,8 @@ def failure_clusters(slope_deg, depth_m, wetness, *, dx, dy, aspect_deg, strengt
         extent = 0
     table = cluster_table(forces, out_labels, bound_map=bmap if opts.bound else None,
                           extent_cells=extent, min_area_m2=opts.min_area_m2,
-                          max_area_m2=opts.max_area_m2, proven=proven)
+                          max_area_m2=opts.max_area_m2, proven=proven,
+                          modular_faces=touching[1:])
     sizes = None
     if opts.size_resolved:
         # windows around the least-stable failing clusters first; a cluster inside a window
@@ -275,3 +287,18 @@ def _add_probability(table, labels, sizes, slope_deg, aspect_deg, wetness, dx, d
                                               slope_deg, aspect_deg, **common)
             sizes.table["probability"][rows] = res.p_f
             sizes.table["probability_se"][rows] = res.standard_error
+
+
+def _modular_face_counts(forces, labels, n):
+    """Per cluster id 0..n: the faces touching it whose pair term of g_1 is not submodular."""
+    east, south = nonsubmodular_faces(forces, 1.0)
+    valid = forces.valid
+    east = east & valid[:, :-1] & valid[:, 1:]
+    south = south & valid[:-1, :] & valid[1:, :]
+    counts = np.zeros(n + 1, dtype=np.int64)
+    for a, b in ((labels[:, :-1][east], labels[:, 1:][east]),
+                 (labels[:-1, :][south], labels[1:, :][south])):
+        counts += np.bincount(a, minlength=n + 1)
+        counts += np.bincount(np.where(b != a, b, 0), minlength=n + 1)  # a face counts once
+    counts[0] = 0
+    return counts

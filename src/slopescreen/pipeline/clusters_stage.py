@@ -15,9 +15,11 @@ from .stability_stage import SoilCells, effective_uncertainty, rain_model
 
 CLUSTER_FIELDS = ("id", "rain", "fs", "failure_probability", "area_m2", "volume_m3",
                   "mean_depth_m", "length_m", "width_m", "n_cells", "min_cell_fs", "lower_bound",
-                  "proven", "in_area_band", "centroid_easting", "centroid_northing")
+                  "proven", "in_area_band", "centroid_easting", "centroid_northing",
+                  "modular_faces")
 """Attributes of the ``clusters`` layer, in order (units in the names; fs is dimensionless;
-the centroid is in the coordinates of the DEM's CRS)."""
+the centroid is in the coordinates of the DEM's CRS; modular_faces counts the faces touching
+the cluster that the cut replaced by their modular lower bound)."""
 
 
 SIZE_FIELDS = ("id", "rain", "band_min_m2", "band_max_m2", "fs", "failure_probability",
@@ -38,7 +40,7 @@ def _row(table, i, fields, polygon) -> dict:
             row[key] = float(centre.x if key == "centroid_easting" else centre.y)
             continue
         value = table[_TABLE_NAMES.get(key, key)][i]
-        if key == "n_cells":
+        if key in ("n_cells", "modular_faces"):
             row[key] = int(value)
         elif key in ("proven", "in_area_band"):
             row[key] = bool(value)
@@ -110,7 +112,9 @@ def clusters_stage(scenario, inputs, cells: SoilCells, slope, stability, earlier
                        bound_extent_cells=result.bound_extent_cells,
                        labels=labels.astype(np.float32), records=tuple(records),
                        polygons=MappingProxyType(polygons), size_records=tuple(size_records),
-                       size_polygons=MappingProxyType(size_polygons))
+                       size_polygons=MappingProxyType(size_polygons),
+                       modular_faces=int(result.modular_faces),
+                       undecided_cells=int(result.undecided_cells))
 
 
 @dataclass(frozen=True)

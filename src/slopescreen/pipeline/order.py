@@ -234,10 +234,11 @@ def run(scenario: Scenario, *, progress=None) -> RunResult:
         results: dict = {}
 
         hashes = inputs_sha256(scenario)
+        records: dict = {}
 
         def manifest_now() -> dict:
             return (manifest_of(scenario, grid, writer.products, timer.timings, started, hashes)
-                    | run_record(not_run))
+                    | run_record(not_run) | {k: list(v) for k, v in records.items()})
 
         def value(need):
             if need == WRITTEN:
@@ -257,6 +258,9 @@ def run(scenario: Scenario, *, progress=None) -> RunResult:
             with timer.stage("write products", show=False):
                 for emit in result.products():
                     writer.write(emit)
+            if hasattr(result, "manifest_record"):
+                key, record = result.manifest_record()
+                records.setdefault(key, []).append(record)
             if last.get(st.key, -1) > i:
                 results[st.key] = result.kept() if hasattr(result, "kept") else result
             del result

@@ -4,7 +4,8 @@ Each stage returns one of these; nothing is written into an object a stage
 was handed. A result lists the products it makes with :meth:`products`
 (``Emit`` values that the runner hands to the writer) and keeps the arrays
 that later stages read (:meth:`kept`, where a result can let go of what
-it has written). Per-cell results hold arrays of the grid's shape.
+it has written); a result may add a record to the manifest
+(:meth:`manifest_record`). Per-cell results hold arrays of the grid's shape.
 """
 
 from __future__ import annotations
@@ -169,6 +170,15 @@ class ClusterCase:
     polygons: MappingProxyType
     size_records: tuple = ()
     size_polygons: MappingProxyType = _empty()
+    modular_faces: int = 0
+    undecided_cells: int = 0
+
+    def manifest_record(self):
+        """The cut's proof status of this case, for ``manifest.json`` (``cluster_search``)."""
+        return "cluster_search", {
+            "rain": self.case.name, "clusters": len(self.records),
+            "not_proven": sum(1 for r in self.records if not r["proven"]),
+            "modular_faces": self.modular_faces, "undecided_cells": self.undecided_cells}
 
     def kept(self):
         """What later stages read: the rows and outlines, not the written rasters."""

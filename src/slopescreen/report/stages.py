@@ -86,6 +86,18 @@ def _cluster_blocks(ctx: ReportContext, entries):
               str(r["n_cells"]), "yes" if r["proven"] else "no",
               "yes" if r["in_area_band"] else "no", _centre(r)] for r in least],
             [False, False, True, True, True, True, True, True, False, False, True]))
+    search = ctx.manifest.get("cluster_search") or []
+    modular = sum(r["modular_faces"] for r in search)
+    undecided = sum(r["undecided_cells"] for r in search)
+    if modular or undecided:
+        blocks.append(note(
+            f"The exact cut could not certify every answer: {modular} margin face(s) failed the "
+            "submodularity check (active thrust above the resistance at a head or toe, where the "
+            "cut charges the face by a modular lower bound) and "
+            f"{undecided} cell(s) stayed undecided between the tiles. Clusters touching either are "
+            f"marked not proven ({sum(r['not_proven'] for r in search)} of "
+            f"{sum(r['clusters'] for r in search)}): a slightly different failing set may exist "
+            "there.", lead="Proof:"))
     bound = [e for e in entries if e["key"] == "cluster_fs_bound"]
     if bound:
         blocks.append(para(
