@@ -304,16 +304,6 @@ def _encoded(block, valid, dtype, nodata):
     return np.where(valid & np.isfinite(data), data, np.float32(nodata)).astype(np.float32)
 
 
-def read_band(path) -> np.ndarray:
-    """Read band 1 of a product as float32 with NaN for nodata (no tags; memory-lean)."""
-    with rasterio.open(path) as src:
-        data = src.read(1, out_dtype=np.float32)
-        nodata = src.nodata
-    if nodata is not None and not np.isnan(nodata):
-        data[data == np.float32(nodata)] = np.nan
-    return data
-
-
 def read_back(path) -> tuple[np.ndarray, dict]:
     """Read band 1 of a product as float with NaN for nodata, and its tags.
 

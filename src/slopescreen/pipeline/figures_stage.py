@@ -21,11 +21,11 @@ def terrain_figures_stage(scenario, inputs, slope, routing) -> FiguresResult:
 
 def recharge_figures_stage(scenario, inputs, recharge) -> FiguresResult:
     """Class areas and percentiles of the critical recharge, the area failing at each steady rate."""
-    from ..report.figures import recharge_figures
+    from ..report.summaries import recharge_distribution
 
     rates = [(r.name, r.steady_mm_per_day) for r in scenario.rain if not r.is_storm]
-    return FiguresResult(recharge_figures(recharge.q_cr_mm_per_day, recharge.stability_class,
-                                          inputs.grid.cell_area_m2, rates))
+    return FiguresResult(recharge_distribution(recharge.q_cr_mm_per_day, recharge.stability_class,
+                                               inputs.grid.cell_area_m2, rates))
 
 
 def case_figures_stage(scenario, inputs, stability, slope, soil, probability=None, *, case):

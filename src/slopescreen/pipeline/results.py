@@ -11,7 +11,6 @@ it has written); a result may add a record to the manifest
 from __future__ import annotations
 
 from dataclasses import dataclass, field
-from pathlib import Path
 from types import MappingProxyType
 from typing import Any
 
@@ -61,8 +60,6 @@ class Written:
 
     products: tuple
     previews: MappingProxyType
-    staging: Path
-    preview_step: int
 
     def entries(self) -> list[dict]:
         """Manifest entries of the products written so far."""

@@ -124,8 +124,7 @@ class _Writer:
         """What has been written so far, for the maps and the report (read only)."""
         from .results import Written
 
-        return Written(products=tuple(self.products), previews=MappingProxyType(dict(self.previews)),
-                       staging=self.staging, preview_step=self.preview_step)
+        return Written(products=tuple(self.products), previews=MappingProxyType(dict(self.previews)))
 
 
 def _libc_trim():

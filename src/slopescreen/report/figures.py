@@ -4,7 +4,8 @@ A run computes them where the arrays are still in memory, as each stage
 finishes (so the report never reads a product back); a report made from a
 manifest and a reader alone computes the same numbers from the products
 (:func:`figures_from_products`). Both go through the same functions:
-:func:`case_figures`, :func:`recharge_figures` and :func:`terrain_figures`.
+:func:`case_figures`, :func:`terrain_figures` and
+:func:`~slopescreen.report.summaries.recharge_distribution`.
 """
 
 from __future__ import annotations
@@ -17,7 +18,7 @@ import numpy as np
 from .quantiles import percentiles
 from .summaries import band_areas, case_facts, recharge_distribution
 
-__all__ = ["CaseFigures", "ReportFigures", "case_figures", "recharge_figures", "terrain_figures",
+__all__ = ["CaseFigures", "ReportFigures", "case_figures", "terrain_figures",
            "figures_from_products", "STORM_FLAG_BITS"]
 
 STORM_FLAG_BITS = (1, 2, 4)
@@ -77,12 +78,6 @@ def case_figures(name, fs, *, cell_area_m2, pf=None, wetness=None, flags=None, s
     return CaseFigures(name, facts, bands, shares)
 
 
-def recharge_figures(q_cr, classes, cell_area_m2, rates=()) -> dict:
-    """Class areas, percentiles and the area failing at each steady rate
-    (:func:`~slopescreen.report.summaries.recharge_distribution`)."""
-    return recharge_distribution(q_cr, classes, cell_area_m2, rates)
-
-
 def terrain_figures(values) -> tuple | None:
     """10th, 50th and 90th percentiles of a terrain product (None without a value).
 
@@ -121,7 +116,7 @@ def figures_from_products(ctx) -> ReportFigures:
     recharge = None
     q_e, c_e = ctx.product("critical_recharge"), ctx.product("critical_recharge_class")
     if q_e is not None and c_e is not None:
-        recharge = recharge_figures(ctx.read(q_e), ctx.read(c_e), ctx.cell_area_m2,
+        recharge = recharge_distribution(ctx.read(q_e), ctx.read(c_e), ctx.cell_area_m2,
                                     steady_rates(ctx.manifest.get("rain") or []))
     terrain = {}
     for key in ("slope", "specific_catchment_area"):
