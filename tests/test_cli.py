@@ -125,6 +125,27 @@ def test_module_entry_point_bad_input(tmp_path):
     assert proc.stderr.count("\n") == 1 and "x.toml" in proc.stderr
 
 
+def test_console_script_flushes_its_output_before_it_ends(tmp_path):
+    # The console script ends the process with os._exit once the run is committed: what it
+    # printed into a pipe (block-buffered) must still arrive, with the exit status, and the
+    # committed products must be complete. The script sits beside this interpreter.
+    from pathlib import Path
+
+    script = Path(sys.executable).with_name("slopescreen")
+    write_tif(tmp_path / "dem.tif", tilted_plane())
+    s = scenario(tmp_path)
+    proc = subprocess.run([str(script), "run", str(s)], capture_output=True, text=True)
+    assert proc.returncode == 0, proc.stderr
+    assert "wrote " in proc.stdout and "manifest.json" in proc.stdout
+    assert proc.stdout.rstrip().endswith("read the cautions in the report.")
+    manifest = json.loads((tmp_path / "out" / "manifest.json").read_text())
+    for p in manifest["products"]:
+        assert (tmp_path / "out" / p["path"]).stat().st_size > 0
+    proc = subprocess.run([str(script), "check", str(tmp_path / "missing.toml")],
+                          capture_output=True, text=True)
+    assert proc.returncode == 2 and proc.stderr.count("\n") == 1
+
+
 def test_flags_after_the_command(tmp_path, capsys):
     write_tif(tmp_path / "dem.tif", tilted_plane())
     s = scenario(tmp_path)

@@ -405,7 +405,7 @@ def test_size_resolved_answers_are_explained_with_their_proof_status():
 def test_compass_sectors_counted_in_place_match_the_floor_formula():
     # Definition of the 45-degree sectors (the first centred on north):
     # floor(((a + 22.5) mod 360) / 45), in float64; checked at every edge and beside it.
-    from slopescreen.report.summaries import _sector_counts
+    from slopescreen.report._count_kernels import case_counts
 
     rng = np.random.default_rng(3)
     a = rng.uniform(0, 360, 50_000).astype(np.float32)
@@ -414,4 +414,50 @@ def test_compass_sectors_counted_in_place_match_the_floor_formula():
     a[16], a[17], a[18] = np.nan, 0.0, np.float32(359.99997)
     fin = a[np.isfinite(a)].astype(np.float64)
     expected = np.bincount(np.floor(((fin + 22.5) % 360.0) / 45.0).astype(np.int64), minlength=8)
-    np.testing.assert_array_equal(_sector_counts(a), expected)
+    # every cell fails (FS 0.5), so the sectors of the failing cells are those of every cell
+    _, _, sectors = case_counts(np.full(a.shape, 0.5, dtype=np.float32), aspect_deg=a)
+    np.testing.assert_array_equal(sectors, expected)
+
+
+def test_one_pass_counts_equal_the_numpy_masks_they_replace():
+    # Oracle: the plain numpy expressions in float64 (each condition its own mask), on float32
+    # products with NaN, values exactly at the thresholds and one float32 ulp on either side.
+    from slopescreen.report._count_kernels import band_counts, case_counts, recharge_counts
+
+    rng = np.random.default_rng(11)
+    n = 20_000
+    fs = rng.uniform(0.3, 2.0, n).astype(np.float32)
+    edges = np.array([1.0, 1.3, 1.5], dtype=np.float32)
+    fs[:9] = np.concatenate([edges, np.nextafter(edges, np.float32(0)),
+                             np.nextafter(edges, np.float32(9))])
+    fs[rng.random(n) < 0.05] = np.nan
+    pf = rng.uniform(0, 1, n).astype(np.float32)
+    pf[:3] = [0.5, np.nextafter(np.float32(0.5), np.float32(1)), np.nan]
+    wet = rng.uniform(0.9, 1.0, n).astype(np.float32)
+    wet[rng.random(n) < 0.02] = np.nan
+    aspect = rng.uniform(0, 360, n).astype(np.float32)
+    unit = rng.integers(-1, 4, n).astype(np.int8)     # -1 and 3 lie outside a 3-row table
+    f64 = fs.astype(np.float64)
+    has, fail = np.isfinite(f64), np.isfinite(f64) & (f64 < 1.0)
+    out, units, sectors = case_counts(fs, pf=pf, wetness=wet, aspect_deg=aspect,
+                                      unit_index=unit, n_units=3)
+    p64 = pf.astype(np.float64)
+    assert out.tolist() == [has.sum(), fail.sum(), np.isfinite(p64).sum(), (p64 > 0.5).sum(),
+                            (fail & (wet.astype(np.float64) >= 0.999)).sum()]
+    assert units.tolist() == [int((fail & (unit == u)).sum()) for u in range(3)]
+    a64 = aspect.astype(np.float64)[fail]
+    assert sectors.tolist() == np.bincount(np.floor(((a64 + 22.5) % 360.0) / 45.0)
+                                           .astype(np.int64), minlength=8).tolist()
+    bands = np.digitize(f64[has], [1.0, 1.3, 1.5], right=False)   # lower bound in the band
+    assert band_counts(fs, [1.0, 1.3, 1.5]).tolist() == np.bincount(bands, minlength=4).tolist()
+    q = rng.uniform(0, 50, n).astype(np.float32)
+    cls = rng.integers(0, 4, n).astype(np.int8)
+    q[cls != 2] = np.nan
+    q[:2] = [np.float32(6.0), np.nextafter(np.float32(6.0), np.float32(0))]
+    cls[:2] = 2
+    classes, below, rated = recharge_counts(q, cls, [6.0, 20.0])
+    q64 = q.astype(np.float64)
+    assert classes.tolist() == [int((cls == c).sum()) for c in range(4)]
+    assert below.tolist() == [int(((cls == 2) & (q64 < r)).sum()) for r in (6.0, 20.0)]
+    assert rated.tolist() == [int(((cls == 2) & np.isfinite(q64)).sum()),
+                              int(np.isfinite(q64).sum())]

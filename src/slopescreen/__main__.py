@@ -1,7 +1,5 @@
 """``python -m slopescreen`` runs the command line."""
 
-import sys
+from .cli import console_main
 
-from .cli import main
-
-sys.exit(main())
+console_main()

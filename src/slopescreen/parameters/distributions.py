@@ -27,7 +27,6 @@ import dataclasses
 import math
 
 import numpy as np
-from scipy import special
 
 from ..errors import InputError
 
@@ -52,6 +51,8 @@ def _num(value, name, what):
 
 def _mass(zl, zh):
     """Standard normal probability of [zl, zh], accurate in either tail."""
+    from scipy import special  # only here: importing scipy.special costs 0.3 s at start-up
+
     if zl > 0.0:
         return float(special.ndtr(-zl) - special.ndtr(-zh))
     return float(special.ndtr(zh) - special.ndtr(zl))

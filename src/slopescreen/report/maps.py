@@ -212,17 +212,32 @@ def map_figure(values, key, *, frame: MapFrame, shade=None, title="", subtitle="
 def png_bytes(fig, *, title="", caution=SHORT) -> bytes:
     """Render a figure to PNG bytes (Agg, the figure's own dpi, no tight crop).
 
-    The PNG carries the caution in its ``Disclaimer`` text chunk (and the
-    title in ``Title``), so the warning travels with the file as with the
+    The figure is opaque (a white face), so the PNG is written as RGB without
+    an alpha channel, at zlib level 3: on the report's maps that is smaller and
+    about twice as fast to encode as RGBA at the default level 6, with the same
+    pixels. The PNG carries the caution in its ``Disclaimer`` text chunk (and
+    the title in ``Title``), so the warning travels with the file as with the
     rasters.
     """
+    from PIL import Image, PngImagePlugin
+
     from .. import __version__
 
-    buf = io.BytesIO()
+    canvas = fig.canvas if isinstance(fig.canvas, FigureCanvasAgg) else FigureCanvasAgg(fig)
+    canvas.draw()
+    rgba = np.asarray(canvas.buffer_rgba())
+    if not (rgba[..., 3] == 255).all():
+        raise ValueError("png_bytes: the figure is not opaque (give it a face colour)")
+    info = PngImagePlugin.PngInfo()
     meta = {"Software": f"slopescreen {__version__}", "Disclaimer": caution}
     if title:
         meta["Title"] = title
-    fig.savefig(buf, format="png", dpi=fig.dpi, facecolor=fig.get_facecolor(), metadata=meta)
+    for key, text in meta.items():
+        info.add_text(key, text)
+    dpi = float(fig.dpi)
+    buf = io.BytesIO()
+    Image.fromarray(np.ascontiguousarray(rgba[..., :3])).save(
+        buf, format="png", compress_level=3, pnginfo=info, dpi=(dpi, dpi))
     return buf.getvalue()
 
 

@@ -13,6 +13,7 @@ from __future__ import annotations
 import numpy as np
 
 from ..products import title as product_title
+from ._count_kernels import band_counts, case_counts, recharge_counts
 from .quantiles import percentiles
 from .styles import at_least
 
@@ -92,14 +93,14 @@ def band_areas(fs, cell_area_m2):
     >>> [(b, a, s) for b, a, s in band_areas([0.5, 1.0, 1.35, 2.0, float("nan")], 10.0)][:2]
     [('below 1.0', 10.0, 0.25), ('1.0 to 1.3', 10.0, 0.25)]
     """
-    from .styles import FS_BANDS, fs_band
+    from .styles import FS_BANDS
 
-    band = fs_band(fs)
-    n = int((band >= 0).sum())
+    counts = band_counts(fs, [upper for upper, _, _ in FS_BANDS[:-1]])
+    n = int(counts.sum())
     labels = ("below 1.0", "1.0 to 1.3", "1.3 to 1.5", "1.5 and above")
     out = []
     for i, label in enumerate(labels[:len(FS_BANDS)]):
-        count = int((band == i).sum())
+        count = int(counts[i])
         out.append((label, count * float(cell_area_m2), count / n if n else 0.0))
     return out
 
@@ -108,28 +109,6 @@ def _floats(values) -> np.ndarray:
     """A float array as it is (float32 stays float32: no copy of a whole product)."""
     v = np.asarray(values)
     return v if np.issubdtype(v.dtype, np.floating) else v.astype(np.float64)
-
-
-def _sector_counts(aspect_deg) -> np.ndarray:
-    """Cells per 45-degree compass sector (the first centred on north) of finite aspects.
-
-    A cell's sector is the number of sector edges 22.5 + 45 k (k = 0..7) at or
-    below its aspect, modulo 8: the same as floor(((a + 22.5) mod 360) / 45),
-    counted without a float64 or int64 copy of the cells.
-    """
-    a = np.asarray(aspect_deg)
-    finite = np.isfinite(a)
-    sector = np.zeros(a.shape, dtype=np.int8)
-    for k in range(8):
-        sector += at_least(a, 22.5 + 45.0 * k)
-    sector[sector == 8] = 0
-    return _small_counts(sector[finite], 8)
-
-
-def _small_counts(values, n) -> np.ndarray:
-    """``numpy.bincount(values, minlength=n)`` for small non-negative codes, without an intp copy."""
-    v = np.asarray(values)
-    return np.array([int(np.count_nonzero(v == i)) for i in range(n)], dtype=np.int64)
 
 
 def case_facts(fs, *, cell_area_m2, pf=None, wetness=None, slope_deg=None, aspect_deg=None,
@@ -169,39 +148,37 @@ def case_facts(fs, *, cell_area_m2, pf=None, wetness=None, slope_deg=None, aspec
     (50.0, 0.5, [('north', 0.5), ('south', 0.5)])
     """
     fs = _floats(fs)
-    has = np.isfinite(fs)
-    fail = has & ~at_least(fs, 1.0)
-    n, k = int(has.sum()), int(fail.sum())
+    labels = list(unit_labels)
+    use_units = unit_index is not None and len(labels) > 0
+    counts, unit_counts, sector_counts = case_counts(
+        fs, pf=pf, wetness=wetness, aspect_deg=aspect_deg,
+        unit_index=unit_index if use_units else None, n_units=len(labels) if use_units else 0)
+    n, k, n_pf, m, saturated = (int(c) for c in counts)
     facts = {"computed_m2": n * cell_area_m2, "fail_m2": k * cell_area_m2,
              "fail_share": k / n if n else 0.0, "pf_m2": None, "pf_share": None, "units": [],
              "slope_p10": None, "slope_p90": None, "aspects": [], "saturated_share": None}
     if pf is not None:
-        pf = _floats(pf)
-        hp = np.isfinite(pf)
-        m = int((hp & (pf > 0.5)).sum())  # 0.5 is exact in float32 and float64
-        facts["pf_m2"] = m * cell_area_m2
-        facts["pf_share"] = m / int(hp.sum()) if hp.any() else 0.0
+        facts["pf_m2"] = m * cell_area_m2  # P_f > 0.5; 0.5 is exact in float32 and float64
+        facts["pf_share"] = m / n_pf if n_pf else 0.0
     if k == 0:
         return facts
-    if unit_index is not None and len(unit_labels):
-        idx = np.asarray(unit_index)[fail]
-        counts = _small_counts(idx, len(unit_labels))
-        order = np.argsort(-counts, kind="stable")
-        facts["units"] = [(unit_labels[i], float(counts[i] / k)) for i in order if counts[i] > 0]
+    if use_units:
+        order = np.argsort(-unit_counts, kind="stable")
+        facts["units"] = [(labels[i], float(unit_counts[i] / k)) for i in order
+                          if unit_counts[i] > 0]
     if slope_deg is not None:
+        fail = np.isfinite(fs) & ~at_least(fs, 1.0)
         p = percentiles(np.asarray(slope_deg)[fail], (10, 90))
         if p is not None:
             facts["slope_p10"], facts["slope_p90"] = p
     if aspect_deg is not None:
-        counts = _sector_counts(np.asarray(aspect_deg)[fail])
-        total = int(counts.sum())
+        total = int(sector_counts.sum())
         if total:
-            order = np.argsort(-counts, kind="stable")
-            facts["aspects"] = [(ASPECT_SECTORS[i], float(counts[i] / total)) for i in order
-                                if counts[i] > 0]
+            order = np.argsort(-sector_counts, kind="stable")
+            facts["aspects"] = [(ASPECT_SECTORS[i], float(sector_counts[i] / total))
+                                for i in order if sector_counts[i] > 0]
     if wetness is not None:
-        w = np.asarray(wetness)[fail]
-        facts["saturated_share"] = float(np.mean(at_least(w, 0.999))) if w.size else None
+        facts["saturated_share"] = float(saturated / k)
     return facts
 
 
@@ -235,18 +212,24 @@ def recharge_distribution(q_cr, classes, cell_area_m2, rates=()):
     """
     q = _floats(q_cr)
     c = np.asarray(classes)
-    n = int((c > 0).sum())
+    if np.issubdtype(c.dtype, np.floating):  # a class band read back with NaN nodata
+        c = np.where(np.isfinite(c), c, 0).astype(np.int8)
+    rates = list(rates)
+    class_counts, rate_counts, (n_rated, n_finite) = recharge_counts(
+        q, c, [rate for _, rate in rates])
+    n = int(class_counts[1:].sum())
     out = {"classes": [], "percentiles": [], "rates": []}
     for code in (1, 2, 3):
-        k = int((c == code).sum())
+        k = int(class_counts[code])
         out["classes"].append((code, k * cell_area_m2, k / n if n else 0.0))
-    has = (c == 2) & np.isfinite(q)
-    if has.any():
+    if n_rated:
         ps = (10, 25, 50, 75, 90)
-        out["percentiles"] = list(zip(ps, percentiles(q[has], ps)))
-    dry = int((c == 1).sum())
-    for name, rate in rates:
-        k = dry + int((has & ~at_least(q, rate)).sum())
+        # where every finite rate is of class 2, the percentiles need no copy of those cells
+        rated = q if n_rated == n_finite else q[(c == 2) & np.isfinite(q)]
+        out["percentiles"] = list(zip(ps, percentiles(rated, ps)))
+    dry = int(class_counts[1])
+    for (name, rate), below in zip(rates, rate_counts):
+        k = dry + int(below)
         out["rates"].append((name, rate, k * cell_area_m2, k / n if n else 0.0))
     return out
 
