@@ -461,3 +461,57 @@ def test_one_pass_counts_equal_the_numpy_masks_they_replace():
     assert below.tolist() == [int(((cls == 2) & (q64 < r)).sum()) for r in (6.0, 20.0)]
     assert rated.tolist() == [int(((cls == 2) & np.isfinite(q64)).sum()),
                               int(np.isfinite(q64).sum())]
+
+
+def test_edge_cells_match_a_scipy_erosion_of_the_data_mask():
+    # Oracle: a cell touches a data edge when the 3 x 3 binary erosion of the mask (outside the
+    # grid counted as no data, border_value=0) removes it (scipy.ndimage.binary_erosion).
+    from scipy import ndimage
+
+    from slopescreen.report._count_kernels import edge_cells
+
+    rng = np.random.default_rng(5)
+    values = rng.uniform(0, 40, (60, 70)).astype(np.float32)
+    values[rng.random(values.shape) < 0.03] = np.nan
+    values[:12, :9] = np.nan                                   # a clipped corner
+    valid = np.isfinite(values)
+    interior = ndimage.binary_erosion(valid, structure=np.ones((3, 3), bool), border_value=0)
+    assert edge_cells(values) == int((valid & ~interior).sum())
+
+
+def test_first_screen_states_the_changes_of_method_that_touch_the_run(run):
+    # The first screen says why the numbers differ from the previous release, with this run's
+    # count of edge cells checked against a scipy erosion of the slope product's data mask.
+    from scipy import ndimage
+
+    from slopescreen.report.changes import PREVIOUS_RELEASE
+
+    _, out, manifest, text = run
+    glance = text[text.index('id="glance"'):text.index('id="cautions"')]
+    assert f"Changes since slopescreen {PREVIOUS_RELEASE}" in glance
+    [slope_e] = [p for p in manifest["products"] if p["key"] == "slope"]
+    valid = np.isfinite(read_back(out / slope_e["path"])[0])
+    interior = ndimage.binary_erosion(valid, structure=np.ones((3, 3), bool), border_value=0)
+    assert f"{int((valid & ~interior).sum()):,} cells" in glance
+    assert "(Slope)" in glance
+    # no dry case and no clusters in this scenario: those changes are not listed
+    assert "0 mm/day is now accepted" not in glance and "not proven" not in glance
+
+
+def test_changes_listed_follow_what_the_run_used():
+    # Which changes apply is read off the manifest: a dry steady case, cluster products,
+    # sampled clusters; the count of modular faces is the manifest's cluster_search sum.
+    from slopescreen.report.changes import changes_for
+
+    base = {"grid": {"valid_cells": 500}, "rain": [{"name": "wet", "steady_mm_per_day": 5.0}]}
+    assert [c.key for c, _ in changes_for(base, edge_cells=0)] == ["edge_slopes"]
+    dry = base | {"rain": [{"name": "dry", "steady_mm_per_day": 0.0}]}
+    assert "dry_case" in [c.key for c, _ in changes_for(dry)]
+    clusters = base | {"products": [{"key": "cluster_labels", "rain": "wet"}],
+                       "cluster_search": [{"rain": "wet", "modular_faces": 3},
+                                          {"rain": "storm", "modular_faces": 1200}],
+                       "uncertainty": {"samples": 40}}
+    found = dict((c.key, t) for c, t in changes_for(clusters, edge_cells=25))
+    assert list(found) == ["edge_slopes", "cluster_proof", "root_correlation"]
+    assert "1,203 such faces" in found["cluster_proof"]
+    assert "25 cells (5.0 % of the cells with data)" in found["edge_slopes"]

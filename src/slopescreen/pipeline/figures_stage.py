@@ -12,11 +12,13 @@ from .results import FiguresResult
 
 
 def terrain_figures_stage(scenario, inputs, slope, routing) -> FiguresResult:
-    """Percentiles of slope and specific catchment area."""
+    """Percentiles of slope and specific catchment area; the cells at a data edge."""
+    from ..report._count_kernels import edge_cells
     from ..report.figures import terrain_figures
 
     return FiguresResult({"slope": terrain_figures(slope.slope_deg),
-                          "specific_catchment_area": terrain_figures(routing.sca_m)})
+                          "specific_catchment_area": terrain_figures(routing.sca_m),
+                          "edge_cells": edge_cells(slope.slope_deg)})
 
 
 def recharge_figures_stage(scenario, inputs, recharge) -> FiguresResult:

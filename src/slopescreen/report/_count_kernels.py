@@ -103,6 +103,52 @@ def _recharge_counts_kernel(q, classes, rates, class_counts, rate_counts, out):
                 rate_counts[j] += 1
 
 
+@njit
+def _edge_cells_kernel(values):
+    """Cells with a value and at least one of their 8 neighbours without (or off the grid)."""
+    rows, cols = values.shape
+    n = 0
+    for r in range(rows):
+        for c in range(cols):
+            if math.isnan(np.float64(values[r, c])):
+                continue
+            if r == 0 or c == 0 or r == rows - 1 or c == cols - 1:
+                n += 1
+                continue
+            edge = False
+            for dr in range(-1, 2):
+                for dc in range(-1, 2):
+                    if math.isnan(np.float64(values[r + dr, c + dc])):
+                        edge = True
+            if edge:
+                n += 1
+    return n
+
+
+def edge_cells(values) -> int:
+    """Cells with a value that touch a data edge: a neighbour of the 3 x 3 window is missing.
+
+    These are the cells whose Horn slope comes from the one-sided plane fit
+    (docs/methods.md, "Slope").
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> v = np.ones((4, 5), dtype=np.float32)
+    >>> edge_cells(v), v.size - 2 * 3           # all but the 2 x 3 interior
+    (14, 14)
+    >>> v[2, 2] = np.nan
+    >>> edge_cells(v)                           # the hole's 5 neighbours join the edge
+    19
+    """
+    v = np.asarray(values)
+    if v.ndim != 2:
+        raise ValueError(f"edge_cells: a 2-D grid is needed, got shape {v.shape}")
+    if not np.issubdtype(v.dtype, np.floating):
+        v = v.astype(np.float64)
+    return int(_edge_cells_kernel(v))
+
+
 def band_counts(values, edges) -> np.ndarray:
     """Finite values per band of ``edges`` (band b: b edges at or below the value), int64.
 

@@ -15,6 +15,7 @@ from types import MappingProxyType
 
 import numpy as np
 
+from ._count_kernels import edge_cells
 from .quantiles import percentiles
 from .summaries import band_areas, case_facts, recharge_distribution
 
@@ -47,6 +48,8 @@ class ReportFigures:
     cases: MappingProxyType = field(default_factory=lambda: MappingProxyType({}))
     recharge: dict | None = None
     terrain: MappingProxyType = field(default_factory=lambda: MappingProxyType({}))
+    """Percentiles of ``slope`` and ``specific_catchment_area``; ``edge_cells``: cells with
+    data that touch a data edge (:func:`slopescreen.report._count_kernels.edge_cells`)."""
 
 
 def case_figures(name, fs, *, cell_area_m2, pf=None, wetness=None, flags=None, slope_deg=None,
@@ -122,5 +125,8 @@ def figures_from_products(ctx) -> ReportFigures:
     for key in ("slope", "specific_catchment_area"):
         e = ctx.product(key)
         if e is not None:
-            terrain[key] = terrain_figures(ctx.read(e))
+            values = ctx.read(e)
+            terrain[key] = terrain_figures(values)
+            if key == "slope":
+                terrain["edge_cells"] = edge_cells(values)
     return ReportFigures(MappingProxyType(cases), recharge, MappingProxyType(terrain))

@@ -90,7 +90,7 @@ def render_report(ctx: ReportContext) -> str:
 
     figures = ctx.figures if ctx.figures is not None else figures_from_products(ctx)
     facts = {name: fig.facts for name, fig in figures.cases.items()}
-    glance = _glance(ctx, facts)
+    glance = _glance(ctx, facts, figures.terrain)
     body = []
     cases = _case_sections(ctx, figures)
     if cases:

@@ -28,12 +28,13 @@ def _rain_cases(ctx):
     return ctx.manifest.get("rain") or []
 
 
-def _glance(ctx, facts_by_case):
+def _glance(ctx, facts_by_case, terrain=None):
     blocks = []
     cases = _rain_cases(ctx)
     if not cases or not any(facts_by_case.values()):
         blocks.append(para("This run computed terrain products only (no [soil] and [[rain]] "
                            "sections), so it says nothing yet about where slopes can fail."))
+        blocks.extend(_changes_blocks(ctx, terrain))
         return Section("glance", "What fails where", blocks)
     for case in cases:
         f = facts_by_case.get(case["name"])
@@ -55,7 +56,23 @@ def _glance(ctx, facts_by_case):
                        "parameter; P_f is the probability that FS < 1 given the stated parameter "
                        "distributions, cell by cell. Shares are of the area where the model was "
                        "computed. The maps below show where."))
+    blocks.extend(_changes_blocks(ctx, terrain))
     return Section("glance", "What fails where", blocks)
+
+
+def _changes_blocks(ctx, terrain):
+    """Why the numbers differ from the previous release: the changes of method that touch this run."""
+    from .changes import PREVIOUS_RELEASE, changes_for
+
+    edge = None if terrain is None else terrain.get("edge_cells")
+    found = changes_for(ctx.manifest, edge_cells=edge)
+    if not found:
+        return []
+    return [para("these changes of method touch this run, so its numbers differ from a run of "
+                 f"slopescreen {PREVIOUS_RELEASE} on the same inputs (in brackets, the section "
+                 "of docs/methods.md that explains each; docs/migration.md lists them all).",
+                 lead=f"Changes since slopescreen {PREVIOUS_RELEASE}:"),
+            bullets([f"{text} ({change.section})" for change, text in found])]
 
 
 def _case_sections(ctx, figures):
