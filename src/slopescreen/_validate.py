@@ -208,6 +208,19 @@ def physical_field(value, key, *, name=None):
     return field(value, name or key, lo, hi, open_low=key in _OPEN_LOW)
 
 
+def depth_measured(value):
+    """True when soil depths were measured normal to the slope (``"slope_normal"``).
+
+    ``"vertical"`` (the default everywhere) gives False; anything else is an
+    :class:`InputError` naming ``depth_measured``.
+    """
+    if value == "vertical":
+        return False
+    if value == "slope_normal":
+        return True
+    raise InputError(f"depth_measured: expected \"vertical\" or \"slope_normal\", got {value!r}")
+
+
 def slope_field(slope_deg):
     """:func:`field` for a slope angle, degrees in [0, 90), named ``slope_deg``."""
     return field(slope_deg, "slope_deg", 0.0, 90.0, open_high=True)

@@ -50,6 +50,11 @@ class SoilFields:
         kernels (:func:`slopescreen.probability.encode_table`).
     varies : bool
         True when any property of any unit is a distribution.
+    depth_measured : str
+        ``"vertical"`` (default) or ``"slope_normal"``: how every unit's
+        ``depth_m`` was measured (``[soil] depth_measured``). The kernels turn
+        a slope-normal thickness H into z = H / cos(theta) per cell; the
+        central values and the table keep the depths as given.
     """
 
     units: tuple
@@ -58,6 +63,7 @@ class SoilFields:
     central: MappingProxyType
     table: np.ndarray
     varies: bool
+    depth_measured: str = "vertical"
 
     def products(self):
         """A run writes no product of the soil fields themselves."""
@@ -157,7 +163,7 @@ class SoilFields:
         return tuple(outs) if len(outs) > 1 else outs[0]
 
 
-def soil_fields(units, codes, valid) -> SoilFields:
+def soil_fields(units, codes, valid, *, depth_measured="vertical") -> SoilFields:
     """Build the soil fields of a run once.
 
     Parameters
@@ -169,6 +175,8 @@ def soil_fields(units, codes, valid) -> SoilFields:
         map (exactly one unit).
     valid : numpy.ndarray of bool
         Valid DEM cells.
+    depth_measured : {"vertical", "slope_normal"}, keyword-only
+        How the units' ``depth_m`` was measured (``[soil] depth_measured``).
 
     Returns
     -------
@@ -179,7 +187,10 @@ def soil_fields(units, codes, valid) -> SoilFields:
     InputError
         No map and more than one unit.
     """
+    from . import _validate
     from .probability import PARAMETER_ORDER, encode_table
+
+    _validate.depth_measured(depth_measured)
 
     units = tuple(units)
     central = {}
@@ -194,12 +205,13 @@ def soil_fields(units, codes, valid) -> SoilFields:
         if len(units) != 1:
             raise InputError("soil: several units need a soil map ([soil] map)")
         return SoilFields(units, None, np.asarray(valid, dtype=bool), MappingProxyType(central),
-                          table, varies)
+                          table, varies, depth_measured)
     sorted_codes = np.array([u.code for u in units], dtype=np.int64)
     pos = np.clip(np.searchsorted(sorted_codes, codes), 0, len(units) - 1)
     ok = valid & (codes >= 0) & (sorted_codes[pos] == codes)
     if len(units) == 1:
-        return SoilFields(units, None, ok, MappingProxyType(central), table, varies)
+        return SoilFields(units, None, ok, MappingProxyType(central), table, varies,
+                          depth_measured)
     dtype = np.int8 if len(units) < 127 else np.int16
     index = np.where(ok, pos, -1).astype(dtype)
-    return SoilFields(units, index, ok, MappingProxyType(central), table, varies)
+    return SoilFields(units, index, ok, MappingProxyType(central), table, varies, depth_measured)

@@ -18,7 +18,7 @@ import math
 import numpy as np
 
 from . import _validate
-from ._kernels.slope_stability import FS_CAP, GAMMA_W, _rad, _steady_fs_point
+from ._kernels.slope_stability import FS_CAP, GAMMA_W, _rad, _steady_fs_point, _vertical_depth
 from ._numba import njit, njit_parallel, prange
 from .errors import InputError
 
@@ -127,17 +127,18 @@ class SoilStrength:
 
 
 @njit_parallel
-def _factor_of_safety_kernel(slope, depth, wet, coh, root, phi, gm, gs, st, out):
+def _factor_of_safety_kernel(slope, depth, wet, coh, root, phi, gm, gs, st, slope_normal, out):
     n = out.size
     tan_phi0 = math.tan(_rad(phi[0]))  # one friction angle for every cell: tan once
     for i in prange(n):
         th = _rad(slope[i * st[0]])
+        cos_t = math.cos(th)
         fs = _steady_fs_point(
             coh[i * st[3]] + root[i * st[4]],
             math.tan(_rad(phi[i])) if st[5] else tan_phi0,
             math.sin(th),
-            math.cos(th),
-            depth[i * st[1]],
+            cos_t,
+            _vertical_depth(depth[i * st[1]], cos_t, slope_normal),
             wet[i * st[2]],
             gm[i * st[6]],
             gs[i * st[7]],
@@ -145,7 +146,8 @@ def _factor_of_safety_kernel(slope, depth, wet, coh, root, phi, gm, gs, st, out)
         out[i] = fs
 
 
-def factor_of_safety(slope_deg, depth_m, wetness, *, strength=None, **strength_fields):
+def factor_of_safety(slope_deg, depth_m, wetness, *, strength=None, depth_measured="vertical",
+                     **strength_fields):
     """Infinite-slope factor of safety with a slope-parallel water table.
 
     Parameters
@@ -158,6 +160,10 @@ def factor_of_safety(slope_deg, depth_m, wetness, *, strength=None, **strength_f
         Saturated fraction W = h_w / z of the column, in [0, 1] (h_w vertical).
     strength : SoilStrength
         c', c_r, phi', gamma_m and the optional gamma_sat (default gamma_m).
+    depth_measured : {"vertical", "slope_normal"}, keyword-only
+        How ``depth_m`` was measured. ``"slope_normal"``: it is the thickness
+        H normal to the slope, and the kernel uses z = H / cos(theta) per
+        cell (docs/methods.md, "Slope-normal soil thickness").
     **strength_fields
         Instead of ``strength``: its fields as loose keywords
         (``cohesion_kpa=..., root_cohesion_kpa=..., friction_deg=...,
@@ -216,6 +222,16 @@ def factor_of_safety(slope_deg, depth_m, wetness, *, strength=None, **strength_f
     ...                       friction_deg=35.0, unit_weight_kn_m3=18.0)
     >>> round(float(fs), 5)
     1.2128
+
+    A thickness H = 1 m measured normal to a 35 degree slope is the vertical
+    depth z = H / cos 35 = 1.22 m:
+
+    >>> clay = SoilStrength(cohesion_kpa=5.0, root_cohesion_kpa=0.0, friction_deg=0.0,
+    ...                     unit_weight_kn_m3=18.0)
+    >>> h = factor_of_safety(35.0, 1.0, 0.0, strength=clay, depth_measured="slope_normal")
+    >>> z = factor_of_safety(35.0, 1.0 / np.cos(np.radians(35.0)), 0.0, strength=clay)
+    >>> bool(np.isclose(h, z, rtol=1e-6))
+    True
     """
     slope = _validate.slope_field(slope_deg)
     depth = _validate.physical_field(depth_m, "depth_m")
@@ -227,7 +243,7 @@ def factor_of_safety(slope_deg, depth_m, wetness, *, strength=None, **strength_f
         [slope, depth, wet, s.cohesion_kpa, s.root_cohesion_kpa, s.friction_deg,
          s.unit_weight_kn_m3, gs])
     out = np.empty(int(np.prod(shape)), dtype=np.float32)
-    _factor_of_safety_kernel(*arrs, st, out)
+    _factor_of_safety_kernel(*arrs, st, _validate.depth_measured(depth_measured), out)
     return out.reshape(shape)
 
 
@@ -260,14 +276,16 @@ def _critical_point(theta_deg, a, depth, cohesion, tan_p, gamma, k_m_per_day):
 
 
 @njit_parallel
-def _critical_recharge_kernel(slope, sca, depth, coh, root, phi, gam, k, st, q_out, cls_out):
+def _critical_recharge_kernel(slope, sca, depth, coh, root, phi, gam, k, st, slope_normal, q_out,
+                              cls_out):
     n = q_out.size
     tan_phi0 = math.tan(_rad(phi[0]))
     for i in prange(n):
+        theta = slope[i * st[0]]
         q, cl = _critical_point(
-            slope[i * st[0]],
+            theta,
             sca[i * st[1]],
-            depth[i * st[2]],
+            _vertical_depth(depth[i * st[2]], math.cos(_rad(theta)), slope_normal),
             coh[i * st[3]] + root[i * st[4]],
             math.tan(_rad(phi[i])) if st[5] else tan_phi0,
             gam[i * st[6]],
@@ -287,6 +305,7 @@ def critical_recharge(
     friction_deg,
     unit_weight_kn_m3,
     conductivity_m_per_day,
+    depth_measured="vertical",
 ):
     """Steady recharge that brings a cell to FS = 1, and its stability class.
 
@@ -306,6 +325,10 @@ def critical_recharge(
         Bulk wet unit weight gamma_s of the whole column, kN/m^3 (0, 30].
     conductivity_m_per_day : array_like
         Saturated hydraulic conductivity K_s, m/day (> 0).
+    depth_measured : {"vertical", "slope_normal"}, keyword-only
+        How ``depth_m`` was measured. ``"slope_normal"``: it is the thickness
+        H normal to the slope, and the kernel uses z = H / cos(theta) per
+        cell (docs/methods.md, "Slope-normal soil thickness").
 
     Returns
     -------
@@ -363,6 +386,6 @@ def critical_recharge(
     n = int(np.prod(shape))
     q = np.empty(n, dtype=np.float32)
     cls = np.empty(n, dtype=np.uint8)
-    _critical_recharge_kernel(*arrs, st, q, cls)
+    _critical_recharge_kernel(*arrs, st, _validate.depth_measured(depth_measured), q, cls)
     return q.reshape(shape), cls.reshape(shape)
 

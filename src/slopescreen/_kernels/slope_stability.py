@@ -27,6 +27,18 @@ def _rad(deg):
 
 
 @njit
+def _vertical_depth(depth, cos_t, slope_normal):
+    """Vertical soil depth z of a unit's soil depth at a cell of slope theta.
+
+    A depth measured normal to the slope (H) is z = H / cos(theta); a vertical
+    one is z itself (docs/methods.md, "Slope-normal soil thickness"). This is
+    the one place the conversion is written; every kernel that reads a unit's
+    depth calls it.
+    """
+    return depth / cos_t if slope_normal else depth
+
+
+@njit
 def _fs_point(cohesion, tan_phi, sin_t, cos_t, column_weight, pore_pressure):
     """Infinite-slope FS from stresses on the slip plane (one point).
 

@@ -243,7 +243,8 @@ def downslope_vectors(slope, aspect_deg):
 
 
 def cluster_forces(slope_deg, aspect_deg, depth_m, wetness, *, dx, dy, strength=None,
-                   passive_fraction=0.5, jaky_full=False, **strength_fields):
+                   passive_fraction=0.5, jaky_full=False, depth_measured="vertical",
+                   **strength_fields):
     """Per-cell basal forces and per-face earth-pressure forces of candidate slides.
 
     Parameters
@@ -260,6 +261,11 @@ def cluster_forces(slope_deg, aspect_deg, depth_m, wetness, *, dx, dy, strength=
         Saturated fraction W = h_w / z in [0, 1].
     dx, dy : float
         Cell width (east-west) and height (north-south), m.
+    depth_measured : {"vertical", "slope_normal"}, keyword-only
+        How ``depth_m`` was measured. ``"slope_normal"``: it is the thickness
+        H normal to the slope, and z = H / cos(theta) per cell is used for the
+        columns and the face heights (docs/methods.md, "Slope-normal soil
+        thickness"); ``depth_m`` of the result is z.
     strength : ClusterStrength
         c' (on the base, the sides and the toe), basal and lateral root
         cohesion, phi' (< 60 degrees), gamma_m and the optional gamma_sat
@@ -343,6 +349,8 @@ def cluster_forces(slope_deg, aspect_deg, depth_m, wetness, *, dx, dy, strength=
     grid = _validate.grid_field
     aspect = grid(aspect_deg, shape, "aspect_deg", 0.0, 360.0)
     depth = grid(depth_m, shape, "depth_m", 0.0, math.inf, open_low=True)
+    if _validate.depth_measured(depth_measured):  # the per-cell depth grid is made here anyway
+        depth = depth / np.cos(np.radians(slope))
     wet = grid(wetness, shape, "wetness", 0.0, 1.0)
     (s,) = _validate.parameter_objects("cluster_forces", strength_fields,
                                        ("strength", ClusterStrength, strength))

@@ -295,6 +295,11 @@ class ClusterUncertainty:
     sca_m : array_like, optional
         Specific catchment area a, m (>= 0), shape (rows, cols); used by a
         steady rain case only.
+    depth_measured : {"vertical", "slope_normal"}
+        How the table's ``depth_m`` was measured (default ``"vertical"``).
+        ``"slope_normal"``: each sampled thickness H becomes the cell's
+        vertical depth z = H / cos(theta) (docs/methods.md, "Slope-normal soil
+        thickness").
 
     Raises
     ------
@@ -335,9 +340,11 @@ class ClusterUncertainty:
     seed: int = 0
     rain: object = None
     sca_m: np.ndarray | None = None
+    depth_measured: str = "vertical"
 
     def __post_init__(self):
         put = self._put
+        _validate.depth_measured(self.depth_measured)
         unit = np.asarray(self.unit_index)
         if unit.ndim != 2 or not np.issubdtype(unit.dtype, np.integer):
             raise InputError(f"unit_index: expected a 2-D integer array, got {unit.dtype} of "

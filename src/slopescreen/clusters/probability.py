@@ -52,7 +52,7 @@ from .. import _validate
 from .._kernels.counter_rng import _counter_key, _mix64, _seed_key, _stream_key, _uniform01
 from .._kernels.inverse_cdf import _quantile_at
 from .._kernels.rain_case import _STEADY, _STORM, _rain_vector
-from .._kernels.slope_stability import FS_CAP, _rad
+from .._kernels.slope_stability import FS_CAP, _rad, _vertical_depth
 from .._kernels.soil_table import (
     _COH,
     _COND,
@@ -174,10 +174,10 @@ _FIXED = -1  # rain kind: the wetness raster is held
 
 @njit
 def _sample_values(out, r, c, s, unit, draws, lateral, slope, sca, wet_fixed, rain_kind, rain,
-                   down):
+                   down, slope_normal):
     """Face inputs of cell (r, c) in sample s (see ``_face_force``)."""
     u = unit[r, c]
-    z = draws[u, _DEPTH, s]
+    z = _vertical_depth(draws[u, _DEPTH, s], math.cos(_rad(slope[r, c])), slope_normal)
     if rain_kind == _STEADY:
         th = _rad(slope[r, c])
         w = _wetness_point(rain[0] * sca[r, c], draws[u, _COND, s], z, math.sin(th),
@@ -203,7 +203,8 @@ def _sample_values(out, r, c, s, unit, draws, lateral, slope, sca, wet_fixed, ra
 
 @njit_parallel
 def _cluster_fs_kernel(ptr, cells_r, cells_c, slope, down, unit, valid, sca, wet_fixed,
-                       rain_kind, rain, draws, lateral, dx, dy, eta, jaky_full, out):
+                       rain_kind, rain, draws, lateral, dx, dy, eta, jaky_full, slope_normal,
+                       out):
     rows, cols = unit.shape
     n_c = ptr.size - 1
     samples = out.shape[1]
@@ -231,7 +232,7 @@ def _cluster_fs_kernel(ptr, cells_r, cells_c, slope, down, unit, valid, sca, wet
                 r = cells_r[t]
                 c = cells_c[t]
                 _sample_values(own, r, c, s, unit, draws, lateral, slope, sca, wet_fixed,
-                               rain_kind, rain, down)
+                               rain_kind, rain, down, slope_normal)
                 d_i, r_i, _ = _basal_forces(slope[r, c], own[0], own[1], own[2], own[3], own[4],
                                             draws[unit[r, c], _ROOT, s], own[6], area)
                 num += r_i
@@ -246,7 +247,7 @@ def _cluster_fs_kernel(ptr, cells_r, cells_c, slope, down, unit, valid, sca, wet
                     has_nb = inside and valid[rr, cc]
                     if has_nb:
                         _sample_values(nb, rr, cc, s, unit, draws, lateral, slope, sca,
-                                       wet_fixed, rain_kind, rain, down)
+                                       wet_fixed, rain_kind, rain, down, slope_normal)
                     length = dy if k % 2 == 0 else dx
                     w, h = _face_force(k, length, own, nb, has_nb, eta, jaky_full)
                     num += w
@@ -437,7 +438,8 @@ def cluster_failure_probability(clusters, slope_deg, aspect_deg, unit_index=None
     down = downslope_vectors(slope, aspect)
     out = np.empty((ids.size, n), dtype=np.float64)
     _cluster_fs_kernel(ptr, rr, cc, slope, down, unit.astype(np.int64), valid, sca, wet,
-                       rain_kind, rain_vec, draws, lateral, dx, dy, eta, bool(jaky_full), out)
+                       rain_kind, rain_vec, draws, lateral, dx, dy, eta, bool(jaky_full),
+                       _validate.depth_measured(unc.depth_measured), out)
     p = (out < 1.0).mean(axis=1) if ids.size else np.zeros(0)
     se = np.sqrt(p * (1.0 - p) / n)
     med = np.median(out, axis=1) if ids.size else np.zeros(0)

@@ -132,7 +132,7 @@ def cluster_table(forces, labels, *, bound_map=None, extent_cells=0, min_area_m2
 
 
 def failure_clusters(slope_deg, depth_m, wetness, *, dx, dy, aspect_deg, strength=None,
-                     options=None, uncertainty=None, **fields):
+                     options=None, uncertainty=None, depth_measured="vertical", **fields):
     """Failing multi-cell clusters of one rain case and the cluster FS bound raster.
 
     Parameters
@@ -221,7 +221,8 @@ def failure_clusters(slope_deg, depth_m, wetness, *, dx, dy, aspect_deg, strengt
     if uncertainty is not None and not isinstance(uncertainty, ClusterUncertainty):
         uncertainty = ClusterUncertainty.from_mapping(uncertainty)
     forces = cluster_forces(slope_deg, aspect_deg, depth_m, wetness, dx=dx, dy=dy,
-                            strength=strength, passive_fraction=opts.passive_fraction)
+                            strength=strength, passive_fraction=opts.passive_fraction,
+                            depth_measured=depth_measured)
     fset = failing_set(forces, tile_cells=opts.tile_cells, halo_cells=opts.halo_cells)
     undecided = fset.upper & ~fset.lower
     labels, n = ndimage.label(fset.lower, structure=FOUR_CONNECTED)

@@ -8,26 +8,28 @@ import math
 import numpy as np
 
 from .. import _validate
-from .._kernels.slope_stability import _rad
+from .._kernels.slope_stability import _rad, _vertical_depth
 from .._kernels.wetness import _wetness_point
 from .._numba import njit_parallel, prange
 from .rain import _INF
 
 
 @njit_parallel
-def _steady_wetness_kernel(sca, slope, q, k, depth, st, out):
+def _steady_wetness_kernel(sca, slope, q, k, depth, st, slope_normal, out):
     for i in prange(out.size):
         th = _rad(slope[i * st[1]])
+        cos_t = math.cos(th)
         out[i] = _wetness_point(
             q[i * st[2]] * 1e-3 * sca[i * st[0]],
             k[i * st[3]],
-            depth[i * st[4]],
+            _vertical_depth(depth[i * st[4]], cos_t, slope_normal),
             math.sin(th),
-            math.cos(th),
+            cos_t,
         )
 
 
-def steady_wetness(sca_m, slope_deg, *, recharge_mm_per_day, conductivity_m_per_day, depth_m):
+def steady_wetness(sca_m, slope_deg, *, recharge_mm_per_day, conductivity_m_per_day, depth_m,
+                   depth_measured="vertical"):
     """Steady-state wetness W = h_w / z of the soil column.
 
     Parameters
@@ -42,6 +44,10 @@ def steady_wetness(sca_m, slope_deg, *, recharge_mm_per_day, conductivity_m_per_
         Saturated hydraulic conductivity K_s, m/day (> 0).
     depth_m : array_like
         Vertical soil depth z, m (> 0).
+    depth_measured : {"vertical", "slope_normal"}, keyword-only
+        How the soil depth was measured. ``"slope_normal"``: it is the
+        thickness H normal to the slope, and the kernel uses z = H / cos(theta)
+        per cell (docs/methods.md, "Slope-normal soil thickness").
 
     All inputs broadcast against each other.
 
@@ -92,5 +98,5 @@ def steady_wetness(sca_m, slope_deg, *, recharge_mm_per_day, conductivity_m_per_
     depth = _validate.physical_field(depth_m, "depth_m")
     shape, arrs, st = _validate.broadcast_flat([sca, slope, q, k, depth])
     out = np.empty(int(np.prod(shape)), dtype=np.float32)
-    _steady_wetness_kernel(*arrs, st, out)
+    _steady_wetness_kernel(*arrs, st, _validate.depth_measured(depth_measured), out)
     return out.reshape(shape)

@@ -10,7 +10,7 @@ from typing import NamedTuple
 import numpy as np
 
 from .. import _validate
-from .._kernels.slope_stability import _rad
+from .._kernels.slope_stability import _rad, _vertical_depth
 from .._kernels.storm import _storm_min_point
 from .._numba import njit_parallel, prange
 from .iverson import _storm_and_strength, _strength_arrays
@@ -19,14 +19,16 @@ from .rain import _INF
 
 @njit_parallel
 def _storm_minimum_kernel(slope, zs, d, intens, k, d0, dur, ratio, coh, root, phi, gam, area,
-                          n_depths, horizon, validity, count_suction, st,
+                          n_depths, horizon, validity, count_suction, st, slope_normal,
                           fs_out, z_out, t_out, cap_out, runoff_out, short_out):
     for i in prange(fs_out.size):
         a = _rad(slope[i * st[0]])
         kk = k[i * st[4]]
         dd0 = d0[i * st[5]]
+        cos_a = math.cos(a)
         fs, z, t, cap = _storm_min_point(
-            zs[i * st[1]], n_depths, math.sin(a), math.cos(a), d[i * st[2]], intens[i * st[3]],
+            _vertical_depth(zs[i * st[1]], cos_a, slope_normal), n_depths, math.sin(a), cos_a,
+            d[i * st[2]], intens[i * st[3]],
             kk, dd0, dur[i * st[6]], ratio[i * st[7]], horizon, coh[i * st[8]] + root[i * st[9]],
             math.tan(_rad(phi[i * st[10]])), gam[i * st[11]], count_suction, True,
         )
@@ -59,7 +61,7 @@ class StormMinimum(NamedTuple):
 
 def storm_minimum(slope_deg, *, soil_depth_m, storm=None, strength=None, horizon_s=None,
                   n_depths=20, contributing_area_m2=None, validity_ratio=0.1,
-                  count_suction=False, **fields):
+                  count_suction=False, depth_measured="vertical", **fields):
     """Least storm factor of safety per cell over depth and time.
 
     Parameters
@@ -87,6 +89,11 @@ def storm_minimum(slope_deg, *, soil_depth_m, storm=None, strength=None, horizon
         (default 0.1; Iverson asks for t << A / D0).
     count_suction : bool
         See :func:`storm_factor_of_safety`.
+    depth_measured : {"vertical", "slope_normal"}, keyword-only
+        How ``soil_depth_m`` was measured. ``"slope_normal"``: it is the
+        thickness H normal to the slope, and the kernel uses z = H / cos(alpha)
+        per cell (docs/methods.md, "Slope-normal soil thickness").
+        ``depth_m`` of the result is vertical either way.
     **fields
         Instead of ``storm`` or ``strength``: the fields of either as loose
         keywords, from which the object is built.
@@ -163,5 +170,5 @@ def storm_minimum(slope_deg, *, soil_depth_m, storm=None, strength=None, horizon
     runoff = np.empty(size, dtype=np.bool_)
     short = np.empty(size, dtype=np.bool_)
     _storm_minimum_kernel(*arrs, n, horizon, ratio, bool(count_suction), st,
-                          fs, z, t, cap, runoff, short)
+                          _validate.depth_measured(depth_measured), fs, z, t, cap, runoff, short)
     return StormMinimum(*(a.reshape(shape) for a in (fs, z, t, cap, runoff, short)))

@@ -65,13 +65,15 @@ def clusters_stage(scenario, inputs, cells: SoilCells, slope, stability, earlier
     soil = cells.soil
     c = scenario.clusters
     grid = inputs.grid
-    depth = stability.storm.depth_m if stability.storm is not None else soil.cell_map("depth_m")
+    # a storm's depth of least FS is vertical already; a unit's depth is as the [soil] gives it
+    storm = stability.storm is not None
+    depth = stability.storm.depth_m if storm else soil.cell_map("depth_m")
     unc = effective_uncertainty(scenario)
     uncertainty = None if unc is None else ClusterUncertainty(
         unit_index=soil.index_array(), table=soil.table,
         lateral_root_cohesion_kpa=[u.lateral_root_cohesion_kpa for u in soil.units],
         samples=unc.samples, seed=unc.seed, rain=rain_model(case),
-        sca_m=None if case.is_storm else cells.sca_m)
+        sca_m=None if case.is_storm else cells.sca_m, depth_measured=soil.depth_measured)
     strength = ClusterStrength(
         cohesion_kpa=soil.cell_map("cohesion_kpa"),
         root_cohesion_kpa=soil.cell_map("root_cohesion_kpa"),
@@ -85,7 +87,8 @@ def clusters_stage(scenario, inputs, cells: SoilCells, slope, stability, earlier
         size_n_least=min(2, c.size_windows))
     result = failure_clusters(cells.slope_deg, depth, stability.wetness, dx=grid.dx_m, dy=grid.dy_m,
                               aspect_deg=slope.aspect_deg, strength=strength, options=options,
-                              uncertainty=uncertainty)
+                              uncertainty=uncertainty,
+                              depth_measured="vertical" if storm else soil.depth_measured)
     table = result.table
     offset = sum(len(e.records) for e in earlier)
     labels = np.where(result.labels > 0, result.labels + offset, 0).astype(np.int32)

@@ -83,7 +83,8 @@ def soil_of(scenario: Scenario, inputs: Inputs):
     from ..soil import soil_fields
 
     units = [scenario.soil.units[c] for c in sorted(scenario.soil.units)]
-    return soil_fields(units, inputs.soil_codes, inputs.grid.valid)
+    return soil_fields(units, inputs.soil_codes, inputs.grid.valid,
+                       depth_measured=scenario.soil.depth_measured)
 
 
 def _code_dtype(codes: np.ndarray):

@@ -27,6 +27,15 @@ CONVENTIONS = {
 """Conventions recorded in the manifest and the report."""
 
 
+def _conventions(scenario: Scenario):
+    """:data:`CONVENTIONS`, with the depth as the run's ``[soil] depth_measured`` reads it."""
+    if scenario.soil is None or scenario.soil.depth_measured == "vertical":
+        return CONVENTIONS
+    return CONVENTIONS | {"depth": "soil thickness H measured normal to the slope "
+                                   "([soil] depth_measured = \"slope_normal\"); every model "
+                                   "uses the vertical depth z = H / cos(slope) of each cell"}
+
+
 def _sha256(path: Path) -> str:
     h = hashlib.sha256()
     with open(path, "rb") as f:
@@ -84,7 +93,7 @@ def manifest(scenario: Scenario, grid: Grid, products, timings, started, inputs=
         "routing": {"method": scenario.routing.method,
                     "mfd_exponent": scenario.routing.mfd_exponent
                     if scenario.routing.method == "mfd" else None},
-        "conventions": CONVENTIONS,
+        "conventions": _conventions(scenario),
         "soil": _soil_record(scenario),
         "rain": [{k: v for k, v in vars(r).items() if v is not None} for r in scenario.rain],
         "uncertainty": _uncertainty_record(scenario),
@@ -120,4 +129,5 @@ def _soil_record(scenario: Scenario):
         u = scenario.soil.units[code]
         units.append({"code": code, "label": u.label}
                      | {k: _parameter_record(getattr(u, k)) for k in SOIL_PROPERTIES})
-    return {"map": None if scenario.soil.map is None else scenario.soil.map.name, "units": units}
+    return {"map": None if scenario.soil.map is None else scenario.soil.map.name,
+            "depth_measured": scenario.soil.depth_measured, "units": units}

@@ -9,6 +9,7 @@ number, and no per-cell parameter raster is made.
 from __future__ import annotations
 
 from dataclasses import dataclass
+from functools import partial
 from types import MappingProxyType
 
 import numpy as np
@@ -68,7 +69,8 @@ def recharge_stage(scenario, inputs, cells: SoilCells) -> RechargeResult:
     from ..stability import critical_recharge
 
     q_cr, klass = cells.soil.by_unit(
-        critical_recharge, {"slope_deg": cells.slope_deg, "sca_m": cells.sca_m},
+        partial(critical_recharge, depth_measured=cells.soil.depth_measured),
+        {"slope_deg": cells.slope_deg, "sca_m": cells.sca_m},
         {"depth_m": "depth_m", "conductivity_m_per_day": "conductivity_m_per_day"} | STRENGTH,
         fill=(np.nan, 0))
     return RechargeResult(q_cr, klass.astype(np.uint8))
@@ -81,20 +83,23 @@ def _fs_tags():
                              "PARAMETERS": "median of each soil-property distribution"})
 
 
-def _steady_cells(slope_deg, sca_m, *, recharge_mm_per_day, depth_m, conductivity_m_per_day,
-                  cohesion_kpa, root_cohesion_kpa, friction_deg, unit_weight_kn_m3):
+def _steady_cells(slope_deg, sca_m, *, recharge_mm_per_day, depth_measured, depth_m,
+                  conductivity_m_per_day, cohesion_kpa, root_cohesion_kpa, friction_deg,
+                  unit_weight_kn_m3):
     from ..hydrology import steady_wetness
     from ..stability import factor_of_safety
 
     wet = steady_wetness(sca_m, slope_deg, recharge_mm_per_day=recharge_mm_per_day,
-                         conductivity_m_per_day=conductivity_m_per_day, depth_m=depth_m)
-    fs = factor_of_safety(slope_deg, depth_m, wet, cohesion_kpa=cohesion_kpa,
+                         conductivity_m_per_day=conductivity_m_per_day, depth_m=depth_m,
+                         depth_measured=depth_measured)
+    fs = factor_of_safety(slope_deg, depth_m, wet, depth_measured=depth_measured,
+                          cohesion_kpa=cohesion_kpa,
                           root_cohesion_kpa=root_cohesion_kpa, friction_deg=friction_deg,
                           unit_weight_kn_m3=unit_weight_kn_m3)
     return wet, fs
 
 
-def _storm_cells(slope_deg, area_m2, *, case, depth_m, conductivity_m_per_day,
+def _storm_cells(slope_deg, area_m2, *, case, depth_measured, depth_m, conductivity_m_per_day,
                  diffusivity_m2_per_s, cohesion_kpa, root_cohesion_kpa, friction_deg,
                  unit_weight_kn_m3):
     from ..hydrology import StormInputs, storm_minimum, storm_pressure_head
@@ -108,7 +113,7 @@ def _storm_cells(slope_deg, area_m2, *, case, depth_m, conductivity_m_per_day,
     strength = SoilStrength(cohesion_kpa=cohesion_kpa, root_cohesion_kpa=root_cohesion_kpa,
                             friction_deg=friction_deg, unit_weight_kn_m3=unit_weight_kn_m3)
     least = storm_minimum(slope_deg, soil_depth_m=depth_m, contributing_area_m2=area_m2,
-                          storm=storm, strength=strength)
+                          storm=storm, strength=strength, depth_measured=depth_measured)
     psi = storm_pressure_head(least.depth_m, least.time_s, slope_deg=slope_deg, storm=storm)
     cos2 = np.cos(np.radians(slope_deg.astype(np.float64))) ** 2
     with np.errstate(invalid="ignore", divide="ignore"):
@@ -127,12 +132,13 @@ def stability_stage(scenario, inputs, cells: SoilCells, *, case) -> StabilityRes
     soil = cells.soil
     if not case.is_storm:
         wet, fs = soil.by_unit(
-            lambda **kw: _steady_cells(recharge_mm_per_day=case.steady_mm_per_day, **kw),
+            lambda **kw: _steady_cells(recharge_mm_per_day=case.steady_mm_per_day,
+                                       depth_measured=soil.depth_measured, **kw),
             {"slope_deg": cells.slope_deg, "sca_m": cells.sca_m},
             {"depth_m": "depth_m", "conductivity_m_per_day": "conductivity_m_per_day"} | STRENGTH)
         return StabilityResult(case, wet, fs, fs_tags=_fs_tags())
     fs, wet, depth, time_h, flags = soil.by_unit(
-        lambda **kw: _storm_cells(case=case, **kw),
+        lambda **kw: _storm_cells(case=case, depth_measured=soil.depth_measured, **kw),
         {"slope_deg": cells.slope_deg, "area_m2": cells.area_m2},
         {"depth_m": "depth_m", "conductivity_m_per_day": "conductivity_m_per_day",
          "diffusivity_m2_per_s": "diffusivity_m2_per_s"} | STRENGTH,
@@ -150,12 +156,14 @@ def probability_stage(scenario, inputs, cells: SoilCells, *, case) -> Probabilit
     index = soil.index_array()
     rain = rain_model(case)
     if unc.method == "fosm":
-        p_f = fosm_reliability(cells.slope_deg, cells.sca_m, index, soil.table, rain).p_f
+        p_f = fosm_reliability(cells.slope_deg, cells.sca_m, index, soil.table, rain,
+                               depth_measured=soil.depth_measured).p_f
         how = "first-order second-moment (FOSM), FS taken as normal"
     else:
         p_f, _se = failure_probability(cells.slope_deg, cells.sca_m, index, soil.table, rain,
                                        samples=unc.samples, seed=unc.seed,
-                                       correlation=unc.correlation)
+                                       correlation=unc.correlation,
+                                       depth_measured=soil.depth_measured)
         how = (f"Monte Carlo, {unc.samples} samples, seed {unc.seed}, "
                f"independent draws per {unc.correlation}")
     return ProbabilityResult(case, p_f.astype(np.float32), how)

@@ -8,8 +8,9 @@ from typing import NamedTuple
 
 import numpy as np
 
+from .. import _validate
 from .._kernels.rain_case import _STEADY
-from .._kernels.slope_stability import _rad
+from .._kernels.slope_stability import _rad, _vertical_depth
 from .._kernels.soil_table import _COH, _COND, _DEPTH, _DIFF, _GAMMA, _N_PAR, _PHI, _ROOT
 from .._numba import njit, njit_parallel, prange
 from ..errors import InputError
@@ -89,17 +90,17 @@ def reliability_index(mean_fs, sd_fs, *, fs_distribution="normal"):
 
 
 @njit
-def _fs_of_vector(x, sin_t, cos_t, inflow, rain_kind, rain, n_depths):
+def _fs_of_vector(x, sin_t, cos_t, inflow, rain_kind, rain, n_depths, slope_normal):
     return _sample_fs(
-        x[_DEPTH], x[_COH] + x[_ROOT], math.tan(_rad(x[_PHI])), x[_GAMMA], x[_COND],
-        x[_DIFF], sin_t, cos_t, inflow, rain_kind, rain[0], rain[1], rain[2], rain[3], rain[4],
-        n_depths,
+        _vertical_depth(x[_DEPTH], cos_t, slope_normal), x[_COH] + x[_ROOT],
+        math.tan(_rad(x[_PHI])), x[_GAMMA], x[_COND], x[_DIFF], sin_t, cos_t, inflow, rain_kind,
+        rain[0], rain[1], rain[2], rain[3], rain[4], n_depths,
     )
 
 
 @njit_parallel
 def _fosm_kernel(slope, sca, unit, means, sds, x_lo, x_hi, rain_kind, rain, n_depths,
-                 mean_out, sd_out):
+                 slope_normal, mean_out, sd_out):
     n_par = means.shape[1]
     for i in prange(slope.size):
         u = unit[i]
@@ -114,7 +115,7 @@ def _fosm_kernel(slope, sca, unit, means, sds, x_lo, x_hi, rain_kind, rain, n_de
         cos_t = math.cos(rad)
         inflow = rain[0] * a
         x = means[u].copy()
-        f0 = _fs_of_vector(x, sin_t, cos_t, inflow, rain_kind, rain, n_depths)
+        f0 = _fs_of_vector(x, sin_t, cos_t, inflow, rain_kind, rain, n_depths, slope_normal)
         var = 0.0
         for p in range(n_par):
             sd = sds[u, p]
@@ -122,9 +123,11 @@ def _fosm_kernel(slope, sca, unit, means, sds, x_lo, x_hi, rain_kind, rain, n_de
                 hi = x_hi[u, p]
                 lo = x_lo[u, p]
                 x[p] = hi
-                f_hi = _fs_of_vector(x, sin_t, cos_t, inflow, rain_kind, rain, n_depths)
+                f_hi = _fs_of_vector(x, sin_t, cos_t, inflow, rain_kind, rain, n_depths,
+                                     slope_normal)
                 x[p] = lo
-                f_lo = _fs_of_vector(x, sin_t, cos_t, inflow, rain_kind, rain, n_depths)
+                f_lo = _fs_of_vector(x, sin_t, cos_t, inflow, rain_kind, rain, n_depths,
+                                     slope_normal)
                 x[p] = means[u, p]
                 d = (f_hi - f_lo) / (hi - lo) * sd
                 var += d * d
@@ -133,13 +136,14 @@ def _fosm_kernel(slope, sca, unit, means, sds, x_lo, x_hi, rain_kind, rain, n_de
 
 
 def fosm_reliability(slope_deg, sca_m, unit_index, table, rain, *, n_depths=1,
-                     fs_distribution="normal"):
+                     fs_distribution="normal", depth_measured="vertical"):
     """First-order second-moment reliability of each cell (Duncan's Taylor-series variant).
 
     Parameters
     ----------
-    slope_deg, sca_m, unit_index, table, rain, n_depths
-        As in :func:`failure_probability`.
+    slope_deg, sca_m, unit_index, table, rain, n_depths, depth_measured
+        As in :func:`failure_probability` (a slope-normal depth is turned into
+        the cell's vertical depth at every evaluation of FS).
     fs_distribution : {"normal", "lognormal"}, keyword-only
         Distribution assumed for FS when turning beta into P_f. Default normal.
 
@@ -220,7 +224,8 @@ def fosm_reliability(slope_deg, sca_m, unit_index, table, rain, *, n_depths=1,
     size = slope.size
     mean_out = np.empty(size, dtype=np.float64)
     sd_out = np.empty(size, dtype=np.float64)
-    _fosm_kernel(slope, sca, unit, means, sds, lo, hi, rain_kind, rain_vec, nd, mean_out, sd_out)
+    _fosm_kernel(slope, sca, unit, means, sds, lo, hi, rain_kind, rain_vec, nd,
+                 _validate.depth_measured(depth_measured), mean_out, sd_out)
     valid = np.isfinite(mean_out)
     beta = np.full(size, np.nan)
     p_f = np.full(size, np.nan)

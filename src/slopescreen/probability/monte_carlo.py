@@ -29,7 +29,7 @@ from .._kernels.counter_rng import _counter_key, _mix64, _seed_key, _stream_key,
 from .._kernels.friction import _tan_friction
 from .._kernels.inverse_cdf import _quantile_block
 from .._kernels.rain_case import _STEADY
-from .._kernels.slope_stability import _rad, _steady_fs_point
+from .._kernels.slope_stability import _rad, _steady_fs_point, _vertical_depth
 from .._kernels.soil_table import _COH, _COND, _DEPTH, _DIFF, _GAMMA, _N_PAR, _PHI, _ROOT
 from .._kernels.unit_draws import _TAN, _UNIT_DOMAIN, _prepare_table, _unit_draws_kernel
 from .._kernels.wetness import _wetness_point
@@ -63,13 +63,13 @@ def _draw_block(prep, u, key, first, nb, ubuf, vals):
 
 @njit
 def _count_failures(src, row, first, nb, sin_t, cos_t, inflow, rain_kind, intensity, duration,
-                    wt_depth, steady_ratio, horizon, n_depths):
+                    wt_depth, steady_ratio, horizon, n_depths, slope_normal):
     """Number of samples src[row, :, first + j] (j < nb) with FS < 1."""
     fails = 0
     if rain_kind == _STEADY:
         for j in range(nb):
             s = first + j
-            depth = src[row, _DEPTH, s]
+            depth = _vertical_depth(src[row, _DEPTH, s], cos_t, slope_normal)
             gamma = src[row, _GAMMA, s]
             w = _wetness_point(inflow, src[row, _COND, s], depth, sin_t, cos_t)
             fs = _steady_fs_point(src[row, _COH, s] + src[row, _ROOT, s], src[row, _TAN, s],
@@ -79,7 +79,8 @@ def _count_failures(src, row, first, nb, sin_t, cos_t, inflow, rain_kind, intens
     for j in range(nb):
         s = first + j
         fs = _sample_fs(
-            src[row, _DEPTH, s], src[row, _COH, s] + src[row, _ROOT, s], src[row, _TAN, s],
+            _vertical_depth(src[row, _DEPTH, s], cos_t, slope_normal),
+            src[row, _COH, s] + src[row, _ROOT, s], src[row, _TAN, s],
             src[row, _GAMMA, s], src[row, _COND, s], src[row, _DIFF, s], sin_t, cos_t, inflow,
             rain_kind, intensity, duration, wt_depth, steady_ratio, horizon, n_depths,
         )
@@ -89,7 +90,7 @@ def _count_failures(src, row, first, nb, sin_t, cos_t, inflow, rain_kind, intens
 
 @njit_parallel
 def _failure_probability_kernel(slope, sca, unit, prep, draws, unit_mode, rain_kind, rain,
-                                samples, n_depths, run_key, p_out, se_out):
+                                samples, n_depths, slope_normal, run_key, p_out, se_out):
     n_par = prep.shape[1]
     n = slope.size
     q = rain[0]
@@ -114,11 +115,13 @@ def _failure_probability_kernel(slope, sca, unit, prep, draws, unit_mode, rain_k
                 nb = min(_BLOCK, samples - first)
                 if unit_mode:
                     fails += _count_failures(draws, u, first, nb, sin_t, cos_t, q * a, rain_kind,
-                                             rain[0], rain[1], rain[2], rain[3], rain[4], n_depths)
+                                             rain[0], rain[1], rain[2], rain[3], rain[4], n_depths,
+                                             slope_normal)
                 else:
                     _draw_block(prep, u, key, first, nb, ubuf, vals)
                     fails += _count_failures(vals, 0, 0, nb, sin_t, cos_t, q * a, rain_kind,
-                                             rain[0], rain[1], rain[2], rain[3], rain[4], n_depths)
+                                             rain[0], rain[1], rain[2], rain[3], rain[4], n_depths,
+                                             slope_normal)
             pf = fails / samples
             p_out[i] = pf
             se_out[i] = math.sqrt(pf * (1.0 - pf) / samples)
@@ -135,6 +138,7 @@ def failure_probability(
     seed=0,
     correlation="cell",
     n_depths=1,
+    depth_measured="vertical",
 ):
     """Monte Carlo probability of failure P(FS < 1) per cell.
 
@@ -164,6 +168,11 @@ def failure_probability(
     n_depths : int, keyword-only
         Storm only: depths tried between the surface and the sampled soil
         depth (1 = the soil base only).
+    depth_measured : {"vertical", "slope_normal"}, keyword-only
+        How the table's ``depth_m`` was measured. ``"slope_normal"``: each
+        sampled thickness H is turned into the vertical depth z = H / cos(theta)
+        of the cell before FS is evaluated (docs/methods.md, "Slope-normal soil
+        thickness").
 
     Returns
     -------
@@ -228,5 +237,6 @@ def failure_probability(
     p_out = np.empty(size, dtype=np.float32)
     se_out = np.empty(size, dtype=np.float32)
     _failure_probability_kernel(slope, sca, unit, prep, draws, correlation == "unit", rain_kind,
-                                rain_vec, n, nd, run_key, p_out, se_out)
+                                rain_vec, n, nd, _validate.depth_measured(depth_measured), run_key,
+                                p_out, se_out)
     return p_out.reshape(shape), se_out.reshape(shape)

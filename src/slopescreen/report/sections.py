@@ -166,14 +166,18 @@ def _inputs_section(ctx):
         ["CRS", str(g.get("crs", ""))],
         ["flow routing", _routing_text(m.get("routing") or {})],
         ["soil map", (m.get("soil") or {}).get("map") or "none (one soil unit covers the DEM)"],
-    ])]
+    ] + ([["soil depth measured", DEPTH_MEASURED_TEXT[_depth_measured(m)]]] if m.get("soil")
+         else []))]
     soil = m.get("soil")
     if soil:
         units = soil["units"]
+        depth_title = {"slope_normal": "Soil thickness normal to the slope H"}.get(
+            _depth_measured(m), PROPERTY_UNITS["depth_m"][0])
         for first in range(0, len(units), 3):
             part = units[first:first + 3]
             header = ["property (unit)"] + [f"unit {u['code']}: {u['label']}" for u in part]
-            rows = [[f"{title} ({unit_})"] + [parameter_text(u.get(key), unit_) for u in part]
+            rows = [[f"{depth_title if key == 'depth_m' else title} ({unit_})"]
+                    + [parameter_text(u.get(key), unit_) for u in part]
                     for key, (title, unit_) in PROPERTY_UNITS.items() if any(key in u for u in part)]
             caption = "Soil units and their parameters" + (
                 f" ({first // 3 + 1} of {(len(units) + 2) // 3})" if len(units) > 3 else "")
@@ -194,6 +198,19 @@ def _inputs_section(ctx):
             ["samples per cell", unc.get("samples")], ["seed", unc.get("seed")],
             ["independent draws per", unc.get("correlation")]]))
     return Section("inputs", "Inputs and parameters", blocks)
+
+
+DEPTH_MEASURED_TEXT = {
+    "vertical": "vertically (z, as in a pit); used as given",
+    "slope_normal": "normal to the slope (H, as by a probe); every model uses the vertical "
+                    "depth z = H / cos θ of each cell",
+}
+"""The report's words for each value of ``[soil] depth_measured``."""
+
+
+def _depth_measured(manifest):
+    """``[soil] depth_measured`` of a manifest (runs recorded before the key: vertical)."""
+    return (manifest.get("soil") or {}).get("depth_measured", "vertical")
 
 
 def _routing_text(r):

@@ -9,6 +9,9 @@ from typing import Any
 from .fields import slugify
 
 
+DEPTH_MEASURED = ("vertical", "slope_normal")
+"""Accepted values of ``[soil] depth_measured``."""
+
 ROUTING_METHODS = ("dinf", "mfd", "d8")
 """Accepted values of ``[routing].method``."""
 
@@ -51,6 +54,10 @@ class Soil:
 
     map: Path | None
     units: dict[int, SoilUnit]
+    depth_measured: str = "vertical"
+    """How the units' ``depth_m`` was measured: ``"vertical"`` (z, as in a pit) or
+    ``"slope_normal"`` (H, normal to the slope, as by a probe); the kernels use
+    z = H / cos(theta) per cell (docs/methods.md, "Slope-normal soil thickness")."""
 
 
 @dataclass(frozen=True)

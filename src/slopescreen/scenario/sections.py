@@ -16,6 +16,7 @@ from .fields import (
     parse_parameter,
 )
 from .model import (
+    DEPTH_MEASURED,
     ROUTING_METHODS,
     Clusters,
     Corridor,
@@ -57,8 +58,10 @@ def _parse_soil_unit(table, ctx: Ctx, code: int) -> SoilUnit:
 
 
 def _parse_soil(table, ctx: Ctx, base: Path):
-    check_keys(table, ctx, {"map", "units"}, required=("units",))
+    check_keys(table, ctx, {"map", "units", "depth_measured"}, required=("units",))
     soil_map = get_path(table, "map", ctx)
+    depth_measured = get_string(table, "depth_measured", ctx, default="vertical",
+                                choices=DEPTH_MEASURED)
     units_table = table["units"]
     uctx = ctx.child("units")
     if not isinstance(units_table, dict) or not units_table:
@@ -77,7 +80,7 @@ def _parse_soil(table, ctx: Ctx, base: Path):
         raise ctx.child("map").fail(
             f"{len(units)} soil units are given but no map says where each lies; "
             "add map = \"soil_units.tif\" or keep exactly one unit")
-    return {"soil": Soil(map=soil_map, units=units)}
+    return {"soil": Soil(map=soil_map, units=units, depth_measured=depth_measured)}
 
 
 def _parse_rain(table, ctx: Ctx, base: Path):
