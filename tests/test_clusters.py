@@ -6,7 +6,7 @@ import pytest
 from slopescreen.clusters import TABLE_COLUMNS, cluster_forces, failure_clusters, fs_bound_map
 from slopescreen.errors import InputError
 
-SOIL = dict(cohesion_kpa=0.5, root_cohesion_kpa=0.5, lateral_root_cohesion_kpa=2.0,
+SOIL = dict(cohesion_kpa=0.5, root_cohesion_kpa=0.5, lateral_root_cohesion_kpa=8.0,
             friction_deg=34.0, unit_weight_kn_m3=18.5)
 
 

@@ -21,11 +21,12 @@ SOIL = dict(cohesion_kpa=0.5, root_cohesion_kpa=0.5, lateral_root_cohesion_kpa=2
             friction_deg=34.0, unit_weight_kn_m3=18.5)
 
 
-def _forces(rows=12, cols=12):
+def _forces(rows=12, cols=12, steep_deg=45.0, **soil):
     slope = np.full((rows, cols), 30.0)
-    slope[3:8, 4:8] = 45.0
+    slope[3:8, 4:8] = steep_deg
     slope[0, 0] = np.nan
-    return cluster_forces(slope, np.full((rows, cols), 180.0), 1.0, 0.6, dx=5.0, dy=5.0, **SOIL)
+    return cluster_forces(slope, np.full((rows, cols), 180.0), 1.0, 0.6, dx=5.0, dy=5.0,
+                          **(SOIL | soil))
 
 
 def test_solver_wrapper_raises_on_infeasible_and_unbounded():
@@ -105,7 +106,8 @@ def test_band_without_any_set_and_bad_inputs():
 
 
 def test_size_resolved_table_and_untouched_inputs():
-    f = _forces()
+    # lateral roots of 8 kPa keep every face submodular on the 40 degree block (phi' 34)
+    f = _forces(steep_deg=40.0, lateral_root_cohesion_kpa=8.0)
     before = [a.copy() for a in (f.driving, f.resisting, f.face_resistance, f.face_thrust)]
     res = size_resolved_clusters(f, candidates=[(0, 12, 0, 12), (2, 10, 2, 10)],
                                  min_area_m2=50.0, max_area_m2=600.0, bands=2, time_limit_s=5.0)

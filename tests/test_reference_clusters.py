@@ -11,6 +11,7 @@ import math
 import numpy as np
 import pytest
 
+from earth_pressure_oracle import inclined_rankine
 from slopescreen.clusters import (
     cluster_factor_of_safety,
     cluster_forces,
@@ -70,7 +71,7 @@ def test_face_forces_handbook():
 def _hand_slab(theta, phi, gamma, gsat, z, m, c_base, c_lat, eta, dx, dy, nr, nc):
     """Block force balance of an nr x nc slab facing south, written out by hand.
 
-    docs/methods.md, "Multi-cell failure clusters", with the level Rankine coefficients,
+    docs/methods.md, "Multi-cell failure clusters", with the inclined Rankine coefficients,
     water table h_w = m z.
     """
     t, p = math.radians(theta), math.radians(phi)
@@ -81,7 +82,8 @@ def _hand_slab(theta, phi, gamma, gsat, z, m, c_base, c_lat, eta, dx, dy, nr, nc
     drive = col * area * math.sin(t)
     basal = (c_base + (col * math.cos(t) ** 2 - u) * math.tan(p)) * area / math.cos(t)
     s = math.sin(p)
-    ka, kp, k0 = (1 - s) / (1 + s), (1 + s) / (1 - s), 1 - s
+    ka, kp = inclined_rankine(theta, phi)
+    k0 = 1 - s
     # integral of the effective vertical stress over the face height
     dry = z - hw
     sv = gamma * dry ** 2 / 2 + gamma * dry * hw + (gsat - GW) * hw ** 2 / 2
@@ -94,17 +96,18 @@ def _hand_slab(theta, phi, gamma, gsat, z, m, c_base, c_lat, eta, dx, dy, nr, nc
     return (basal + toe + head_roots + sides) / (drive + active)
 
 
+@pytest.mark.parametrize("theta", [30.0, 38.0])   # below and beyond phi' = 33
 @pytest.mark.parametrize("m", [0.0, 0.6])
-def test_rectangular_slab_matches_hand_balance(m):
+def test_rectangular_slab_matches_hand_balance(m, theta):
     rows, cols, nr, nc = 12, 10, 5, 4
-    slope = np.full((rows, cols), 38.0)
+    slope = np.full((rows, cols), theta)
     kw = dict(dx=4.0, dy=5.0, cohesion_kpa=0.0, root_cohesion_kpa=1.5,
               lateral_root_cohesion_kpa=6.0, friction_deg=33.0, unit_weight_kn_m3=17.0,
               saturated_unit_weight_kn_m3=20.0, passive_fraction=0.5)
     f = cluster_forces(slope, np.full((rows, cols), 180.0), 1.3, m, **kw)
     mask = np.zeros((rows, cols), bool)
     mask[3:3 + nr, 2:2 + nc] = True
-    expect = _hand_slab(38.0, 33.0, 17.0, 20.0, 1.3, m, 1.5, 6.0, 0.5, 4.0, 5.0, nr, nc)
+    expect = _hand_slab(theta, 33.0, 17.0, 20.0, 1.3, m, 1.5, 6.0, 0.5, 4.0, 5.0, nr, nc)
     assert cluster_factor_of_safety(f, mask) == pytest.approx(expect, rel=1e-12)
 
 
@@ -137,7 +140,9 @@ def _instance(rng, rows, cols, *, realistic=True, phi=None):
         aspect = 180 + 15 * np.sign(c)[None, :] + rng.normal(0, 5, (rows, cols))
         wet = np.clip(0.1 + 0.9 * np.exp(-(c[None, :] ** 2)) + 0 * slope, 0, 1)
         depth = 1.0 + 0.3 * rng.random((rows, cols))
-        kw = dict(cohesion_kpa=0.5, root_cohesion_kpa=0.5, lateral_root_cohesion_kpa=2.0,
+        # lateral roots of 8 kPa keep the head faces submodular on this hollow steeper than
+        # phi' (asserted by n_mod == 0 where exactness is tested)
+        kw = dict(cohesion_kpa=0.5, root_cohesion_kpa=0.5, lateral_root_cohesion_kpa=8.0,
                   friction_deg=phi if phi is not None else 33.0, unit_weight_kn_m3=18.5)
     else:
         slope = rng.uniform(15, 50, (rows, cols))
@@ -146,7 +151,7 @@ def _instance(rng, rows, cols, *, realistic=True, phi=None):
         depth = rng.uniform(0.5, 2.0, (rows, cols))
         kw = dict(cohesion_kpa=rng.uniform(0, 3, (rows, cols)),
                   root_cohesion_kpa=rng.uniform(0, 2, (rows, cols)),
-                  lateral_root_cohesion_kpa=rng.uniform(0, 6, (rows, cols)),
+                  lateral_root_cohesion_kpa=rng.uniform(8, 14, (rows, cols)),
                   friction_deg=phi if phi is not None else rng.uniform(28, 40, (rows, cols)),
                   unit_weight_kn_m3=rng.uniform(16, 20, (rows, cols)))
     return cluster_forces(slope, aspect % 360, depth, wet, dx=5.0, dy=5.0, passive_fraction=0.5,
@@ -400,7 +405,9 @@ def test_regression_clusters_touching_a_modular_face_are_not_proven():
         assert res.table["modular_faces"][i] == touching
         assert bool(res.table["proven"][i]) == (touching == 0)
     assert not res.table["proven"].any()
-    # with passive resistance at the toe every face is submodular and the answer is proven
-    res = failure_clusters(slope, 1.2, 0.8, passive_fraction=0.5, **kw)
+    # with lateral roots strong enough at the head every face is submodular and the answer is
+    # proven (slope beyond phi': no passive resistance at the toe, docs/methods.md)
+    res = failure_clusters(slope, 1.2, 0.8, passive_fraction=0.5,
+                           **(kw | dict(lateral_root_cohesion_kpa=8.0)))
     assert res.modular_faces == 0 and (res.table["modular_faces"] == 0).all()
     assert res.table["proven"].all() and len(res.table["id"]) > 0

@@ -12,6 +12,7 @@ import numpy as np
 import pytest
 from scipy import optimize, stats
 
+from earth_pressure_oracle import inclined_rankine
 from slopescreen.clusters import cluster_factor_of_safety, cluster_forces
 from slopescreen.clusters.probability import cluster_failure_probability, cluster_parameter_draws
 from slopescreen.hydrology import SteadyRain, StormRain, storm_pressure_head
@@ -37,7 +38,8 @@ def _slab_terms(nr, nc, w, c_lat):
     drive = col * area * math.sin(t)
     basal0 = (col * math.cos(t) ** 2 - u) * math.tan(p) * area / math.cos(t)
     s = math.sin(p)
-    ka, kp, k0 = (1 - s) / (1 + s), (1 + s) / (1 - s), 1 - s
+    ka, kp = inclined_rankine(THETA, PHI)
+    k0 = 1 - s
     dry = Z - hw
     sv = GAMMA * dry ** 2 / 2 + GAMMA * dry * hw + (GAMMA - GW) * hw ** 2 / 2
     width, length = nc * DX, nr * DY          # toe and head run east-west, sides north-south
@@ -130,7 +132,7 @@ def test_steady_rain_wetness_from_sampled_conductivity():
     q = 40.0  # mm/day
 
     def fs_of(w):
-        r, d, _ = _slab_terms(5, 4, w, 5.0)
+        r, d, _ = _slab_terms(5, 4, w, 15.0)   # roots hold the dry slab (FS 1.07)
         return r / d - 1.0
 
     assert fs_of(0.0) > 0 > fs_of(1.0)
@@ -140,7 +142,7 @@ def test_steady_rain_wetness_from_sampled_conductivity():
     k_star = q * 1e-3 * 60.0 / (w_star * Z * math.sin(t) * math.cos(t))
     median, sd_log = k_star * 1.3, 0.6
     res = _run(lab, slope, aspect, [_unit(conductivity_m_per_day=lognormal(median, sd_log))],
-               5.0, 4000, rain=SteadyRain(q), sca_m=sca)
+               15.0, 4000, rain=SteadyRain(q), sca_m=sca)
     exact = stats.norm.cdf((math.log(k_star) - math.log(median)) / sd_log)
     assert 0.05 < exact < 0.95
     assert abs(res.p_f[0] - exact) < 4 * math.sqrt(exact * (1 - exact) / 4000)

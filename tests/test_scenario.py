@@ -164,3 +164,10 @@ def test_clusters_defaults_and_limits(folder):
                  "size_time_limit_s = 0\n", "clusters.size_time_limit_s")
     expect_error(folder, BASE + "[clusters]\nmin_area_m2 = 500\nmax_area_m2 = 200\n",
                  "clusters.min_area_m2")
+
+
+def test_clusters_nodata_faces_key(folder):
+    head = BASE + "[clusters]\nmin_area_m2 = 50\nmax_area_m2 = 2000\n"
+    assert load(folder, head).clusters.nodata_faces == "free"
+    assert load(folder, head + 'nodata_faces = "charged"\n').clusters.nodata_faces == "charged"
+    expect_error(folder, head + 'nodata_faces = "open"\n', "clusters.nodata_faces")

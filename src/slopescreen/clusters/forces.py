@@ -23,7 +23,7 @@ from .. import _validate
 from .._kernels.slope_stability import FS_CAP, GAMMA_W
 from ..errors import InputError
 from ._force_kernels import _face_per_length, _forces_kernel
-from .inputs import ClusterStrength
+from .inputs import ClusterStrength, _nodata_faces_free
 
 __all__ = [
     "FACE_DROW",
@@ -104,9 +104,8 @@ def earth_pressure_coefficients(friction_deg):
         K_0 = (1 - sin phi') (1 + 2/3 sin phi') / (1 + sin phi')    (Jaky 1944)
 
     At phi' = 30 degrees: K_a = 1/3, K_p = 3, K_0 = 0.5 (simplified) and
-    0.444 (full). The level-backfill coefficients are used on sloping ground
-    too (a limitation: coefficients for an inclined cohesive backfill, e.g.
-    Mazindrani and Ganjali 1997, differ on steep slopes).
+    0.444 (full). The cluster faces use the inclined-backfill pressures of
+    :func:`face_pressures` instead, which equal these at a level surface.
 
     References
     ----------
@@ -136,7 +135,7 @@ def earth_pressure_coefficients(friction_deg):
 
 def face_pressures(depth_m, wetness, *, cohesion_kpa, lateral_root_cohesion_kpa, friction_deg,
                    unit_weight_kn_m3, saturated_unit_weight_kn_m3=None, passive_fraction=0.5,
-                   jaky_full=False):
+                   jaky_full=False, ground_slope_deg=0.0):
     """Earth-pressure forces per metre of a vertical face through the soil mantle.
 
     Parameters
@@ -159,6 +158,9 @@ def face_pressures(depth_m, wetness, *, cohesion_kpa, lateral_root_cohesion_kpa,
         Share eta in [0, 1] of full Rankine passive resistance counted at the toe.
     jaky_full : bool
         Use Jaky's full 1944 K_0 instead of 1 - sin(phi').
+    ground_slope_deg : float
+        Inclination beta of the ground surface behind and in front of the
+        face, degrees in [0, 90) (default 0: level ground).
 
     Returns
     -------
@@ -174,12 +176,27 @@ def face_pressures(depth_m, wetness, *, cohesion_kpa, lateral_root_cohesion_kpa,
     Notes
     -----
     With sigma'_v(zeta) the effective vertical stress at depth zeta
-    (gamma_m above the water table, gamma_sat - gamma_w below)::
+    (gamma_m above the water table, gamma_sat - gamma_w below), s its value
+    and beta the ground slope, the Rankine pressures on a vertical plane
+    under an inclined cohesive backfill (Mazindrani and Ganjali 1997, with
+    gamma z replaced by s) act parallel to the ground surface::
 
-        P_p  = int_0^z [K_p sigma'_v + 2 c' sqrt K_p] dzeta
-        P_a  = int_0^z max(0, K_a sigma'_v - 2 c' sqrt K_a) dzeta
+        sigma_a,p(s) = cos(beta) { [2 s cos^2 beta + 2 c' sin phi' cos phi' -/+ sqrt(Q)] / cos^2 phi' - s }
+        Q = 4 s^2 cos^2 beta (cos^2 beta - cos^2 phi') + 4 c'^2 cos^2 phi'
+            + 8 c' s cos^2 beta sin phi' cos phi'
+
+        P_p  = int_0^z sigma_p dzeta,   P_a = int_0^z max(0, sigma_a) dzeta
         side = int_0^z [c' + c_r,lat + K_0 sigma'_v tan phi'] dzeta
         head = c_r,lat z
+
+    At beta = 0 they are level Rankine, K_p s + 2 c' sqrt K_p and
+    K_a s - 2 c' sqrt K_a. Where Q < 0 (no Rankine state: beta > phi' at
+    that stress) the conservative rule takes no passive pressure and the
+    full conjugate stress s cos(beta) (K' = 1) as active pressure
+    (docs/methods.md, "Multi-cell failure clusters"). The integrals are
+    8-point Gauss-Legendre on the pieces between the water table, the
+    tension-crack stress 2 c' (1 + sin phi') / cos phi' and the end of the
+    Rankine state, so exact to rounding for c' = 0.
 
     Faces carry effective stresses only: for a water table of one height
     the hydrostatic thrusts on a slide's head and toe are equal and
@@ -194,6 +211,9 @@ def face_pressures(depth_m, wetness, *, cohesion_kpa, lateral_root_cohesion_kpa,
     W.E. (2014). A multidimensional stability model for predicting shallow
     landslide size and shape across landscapes. J. Geophys. Res. Earth
     Surface 119, 2481-2504. doi 10.1002/2014JF003135
+    Mazindrani, Z.H., Ganjali, M.H. (1997). Lateral earth pressure problem
+    of cohesive backfill with inclined surface. J. Geotech. Geoenviron. Eng.
+    123(2), 110-112. doi 10.1061/(ASCE)1090-0241(1997)123:2(110) (from memory).
     Rankine (1857); Jaky (1944): see :func:`earth_pressure_coefficients`.
 
     Examples
@@ -209,18 +229,21 @@ def face_pressures(depth_m, wetness, *, cohesion_kpa, lateral_root_cohesion_kpa,
                            ("lateral_root_cohesion_kpa", lateral_root_cohesion_kpa, 0.0, math.inf),
                            ("friction_deg", friction_deg, 0.0, 60.0),
                            ("unit_weight_kn_m3", unit_weight_kn_m3, 0.0, 30.0),
-                           ("passive_fraction", passive_fraction, 0.0, 1.0)):
+                           ("passive_fraction", passive_fraction, 0.0, 1.0),
+                           ("ground_slope_deg", ground_slope_deg, 0.0, 90.0)):
         vals[key] = float(_validate.field(v, key, lo, hi, allow_nan=False))
     gs = vals["unit_weight_kn_m3"] if saturated_unit_weight_kn_m3 is None else float(
         _validate.field(saturated_unit_weight_kn_m3, "saturated_unit_weight_kn_m3", GAMMA_W,
                         30.0, allow_nan=False))
     if vals["friction_deg"] >= 60.0 or gs < GAMMA_W and vals["wetness"] > 0.0:
         raise InputError("friction_deg must be < 60 and the saturated unit weight >= 9.81 kN/m^3")
+    if vals["ground_slope_deg"] >= 90.0:
+        raise InputError("ground_slope_deg: must be < 90 degrees")
     phi = math.radians(vals["friction_deg"])
     toe, head, side, thrust = _face_per_length(
         vals["depth_m"], vals["wetness"], vals["unit_weight_kn_m3"], gs, vals["cohesion_kpa"],
         vals["lateral_root_cohesion_kpa"], math.tan(phi), math.sin(phi), vals["passive_fraction"],
-        bool(jaky_full))
+        bool(jaky_full), vals["ground_slope_deg"])
     return {"toe": toe, "head": head, "side": side, "active": thrust}
 
 
@@ -244,6 +267,7 @@ def downslope_vectors(slope, aspect_deg):
 
 def cluster_forces(slope_deg, aspect_deg, depth_m, wetness, *, dx, dy, strength=None,
                    passive_fraction=0.5, jaky_full=False, depth_measured="vertical",
+                   nodata_faces="free",
                    **strength_fields):
     """Per-cell basal forces and per-face earth-pressure forces of candidate slides.
 
@@ -274,6 +298,12 @@ def cluster_forces(slope_deg, aspect_deg, depth_m, wetness, *, dx, dy, strength=
         Share eta in [0, 1] of full Rankine passive resistance at the toe (default 0.5).
     jaky_full : bool
         Use Jaky's full K_0 on the sides (default: the simplified 1 - sin phi').
+    nodata_faces : {"free", "charged"}
+        A margin face towards a nodata cell inside the grid is ``"free"``
+        (W = H = 0: nodata there is usually a cut, a bank or water, which
+        neither resists nor pushes; the default) or ``"charged"`` like any
+        margin with the cell's own values (the rule before inclined earth
+        pressures). Faces on the grid edge are always charged.
     **strength_fields
         Instead of ``strength``: its fields as loose keywords
         (``cohesion_kpa=..., lateral_root_cohesion_kpa=...``, and so on),
@@ -305,13 +335,17 @@ def cluster_forces(slope_deg, aspect_deg, depth_m, wetness, *, dx, dy, strength=
         H[k, i] = L max(-c,0)^2 P_a
 
     toe, head, side and P_a per metre from :func:`face_pressures` with the
-    face height equal to the vertical soil depth. Between two valid cells
-    the face takes the mean of their properties and the normalised sum of
-    their downslope vectors, so the face seen from either side has opposite
-    c. A face towards nodata or the grid edge takes the cell's own values:
-    it is charged like any margin, never free. The active thrust on head
-    faces is counted as a driving force (denominator), as in
-    docs/methods.md, "Multi-cell failure clusters". Forces of cells facing
+    face height equal to the vertical soil depth and the ground slope beta
+    equal to the face's slope (inclined-backfill Rankine pressures,
+    Mazindrani and Ganjali 1997, acting parallel to the ground and so along
+    the slip direction: in full into the balance, nothing normal to the
+    base). Between two valid cells the face takes the mean of their
+    properties (slope included) and the normalised sum of their downslope
+    vectors, so the face seen from either side has opposite c. A face on
+    the grid edge takes the cell's own values; a face towards nodata is free
+    (W = H = 0) or, with ``nodata_faces="charged"``, like the edge. The
+    active thrust on head faces is counted as a driving force
+    (denominator), as in docs/methods.md, "Multi-cell failure clusters". Forces of cells facing
     different ways are added as scalars (each along its own downslope
     direction), the approximation that makes the set function FS(S) above
     additive over cells and faces.
@@ -361,6 +395,7 @@ def cluster_forces(slope_deg, aspect_deg, depth_m, wetness, *, dx, dy, strength=
     gs = _validate.on_grid(_validate.saturated_unit_weight(s), shape,
                            "saturated_unit_weight_kn_m3")
     eta = float(_validate.field(passive_fraction, "passive_fraction", 0.0, 1.0, allow_nan=False))
+    free_nodata = _nodata_faces_free(nodata_faces)
     for arr in (depth, wet, coh, root_b, root_l, phi, gm, gs):
         valid &= np.isfinite(arr)
     if not valid.any():
@@ -372,7 +407,7 @@ def cluster_forces(slope_deg, aspect_deg, depth_m, wetness, *, dx, dy, strength=
     face_h = np.empty((4,) + shape)
     cell_fs = np.empty(shape, dtype=np.float32)
     _forces_kernel(slope, aspect, depth, wet, coh, root_b, root_l, phi, gm, gs, valid, dx, dy,
-                   eta, bool(jaky_full), driving, resisting, face_w, face_h, cell_fs, down)
+                   eta, bool(jaky_full), free_nodata, driving, resisting, face_w, face_h, cell_fs, down)
     return ClusterForces(driving, resisting, face_w, face_h, valid, cell_fs,
                          np.where(valid, depth, np.nan), down, dx, dy)
 
@@ -485,18 +520,27 @@ def nonsubmodular_faces(forces, lam=1.0):
     >= 0 (docs/methods.md, "Multi-cell failure clusters"). With the face model of
     :func:`cluster_forces` the sum is
     L [c^2 (toe + head - lam P_a) + 2 (1 - c^2) side], so it fails only where
-    eta P_p + c_r,lat z < lam P_a on a face that runs across the slope.
+    eta P_p + c_r,lat z < lam P_a on a face that runs across the slope: with
+    the inclined-backfill pressures, near and beyond phi' unless lateral
+    roots hold the head.
     Where it fails, the cut uses the modular lower bound W_ij x_i + W_ji x_j
     of that pair (see :mod:`slopescreen.clusters.cut`).
 
     Examples
     --------
     >>> import numpy as np
-    >>> f = cluster_forces(np.full((3, 3), 30.0), np.full((3, 3), 180.0), 1.0, 0.0, dx=5.0,
-    ...     dy=5.0, cohesion_kpa=0.0, root_cohesion_kpa=0.0, lateral_root_cohesion_kpa=0.0,
-    ...     friction_deg=30.0, unit_weight_kn_m3=18.0)
+    >>> kw = dict(dx=5.0, dy=5.0, cohesion_kpa=0.0, root_cohesion_kpa=0.0,
+    ...     lateral_root_cohesion_kpa=0.0, friction_deg=30.0, unit_weight_kn_m3=18.0)
+    >>> f = cluster_forces(np.full((3, 3), 25.0), np.full((3, 3), 180.0), 1.0, 0.0, **kw)
     >>> int(nonsubmodular_faces(f, 1.0)[1].sum())
     0
+
+    At slope = phi' the inclined K_p and K_a are equal, so with eta = 0.5
+    and no roots every face across the slope fails the check:
+
+    >>> f = cluster_forces(np.full((3, 3), 30.0), np.full((3, 3), 180.0), 1.0, 0.0, **kw)
+    >>> int(nonsubmodular_faces(f, 1.0)[1].sum())
+    6
     """
     t = forces.face_resistance - float(lam) * forces.face_thrust
     east = (t[0][:, :-1] + t[2][:, 1:]) < 0.0

@@ -113,6 +113,17 @@ def _bands(value):
     return pairs
 
 
+_NODATA_FACES = ("free", "charged")
+"""Rules for margin faces towards nodata cells (``nodata_faces``)."""
+
+
+def _nodata_faces_free(value):
+    """True for ``nodata_faces="free"``, False for ``"charged"``; InputError otherwise."""
+    if value not in _NODATA_FACES:
+        raise InputError(f"nodata_faces: expected one of {', '.join(_NODATA_FACES)}, got {value!r}")
+    return value == "free"
+
+
 @dataclasses.dataclass(frozen=True, kw_only=True)
 class ClusterOptions:
     """Options of :func:`~slopescreen.clusters.failure_clusters` (the scenario's ``[clusters]``).
@@ -127,6 +138,10 @@ class ClusterOptions:
     passive_fraction : float
         Share eta in [0, 1] of full Rankine passive resistance counted at the
         toe (scenario ``[clusters] passive_fraction``, default 0.5).
+    nodata_faces : {"free", "charged"}
+        Margin faces towards nodata cells: free of any force (default) or
+        charged with the cell's own values (scenario ``[clusters]
+        nodata_faces``; see :func:`~slopescreen.clusters.cluster_forces`).
     tile_cells, halo_cells : int
         Tile core (>= 1) and halo (>= 0) of the tiled cut, cells (see
         :func:`~slopescreen.clusters.failing_set`); default 200 and 24.
@@ -180,6 +195,7 @@ class ClusterOptions:
     min_area_m2: float | None = None
     max_area_m2: float | None = None
     passive_fraction: float = 0.5
+    nodata_faces: str = "free"
     tile_cells: int = 200
     halo_cells: int = 24
     bound: bool = True
@@ -203,6 +219,7 @@ class ClusterOptions:
         put("max_area_m2", hi)
         put("passive_fraction", float(_validate.field(
             self.passive_fraction, "passive_fraction", 0.0, 1.0, allow_nan=False)))
+        _nodata_faces_free(self.nodata_faces)
         for name in ("tile_cells", "halo_cells"):
             v = getattr(self, name)
             try:

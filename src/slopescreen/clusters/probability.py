@@ -71,7 +71,7 @@ from .._numba import njit, njit_parallel, prange
 from ..errors import InputError
 from ._force_kernels import _basal_forces, _face_force
 from .forces import downslope_vectors
-from .inputs import ClusterUncertainty, _encode_lateral
+from .inputs import ClusterUncertainty, _encode_lateral, _nodata_faces_free
 
 __all__ = ["ClusterProbability", "cluster_parameter_draws", "cluster_failure_probability"]
 
@@ -199,19 +199,20 @@ def _sample_values(out, r, c, s, unit, draws, lateral, slope, sca, wet_fixed, ra
     out[6] = draws[u, _PHI, s]
     out[7] = down[0, r, c]
     out[8] = down[1, r, c]
+    out[9] = slope[r, c]
 
 
 @njit_parallel
 def _cluster_fs_kernel(ptr, cells_r, cells_c, slope, down, unit, valid, sca, wet_fixed,
                        rain_kind, rain, draws, lateral, dx, dy, eta, jaky_full, slope_normal,
-                       out):
+                       free_nodata, out):
     rows, cols = unit.shape
     n_c = ptr.size - 1
     samples = out.shape[1]
     area = dx * dy
     for j in prange(n_c):
-        own = np.empty(9)
-        nb = np.empty(9)
+        own = np.empty(10)
+        nb = np.empty(10)
         lo, hi = ptr[j], ptr[j + 1]
         r0 = rows
         c0 = cols
@@ -245,6 +246,8 @@ def _cluster_fs_kernel(ptr, cells_r, cells_c, slope, down, unit, valid, sca, wet
                             and member[rr - r0, cc - c0]):
                         continue  # an inner face: no margin force
                     has_nb = inside and valid[rr, cc]
+                    if inside and not has_nb and free_nodata:
+                        continue  # a free face towards nodata
                     if has_nb:
                         _sample_values(nb, rr, cc, s, unit, draws, lateral, slope, sca,
                                        wet_fixed, rain_kind, rain, down, slope_normal)
@@ -294,7 +297,8 @@ def _cluster_cells(clusters, shape):
 
 def cluster_failure_probability(clusters, slope_deg, aspect_deg, unit_index=None, table=None, *,
                                 dx, dy, uncertainty=None, wetness=None, passive_fraction=0.5,
-                                jaky_full=False, keep_samples=False, **uncertainty_fields):
+                                jaky_full=False, keep_samples=False, nodata_faces="free",
+                                **uncertainty_fields):
     """Probability that each cluster fails, from Monte Carlo samples of the soil parameters.
 
     Parameters
@@ -325,6 +329,10 @@ def cluster_failure_probability(clusters, slope_deg, aspect_deg, unit_index=None
         Jaky's full K_0 on the sides.
     keep_samples : bool
         Also return every FS sample.
+    nodata_faces : {"free", "charged"}
+        Margin faces towards nodata cells: free (no force, the default) or
+        charged with the cell's own values, as in
+        :func:`~slopescreen.clusters.forces.cluster_forces`.
     **uncertainty_fields
         Instead of ``uncertainty``: its fields as loose keywords
         (``lateral_root_cohesion_kpa=..., samples=..., seed=..., rain=...,
@@ -377,7 +385,7 @@ def cluster_failure_probability(clusters, slope_deg, aspect_deg, unit_index=None
     >>> res = cluster_failure_probability(lab, np.full((6, 6), 30.0), np.full((6, 6), 180.0),
     ...     dx=5.0, dy=5.0, uncertainty=unc, wetness=0.3)
     >>> res.ids.tolist(), float(res.p_f[0])
-    ([1], 0.32)
+    ([1], 0.495)
 
     The same call in the loose form:
 
@@ -385,7 +393,7 @@ def cluster_failure_probability(clusters, slope_deg, aspect_deg, unit_index=None
     ...     np.zeros((6, 6), int), t, lateral_root_cohesion_kpa=1.0, dx=5.0, dy=5.0,
     ...     wetness=0.3, samples=200, seed=3)
     >>> float(res.p_f[0])
-    0.32
+    0.495
     """
     slope, _ = _validate.surface(slope_deg, name="slope_deg", min_size=1)
     dx, dy = _validate.cell_size(dx, dy)
@@ -414,6 +422,7 @@ def cluster_failure_probability(clusters, slope_deg, aspect_deg, unit_index=None
     encoded = unc.table
     n, s = unc.samples, unc.seed
     eta = float(_validate.field(passive_fraction, "passive_fraction", 0.0, 1.0, allow_nan=False))
+    free_nodata = _nodata_faces_free(nodata_faces)
     valid = np.isfinite(slope) & (unit >= 0)
     wet = np.zeros((1, 1))
     sca = np.zeros((1, 1))
@@ -439,7 +448,7 @@ def cluster_failure_probability(clusters, slope_deg, aspect_deg, unit_index=None
     out = np.empty((ids.size, n), dtype=np.float64)
     _cluster_fs_kernel(ptr, rr, cc, slope, down, unit.astype(np.int64), valid, sca, wet,
                        rain_kind, rain_vec, draws, lateral, dx, dy, eta, bool(jaky_full),
-                       _validate.depth_measured(unc.depth_measured), out)
+                       _validate.depth_measured(unc.depth_measured), free_nodata, out)
     p = (out < 1.0).mean(axis=1) if ids.size else np.zeros(0)
     se = np.sqrt(p * (1.0 - p) / n)
     med = np.median(out, axis=1) if ids.size else np.zeros(0)

@@ -222,7 +222,7 @@ def failure_clusters(slope_deg, depth_m, wetness, *, dx, dy, aspect_deg, strengt
         uncertainty = ClusterUncertainty.from_mapping(uncertainty)
     forces = cluster_forces(slope_deg, aspect_deg, depth_m, wetness, dx=dx, dy=dy,
                             strength=strength, passive_fraction=opts.passive_fraction,
-                            depth_measured=depth_measured)
+                            depth_measured=depth_measured, nodata_faces=opts.nodata_faces)
     fset = failing_set(forces, tile_cells=opts.tile_cells, halo_cells=opts.halo_cells)
     undecided = fset.upper & ~fset.lower
     labels, n = ndimage.label(fset.lower, structure=FOUR_CONNECTED)
@@ -266,15 +266,16 @@ def failure_clusters(slope_deg, depth_m, wetness, *, dx, dy, aspect_deg, strengt
                                        time_limit_s=opts.size_time_limit_s)
     if uncertainty is not None:
         _add_probability(table, out_labels, sizes, slope_deg, aspect_deg, wetness, dx, dy,
-                         opts.passive_fraction, uncertainty)
+                         opts.passive_fraction, opts.nodata_faces, uncertainty)
     return ClusterResult(out_labels, table, bmap, extent, fset.modular_faces,
                          int(undecided.sum()), int(n - keep[1:].sum()), sizes)
 
 
 def _add_probability(table, labels, sizes, slope_deg, aspect_deg, wetness, dx, dy,
-                     passive_fraction, uncertainty):
+                     passive_fraction, nodata_faces, uncertainty):
     """Fill the probability columns of the cluster table (and of the size-resolved table)."""
-    common = dict(dx=dx, dy=dy, passive_fraction=passive_fraction, uncertainty=uncertainty,
+    common = dict(dx=dx, dy=dy, passive_fraction=passive_fraction, nodata_faces=nodata_faces,
+                  uncertainty=uncertainty,
                   wetness=wetness if uncertainty.rain is None else None)
     if labels.max() > 0:
         res = cluster_failure_probability(labels, slope_deg, aspect_deg, **common)

@@ -82,7 +82,7 @@ def clusters_stage(scenario, inputs, cells: SoilCells, slope, stability, earlier
         unit_weight_kn_m3=soil.cell_map("unit_weight_kn_m3"))
     options = ClusterOptions(
         min_area_m2=c.min_area_m2, max_area_m2=c.max_area_m2, passive_fraction=c.passive_fraction,
-        size_resolved=c.size_windows > 0, size_bands=c.size_bands,
+        nodata_faces=c.nodata_faces, size_resolved=c.size_windows > 0, size_bands=c.size_bands,
         size_time_limit_s=c.size_time_limit_s, size_max_clusters=c.size_windows,
         size_n_least=min(2, c.size_windows))
     result = failure_clusters(cells.slope_deg, depth, stability.wetness, dx=grid.dx_m, dy=grid.dy_m,

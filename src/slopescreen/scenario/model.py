@@ -100,7 +100,9 @@ class Clusters:
 
     ``min_area_m2``/``max_area_m2`` bound the size-resolved search;
     ``passive_fraction`` is the share of full Rankine passive resistance
-    counted at the toe (full passive pressure needs large strains).
+    counted at the toe (full passive pressure needs large strains);
+    ``nodata_faces`` whether margin faces towards nodata are free (default)
+    or charged like any margin.
     ``size_windows`` windows around the least-stable failing clusters are
     searched per rain case (0: no size-resolved search), in ``size_bands``
     geometric area bands, each with ``size_time_limit_s`` for its
@@ -110,6 +112,7 @@ class Clusters:
     min_area_m2: float
     max_area_m2: float
     passive_fraction: float = 0.5
+    nodata_faces: str = "free"
     size_windows: int = 5
     size_bands: int = 1
     size_time_limit_s: float = 10.0

@@ -134,8 +134,8 @@ def _parse_uncertainty(table, ctx: Ctx, base: Path):
 
 
 def _parse_clusters(table, ctx: Ctx, base: Path):
-    check_keys(table, ctx, {"min_area_m2", "max_area_m2", "passive_fraction", "size_windows",
-                            "size_bands", "size_time_limit_s"},
+    check_keys(table, ctx, {"min_area_m2", "max_area_m2", "passive_fraction", "nodata_faces",
+                            "size_windows", "size_bands", "size_time_limit_s"},
                required=("min_area_m2", "max_area_m2"))
     lo = get_number(table, "min_area_m2", ctx, low=0.0, low_open=True)
     hi = get_number(table, "max_area_m2", ctx, low=0.0, low_open=True)
@@ -144,6 +144,8 @@ def _parse_clusters(table, ctx: Ctx, base: Path):
     passive = get_number(table, "passive_fraction", ctx, default=0.5, low=0.0, high=1.0)
     return {"clusters": Clusters(
         min_area_m2=lo, max_area_m2=hi, passive_fraction=passive,
+        nodata_faces=get_string(table, "nodata_faces", ctx, default="free",
+                                choices=("free", "charged")),
         size_windows=get_int(table, "size_windows", ctx, default=5, low=0, high=1000),
         size_bands=get_int(table, "size_bands", ctx, default=1, low=1, high=8),
         size_time_limit_s=get_number(table, "size_time_limit_s", ctx, default=10.0, low=0.0,
