@@ -86,6 +86,20 @@ CHANGES = (
         "were charged by their bound, over every rain case.",
         "Multi-cell failure clusters", _has_clusters),
     MethodChange(
+        "inclined_earth_pressure",
+        "Earth pressures on the margins of a failure cluster now use the inclined-ground "
+        "coefficients of Mazindrani and Ganjali (1997) at the face's slope, acting parallel "
+        "to the ground, instead of the level-ground Rankine values; near the friction angle "
+        "the passive resistance falls sharply, so clusters are larger and less stable, and "
+        "more faces break the exact min-cut form (see the proof note of each case).",
+        "Multi-cell failure clusters", _has_clusters),
+    MethodChange(
+        "free_nodata_faces",
+        "A cluster face toward a nodata cell (usually a cut, a bank or water) is now a free "
+        "face, with no passive resistance and no thrust, unless [clusters] nodata_faces = "
+        "\"charged\" keeps the earlier rule.",
+        "Multi-cell failure clusters", _has_clusters),
+    MethodChange(
         "root_correlation",
         "In the Monte Carlo of clusters, lateral root cohesion is now drawn at the same "
         "quantile as the basal root cohesion of the same soil unit (the same roots), not "
