@@ -164,3 +164,16 @@ def test_clusters_defaults_and_limits(folder):
                  "size_time_limit_s = 0\n", "clusters.size_time_limit_s")
     expect_error(folder, BASE + "[clusters]\nmin_area_m2 = 500\nmax_area_m2 = 200\n",
                  "clusters.min_area_m2")
+
+
+def test_min_failure_depth_default_and_read(folder):
+    # default 0.3 m: common practice (docs/methods.md, "Storm response (Iverson 2000)")
+    assert load(folder, soil()).soil.min_failure_depth_m == 0.3
+    text = soil().replace("[soil.units.1]", "min_failure_depth_m = 0.5\n[soil.units.1]", 1)
+    assert load(folder, text).soil.min_failure_depth_m == 0.5
+
+
+@pytest.mark.parametrize("value, fragment", [("-0.1", ">="), ('"deep"', "expected a number")])
+def test_bad_min_failure_depth_names_the_field(folder, value, fragment):
+    text = soil().replace("[soil.units.1]", f"min_failure_depth_m = {value}\n[soil.units.1]", 1)
+    expect_error(folder, text, "soil.min_failure_depth_m", fragment)

@@ -120,4 +120,5 @@ def _soil_record(scenario: Scenario):
         u = scenario.soil.units[code]
         units.append({"code": code, "label": u.label}
                      | {k: _parameter_record(getattr(u, k)) for k in SOIL_PROPERTIES})
-    return {"map": None if scenario.soil.map is None else scenario.soil.map.name, "units": units}
+    return {"map": None if scenario.soil.map is None else scenario.soil.map.name, "units": units,
+            "min_failure_depth_m": scenario.soil.min_failure_depth_m}

@@ -9,6 +9,7 @@ from typing import NamedTuple
 import numpy as np
 from scipy import special
 
+from .. import _validate
 from .._kernels.rain_case import _STEADY
 from .._kernels.slope_stability import _rad
 from .._kernels.soil_table import _COH, _COND, _DEPTH, _DIFF, _GAMMA, _N_PAR, _PHI, _ROOT
@@ -88,16 +89,16 @@ def reliability_index(mean_fs, sd_fs, *, fs_distribution="normal"):
 
 
 @njit
-def _fs_of_vector(x, sin_t, cos_t, inflow, rain_kind, rain, n_depths):
+def _fs_of_vector(x, sin_t, cos_t, inflow, rain_kind, rain, n_depths, z_min):
     return _sample_fs(
         x[_DEPTH], x[_COH] + x[_ROOT], math.tan(_rad(x[_PHI])), x[_GAMMA], x[_COND],
         x[_DIFF], sin_t, cos_t, inflow, rain_kind, rain[0], rain[1], rain[2], rain[3], rain[4],
-        n_depths,
+        n_depths, z_min,
     )
 
 
 @njit_parallel
-def _fosm_kernel(slope, sca, unit, means, sds, x_lo, x_hi, rain_kind, rain, n_depths,
+def _fosm_kernel(slope, sca, unit, means, sds, x_lo, x_hi, rain_kind, rain, n_depths, z_min,
                  mean_out, sd_out):
     n_par = means.shape[1]
     for i in prange(slope.size):
@@ -113,7 +114,7 @@ def _fosm_kernel(slope, sca, unit, means, sds, x_lo, x_hi, rain_kind, rain, n_de
         cos_t = math.cos(rad)
         inflow = rain[0] * a
         x = means[u].copy()
-        f0 = _fs_of_vector(x, sin_t, cos_t, inflow, rain_kind, rain, n_depths)
+        f0 = _fs_of_vector(x, sin_t, cos_t, inflow, rain_kind, rain, n_depths, z_min)
         var = 0.0
         for p in range(n_par):
             sd = sds[u, p]
@@ -121,9 +122,9 @@ def _fosm_kernel(slope, sca, unit, means, sds, x_lo, x_hi, rain_kind, rain, n_de
                 hi = x_hi[u, p]
                 lo = x_lo[u, p]
                 x[p] = hi
-                f_hi = _fs_of_vector(x, sin_t, cos_t, inflow, rain_kind, rain, n_depths)
+                f_hi = _fs_of_vector(x, sin_t, cos_t, inflow, rain_kind, rain, n_depths, z_min)
                 x[p] = lo
-                f_lo = _fs_of_vector(x, sin_t, cos_t, inflow, rain_kind, rain, n_depths)
+                f_lo = _fs_of_vector(x, sin_t, cos_t, inflow, rain_kind, rain, n_depths, z_min)
                 x[p] = means[u, p]
                 d = (f_hi - f_lo) / (hi - lo) * sd
                 var += d * d
@@ -132,12 +133,12 @@ def _fosm_kernel(slope, sca, unit, means, sds, x_lo, x_hi, rain_kind, rain, n_de
 
 
 def fosm_reliability(slope_deg, sca_m, unit_index, table, rain, *, n_depths=1,
-                     fs_distribution="normal"):
+                     min_failure_depth_m=0.0, fs_distribution="normal"):
     """First-order second-moment reliability of each cell (Duncan's Taylor-series variant).
 
     Parameters
     ----------
-    slope_deg, sca_m, unit_index, table, rain, n_depths
+    slope_deg, sca_m, unit_index, table, rain, n_depths, min_failure_depth_m
         As in :func:`failure_probability`.
     fs_distribution : {"normal", "lognormal"}, keyword-only
         Distribution assumed for FS when turning beta into P_f. Default normal.
@@ -198,6 +199,7 @@ def fosm_reliability(slope_deg, sca_m, unit_index, table, rain, *, n_depths=1,
         raise InputError(
             f"fs_distribution: expected 'normal' or 'lognormal', got {fs_distribution!r}"
         )
+    z_min = _validate.nonnegative(min_failure_depth_m, "min_failure_depth_m")
     shape, slope, sca, unit, encoded, params, rain_kind, rain_vec, nd = _grid_inputs(
         slope_deg, sca_m, unit_index, table, rain, n_depths
     )
@@ -219,7 +221,8 @@ def fosm_reliability(slope_deg, sca_m, unit_index, table, rain, *, n_depths=1,
     size = slope.size
     mean_out = np.empty(size, dtype=np.float64)
     sd_out = np.empty(size, dtype=np.float64)
-    _fosm_kernel(slope, sca, unit, means, sds, lo, hi, rain_kind, rain_vec, nd, mean_out, sd_out)
+    _fosm_kernel(slope, sca, unit, means, sds, lo, hi, rain_kind, rain_vec, nd, z_min,
+                 mean_out, sd_out)
     valid = np.isfinite(mean_out)
     beta = np.full(size, np.nan)
     p_f = np.full(size, np.nan)

@@ -16,6 +16,7 @@ from .fields import (
     parse_parameter,
 )
 from .model import (
+    MIN_FAILURE_DEPTH_M,
     ROUTING_METHODS,
     Clusters,
     Corridor,
@@ -57,7 +58,9 @@ def _parse_soil_unit(table, ctx: Ctx, code: int) -> SoilUnit:
 
 
 def _parse_soil(table, ctx: Ctx, base: Path):
-    check_keys(table, ctx, {"map", "units"}, required=("units",))
+    check_keys(table, ctx, {"map", "units", "min_failure_depth_m"}, required=("units",))
+    min_depth = get_number(table, "min_failure_depth_m", ctx, default=MIN_FAILURE_DEPTH_M,
+                           low=0.0, high=20.0)
     soil_map = get_path(table, "map", ctx)
     units_table = table["units"]
     uctx = ctx.child("units")
@@ -77,7 +80,7 @@ def _parse_soil(table, ctx: Ctx, base: Path):
         raise ctx.child("map").fail(
             f"{len(units)} soil units are given but no map says where each lies; "
             "add map = \"soil_units.tif\" or keep exactly one unit")
-    return {"soil": Soil(map=soil_map, units=units)}
+    return {"soil": Soil(map=soil_map, units=units, min_failure_depth_m=min_depth)}
 
 
 def _parse_rain(table, ctx: Ctx, base: Path):
