@@ -150,6 +150,14 @@ def main():
           f"{storm_slope.size:.3g} cells x {args.samples} samples")
     print(f"  {t:7.2f} s  {storm_slope.size * args.samples / t / 1e6:8.2f} M samples x cells/s  "
           f"mean P_f {np.nanmean(ps):.4f}")
+    # the pipeline's depth rule: 20 depths from 0.3 m to the base (docs/methods.md)
+    (ps, _), t = timed(failure_probability, storm_slope, None, storm_units, table,
+                       StormRain(15.0, 8.0, 1.2), samples=args.samples, seed=7,
+                       n_depths=20, min_failure_depth_m=0.3)
+    print(f"\nMonte Carlo, storm (least FS over time and 20 depths from 0.3 m to the base), "
+          f"{storm_slope.size:.3g} cells x {args.samples} samples")
+    print(f"  {t:7.2f} s  {storm_slope.size * args.samples / t / 1e6:8.2f} M samples x cells/s  "
+          f"mean P_f {np.nanmean(ps):.4f}")
 
     rss = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024
     print(f"\npeak RSS {rss:.0f} MB")

@@ -496,6 +496,7 @@ def test_first_screen_states_the_changes_of_method_that_touch_the_run(run):
     assert "(Slope)" in glance
     # no dry case and no clusters in this scenario: those changes are not listed
     assert "0 mm/day is now accepted" not in glance and "not proven" not in glance
+    assert "same failure depths" in glance             # the scenario has a storm case
 
 
 def test_changes_listed_follow_what_the_run_used():

@@ -171,3 +171,16 @@ def test_clusters_nodata_faces_key(folder):
     assert load(folder, head).clusters.nodata_faces == "free"
     assert load(folder, head + 'nodata_faces = "charged"\n').clusters.nodata_faces == "charged"
     expect_error(folder, head + 'nodata_faces = "open"\n', "clusters.nodata_faces")
+
+
+def test_min_failure_depth_default_and_read(folder):
+    # default 0.3 m: common practice (docs/methods.md, "Storm response (Iverson 2000)")
+    assert load(folder, soil()).soil.min_failure_depth_m == 0.3
+    text = soil().replace("[soil.units.1]", "min_failure_depth_m = 0.5\n[soil.units.1]", 1)
+    assert load(folder, text).soil.min_failure_depth_m == 0.5
+
+
+@pytest.mark.parametrize("value, fragment", [("-0.1", ">="), ('"deep"', "expected a number")])
+def test_bad_min_failure_depth_names_the_field(folder, value, fragment):
+    text = soil().replace("[soil.units.1]", f"min_failure_depth_m = {value}\n[soil.units.1]", 1)
+    expect_error(folder, text, "soil.min_failure_depth_m", fragment)

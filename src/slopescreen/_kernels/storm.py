@@ -35,9 +35,22 @@ def _peak_head(z, cos_a, d, intensity, k, d0, duration, steady_ratio, horizon):
 
 
 @njit
-def _storm_min_point(soil_depth, n_depths, sin_a, cos_a, d, intensity, k, d0, duration,
+def _failure_depth(soil_depth, top, j, n):
+    """The j-th of n failure depths between ``top`` (excluded) and the soil base."""
+    if j == n:
+        return soil_depth
+    return top + (soil_depth - top) * j / n
+
+
+@njit
+def _storm_min_point(soil_depth, n_depths, z_min, sin_a, cos_a, d, intensity, k, d0, duration,
                      steady_ratio, horizon, cohesion, tan_phi, gamma, count_suction, want_time):
-    """Least FS over Z in {z k/n, k = 1..n} and t in [0, horizon] for one cell.
+    """Least FS over the failure depths and t in [0, horizon] for one cell.
+
+    Failure depths (docs/methods.md, "Storm response (Iverson 2000)"):
+    Z_k = z_min + (H - z_min) k / n, k = 1..n, from just below the minimum
+    credible failure depth z_min down to the soil base H; where H <= z_min,
+    the base only. With z_min = 0 this is the plain grid H k / n.
 
     Returns (fs, depth, time, cap_bound). For each depth the head rises
     monotonically up to its post-storm peak (:func:`_peak_head`), so the
@@ -55,8 +68,13 @@ def _storm_min_point(soil_depth, n_depths, sin_a, cos_a, d, intensity, k, d0, du
     best_z = math.nan
     best_t = math.nan
     best_cap = False
-    for j in range(1, n_depths + 1):
-        z = soil_depth * j / n_depths
+    top = z_min
+    n = n_depths
+    if soil_depth <= z_min:
+        top = 0.0
+        n = 1
+    for j in range(1, n + 1):
+        z = _failure_depth(soil_depth, top, j, n)
         t, psi, capped = _peak_head(z, cos_a, d, intensity, k, d0, duration, steady_ratio,
                                     horizon)
         fs = _storm_fs_point(z, psi, sin_a, cos_a, cohesion, tan_phi, gamma, count_suction)
@@ -82,3 +100,37 @@ def _storm_min_point(soil_depth, n_depths, sin_a, cos_a, d, intensity, k, d0, du
                 lo = mid
         best_t = hi
     return best_fs, best_z, best_t, best_cap
+
+
+@njit
+def _storm_fails(soil_depth, n_depths, z_min, sin_a, cos_a, d, intensity, k, d0, duration,
+                 steady_ratio, horizon, cohesion, tan_phi, gamma):
+    """True where the least FS of :func:`_storm_min_point` (no suction) is < 1.
+
+    The same decision, faster: a depth is skipped when even the capped head
+    psi = beta Z (the largest the model allows) leaves FS >= 1, since FS
+    falls as psi rises; the search stops at the first depth with FS < 1.
+    Depths are tried from the base up, where failure is likeliest.
+    """
+    if (
+        math.isnan(soil_depth) or math.isnan(sin_a) or math.isnan(d) or math.isnan(intensity)
+        or math.isnan(k) or math.isnan(d0) or math.isnan(duration) or math.isnan(cohesion)
+        or math.isnan(tan_phi) or math.isnan(gamma) or math.isnan(steady_ratio)
+    ):
+        return False
+    beta = cos_a * cos_a - steady_ratio
+    if beta < 0.0:
+        beta = 0.0
+    top = z_min
+    n = n_depths
+    if soil_depth <= z_min:
+        top = 0.0
+        n = 1
+    for j in range(n, 0, -1):
+        z = _failure_depth(soil_depth, top, j, n)
+        if _storm_fs_point(z, beta * z, sin_a, cos_a, cohesion, tan_phi, gamma, False) >= 1.0:
+            continue
+        _, psi, _ = _peak_head(z, cos_a, d, intensity, k, d0, duration, steady_ratio, horizon)
+        if _storm_fs_point(z, psi, sin_a, cos_a, cohesion, tan_phi, gamma, False) < 1.0:
+            return True
+    return False

@@ -19,7 +19,7 @@ from .rain import _INF
 
 @njit_parallel
 def _storm_minimum_kernel(slope, zs, d, intens, k, d0, dur, ratio, coh, root, phi, gam, area,
-                          n_depths, horizon, validity, count_suction, st, slope_normal,
+                          n_depths, z_min, horizon, validity, count_suction, st, slope_normal,
                           fs_out, z_out, t_out, cap_out, runoff_out, short_out):
     for i in prange(fs_out.size):
         a = _rad(slope[i * st[0]])
@@ -27,8 +27,8 @@ def _storm_minimum_kernel(slope, zs, d, intens, k, d0, dur, ratio, coh, root, ph
         dd0 = d0[i * st[5]]
         cos_a = math.cos(a)
         fs, z, t, cap = _storm_min_point(
-            _vertical_depth(zs[i * st[1]], cos_a, slope_normal), n_depths, math.sin(a), cos_a,
-            d[i * st[2]], intens[i * st[3]],
+            _vertical_depth(zs[i * st[1]], cos_a, slope_normal), n_depths, z_min, math.sin(a),
+            cos_a, d[i * st[2]], intens[i * st[3]],
             kk, dd0, dur[i * st[6]], ratio[i * st[7]], horizon, coh[i * st[8]] + root[i * st[9]],
             math.tan(_rad(phi[i * st[10]])), gam[i * st[11]], count_suction, True,
         )
@@ -60,8 +60,8 @@ class StormMinimum(NamedTuple):
 
 
 def storm_minimum(slope_deg, *, soil_depth_m, storm=None, strength=None, horizon_s=None,
-                  n_depths=20, contributing_area_m2=None, validity_ratio=0.1,
-                  count_suction=False, depth_measured="vertical", **fields):
+                  n_depths=20, min_failure_depth_m=0.0, contributing_area_m2=None,
+                  validity_ratio=0.1, count_suction=False, depth_measured="vertical", **fields):
     """Least storm factor of safety per cell over depth and time.
 
     Parameters
@@ -79,6 +79,10 @@ def storm_minimum(slope_deg, *, soil_depth_m, storm=None, strength=None, horizon
         Latest time considered, s from the storm start. Default None: no limit,
         which amounts to the post-storm peak of the head at the soil base
         (the deepest, and so the latest, peak of the depth grid).
+    min_failure_depth_m : float
+        Minimum credible failure depth z_min, m (>= 0, default 0: the plain
+        grid). The depths tried are z_min + (H - z_min) k / n_depths,
+        k = 1..n_depths; where the soil depth H <= z_min, the base only.
     n_depths : int
         Number of depths tried (>= 1); 1 tries the soil base only.
     contributing_area_m2 : array_like, optional
@@ -159,6 +163,7 @@ def storm_minimum(slope_deg, *, soil_depth_m, storm=None, strength=None, horizon
                                open_low=True)
     fields.append(area)
     n = _validate.positive_int(n_depths, "n_depths")
+    z_min = _validate.nonnegative(min_failure_depth_m, "min_failure_depth_m")
     horizon = _INF if horizon_s is None else _validate.nonnegative(horizon_s, "horizon_s")
     ratio = _validate.nonnegative(validity_ratio, "validity_ratio", allow_zero=False)
     shape, arrs, st = _validate.broadcast_flat(fields)
@@ -169,6 +174,6 @@ def storm_minimum(slope_deg, *, soil_depth_m, storm=None, strength=None, horizon
     cap = np.empty(size, dtype=np.bool_)
     runoff = np.empty(size, dtype=np.bool_)
     short = np.empty(size, dtype=np.bool_)
-    _storm_minimum_kernel(*arrs, n, horizon, ratio, bool(count_suction), st,
+    _storm_minimum_kernel(*arrs, n, z_min, horizon, ratio, bool(count_suction), st,
                           _validate.depth_measured(depth_measured), fs, z, t, cap, runoff, short)
     return StormMinimum(*(a.reshape(shape) for a in (fs, z, t, cap, runoff, short)))

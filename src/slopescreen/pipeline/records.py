@@ -130,4 +130,5 @@ def _soil_record(scenario: Scenario):
         units.append({"code": code, "label": u.label}
                      | {k: _parameter_record(getattr(u, k)) for k in SOIL_PROPERTIES})
     return {"map": None if scenario.soil.map is None else scenario.soil.map.name,
-            "depth_measured": scenario.soil.depth_measured, "units": units}
+            "depth_measured": scenario.soil.depth_measured,
+            "min_failure_depth_m": scenario.soil.min_failure_depth_m, "units": units}

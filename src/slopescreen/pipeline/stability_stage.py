@@ -14,6 +14,7 @@ from types import MappingProxyType
 
 import numpy as np
 
+from ..scenario.model import MIN_FAILURE_DEPTH_M, STORM_DEPTHS
 from ..soil import SoilFields
 from .inputs import soil_of
 from .results import ProbabilityResult, RechargeResult, StabilityResult, StormExtras
@@ -99,7 +100,8 @@ def _steady_cells(slope_deg, sca_m, *, recharge_mm_per_day, depth_measured, dept
     return wet, fs
 
 
-def _storm_cells(slope_deg, area_m2, *, case, depth_measured, depth_m, conductivity_m_per_day,
+def _storm_cells(slope_deg, area_m2, *, case, depth_measured, min_failure_depth_m, depth_m,
+                 conductivity_m_per_day,
                  diffusivity_m2_per_s, cohesion_kpa, root_cohesion_kpa, friction_deg,
                  unit_weight_kn_m3):
     from ..hydrology import StormInputs, storm_minimum, storm_pressure_head
@@ -113,13 +115,19 @@ def _storm_cells(slope_deg, area_m2, *, case, depth_measured, depth_m, conductiv
     strength = SoilStrength(cohesion_kpa=cohesion_kpa, root_cohesion_kpa=root_cohesion_kpa,
                             friction_deg=friction_deg, unit_weight_kn_m3=unit_weight_kn_m3)
     least = storm_minimum(slope_deg, soil_depth_m=depth_m, contributing_area_m2=area_m2,
-                          storm=storm, strength=strength, depth_measured=depth_measured)
+                          storm=storm, strength=strength, n_depths=STORM_DEPTHS,
+                          min_failure_depth_m=min_failure_depth_m, depth_measured=depth_measured)
     psi = storm_pressure_head(least.depth_m, least.time_s, slope_deg=slope_deg, storm=storm)
     cos2 = np.cos(np.radians(slope_deg.astype(np.float64))) ** 2
     with np.errstate(invalid="ignore", divide="ignore"):
         wet = np.clip(psi / (least.depth_m * cos2), 0.0, 1.0).astype(np.float32)
     flags = (least.cap_bound * 1 + least.runoff * 2 + least.short_time_doubtful * 4).astype(np.uint8)
     return least.fs, wet, least.depth_m, (least.time_s / 3600.0).astype(np.float32), flags
+
+
+def min_failure_depth(scenario) -> float:
+    """The minimum credible failure depth of the storm products, m (``[soil]``)."""
+    return MIN_FAILURE_DEPTH_M if scenario.soil is None else scenario.soil.min_failure_depth_m
 
 
 def stability_stage(scenario, inputs, cells: SoilCells, *, case) -> StabilityResult:
@@ -138,7 +146,8 @@ def stability_stage(scenario, inputs, cells: SoilCells, *, case) -> StabilityRes
             {"depth_m": "depth_m", "conductivity_m_per_day": "conductivity_m_per_day"} | STRENGTH)
         return StabilityResult(case, wet, fs, fs_tags=_fs_tags())
     fs, wet, depth, time_h, flags = soil.by_unit(
-        lambda **kw: _storm_cells(case=case, depth_measured=soil.depth_measured, **kw),
+        lambda **kw: _storm_cells(case=case, depth_measured=soil.depth_measured,
+                                  min_failure_depth_m=min_failure_depth(scenario), **kw),
         {"slope_deg": cells.slope_deg, "area_m2": cells.area_m2},
         {"depth_m": "depth_m", "conductivity_m_per_day": "conductivity_m_per_day",
          "diffusivity_m2_per_s": "diffusivity_m2_per_s"} | STRENGTH,
@@ -155,15 +164,17 @@ def probability_stage(scenario, inputs, cells: SoilCells, *, case) -> Probabilit
     soil = cells.soil
     index = soil.index_array()
     rain = rain_model(case)
+    # the same failure depths as the storm FS map (docs/methods.md, "Storm response (Iverson 2000)")
+    depths = {"n_depths": STORM_DEPTHS, "min_failure_depth_m": min_failure_depth(scenario)}
     if unc.method == "fosm":
         p_f = fosm_reliability(cells.slope_deg, cells.sca_m, index, soil.table, rain,
-                               depth_measured=soil.depth_measured).p_f
+                               depth_measured=soil.depth_measured, **depths).p_f
         how = "first-order second-moment (FOSM), FS taken as normal"
     else:
         p_f, _se = failure_probability(cells.slope_deg, cells.sca_m, index, soil.table, rain,
                                        samples=unc.samples, seed=unc.seed,
                                        correlation=unc.correlation,
-                                       depth_measured=soil.depth_measured)
+                                       depth_measured=soil.depth_measured, **depths)
         how = (f"Monte Carlo, {unc.samples} samples, seed {unc.seed}, "
                f"independent draws per {unc.correlation}")
     return ProbabilityResult(case, p_f.astype(np.float32), how)

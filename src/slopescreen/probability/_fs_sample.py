@@ -13,7 +13,7 @@ from .._numba import njit
 
 @njit
 def _sample_fs(depth, cohesion, tan_phi, gamma, cond, diff, sin_t, cos_t, inflow, rain_kind,
-               intensity, duration, wt_depth, steady_ratio, horizon, n_depths):
+               intensity, duration, wt_depth, steady_ratio, horizon, n_depths, z_min):
     """FS of one cell for one set of parameter values.
 
     Steady rain: ``inflow`` = q a in m^2/day, ``cond`` in m/day; FS with W from
@@ -25,7 +25,7 @@ def _sample_fs(depth, cohesion, tan_phi, gamma, cond, diff, sin_t, cos_t, inflow
         w = _wetness_point(inflow, cond, depth, sin_t, cos_t)
         return _steady_fs_point(cohesion, tan_phi, sin_t, cos_t, depth, w, gamma, gamma)
     fs, _, _, _ = _storm_min_point(
-        depth, n_depths, sin_t, cos_t, wt_depth, intensity, cond / 86400.0, diff, duration,
+        depth, n_depths, z_min, sin_t, cos_t, wt_depth, intensity, cond / 86400.0, diff, duration,
         steady_ratio, horizon, cohesion, tan_phi, gamma, False, False,
     )
     return fs

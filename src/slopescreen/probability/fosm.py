@@ -90,16 +90,16 @@ def reliability_index(mean_fs, sd_fs, *, fs_distribution="normal"):
 
 
 @njit
-def _fs_of_vector(x, sin_t, cos_t, inflow, rain_kind, rain, n_depths, slope_normal):
+def _fs_of_vector(x, sin_t, cos_t, inflow, rain_kind, rain, n_depths, z_min, slope_normal):
     return _sample_fs(
         _vertical_depth(x[_DEPTH], cos_t, slope_normal), x[_COH] + x[_ROOT],
         math.tan(_rad(x[_PHI])), x[_GAMMA], x[_COND], x[_DIFF], sin_t, cos_t, inflow, rain_kind,
-        rain[0], rain[1], rain[2], rain[3], rain[4], n_depths,
+        rain[0], rain[1], rain[2], rain[3], rain[4], n_depths, z_min,
     )
 
 
 @njit_parallel
-def _fosm_kernel(slope, sca, unit, means, sds, x_lo, x_hi, rain_kind, rain, n_depths,
+def _fosm_kernel(slope, sca, unit, means, sds, x_lo, x_hi, rain_kind, rain, n_depths, z_min,
                  slope_normal, mean_out, sd_out):
     n_par = means.shape[1]
     for i in prange(slope.size):
@@ -115,7 +115,8 @@ def _fosm_kernel(slope, sca, unit, means, sds, x_lo, x_hi, rain_kind, rain, n_de
         cos_t = math.cos(rad)
         inflow = rain[0] * a
         x = means[u].copy()
-        f0 = _fs_of_vector(x, sin_t, cos_t, inflow, rain_kind, rain, n_depths, slope_normal)
+        f0 = _fs_of_vector(x, sin_t, cos_t, inflow, rain_kind, rain, n_depths, z_min,
+                           slope_normal)
         var = 0.0
         for p in range(n_par):
             sd = sds[u, p]
@@ -123,10 +124,10 @@ def _fosm_kernel(slope, sca, unit, means, sds, x_lo, x_hi, rain_kind, rain, n_de
                 hi = x_hi[u, p]
                 lo = x_lo[u, p]
                 x[p] = hi
-                f_hi = _fs_of_vector(x, sin_t, cos_t, inflow, rain_kind, rain, n_depths,
+                f_hi = _fs_of_vector(x, sin_t, cos_t, inflow, rain_kind, rain, n_depths, z_min,
                                      slope_normal)
                 x[p] = lo
-                f_lo = _fs_of_vector(x, sin_t, cos_t, inflow, rain_kind, rain, n_depths,
+                f_lo = _fs_of_vector(x, sin_t, cos_t, inflow, rain_kind, rain, n_depths, z_min,
                                      slope_normal)
                 x[p] = means[u, p]
                 d = (f_hi - f_lo) / (hi - lo) * sd
@@ -136,12 +137,13 @@ def _fosm_kernel(slope, sca, unit, means, sds, x_lo, x_hi, rain_kind, rain, n_de
 
 
 def fosm_reliability(slope_deg, sca_m, unit_index, table, rain, *, n_depths=1,
-                     fs_distribution="normal", depth_measured="vertical"):
+                     min_failure_depth_m=0.0, fs_distribution="normal",
+                     depth_measured="vertical"):
     """First-order second-moment reliability of each cell (Duncan's Taylor-series variant).
 
     Parameters
     ----------
-    slope_deg, sca_m, unit_index, table, rain, n_depths, depth_measured
+    slope_deg, sca_m, unit_index, table, rain, n_depths, min_failure_depth_m, depth_measured
         As in :func:`failure_probability` (a slope-normal depth is turned into
         the cell's vertical depth at every evaluation of FS).
     fs_distribution : {"normal", "lognormal"}, keyword-only
@@ -203,6 +205,7 @@ def fosm_reliability(slope_deg, sca_m, unit_index, table, rain, *, n_depths=1,
         raise InputError(
             f"fs_distribution: expected 'normal' or 'lognormal', got {fs_distribution!r}"
         )
+    z_min = _validate.nonnegative(min_failure_depth_m, "min_failure_depth_m")
     shape, slope, sca, unit, encoded, params, rain_kind, rain_vec, nd = _grid_inputs(
         slope_deg, sca_m, unit_index, table, rain, n_depths
     )
@@ -224,7 +227,7 @@ def fosm_reliability(slope_deg, sca_m, unit_index, table, rain, *, n_depths=1,
     size = slope.size
     mean_out = np.empty(size, dtype=np.float64)
     sd_out = np.empty(size, dtype=np.float64)
-    _fosm_kernel(slope, sca, unit, means, sds, lo, hi, rain_kind, rain_vec, nd,
+    _fosm_kernel(slope, sca, unit, means, sds, lo, hi, rain_kind, rain_vec, nd, z_min,
                  _validate.depth_measured(depth_measured), mean_out, sd_out)
     valid = np.isfinite(mean_out)
     beta = np.full(size, np.nan)

@@ -31,11 +31,11 @@ from .._kernels.inverse_cdf import _quantile_block
 from .._kernels.rain_case import _STEADY
 from .._kernels.slope_stability import _rad, _steady_fs_point, _vertical_depth
 from .._kernels.soil_table import _COH, _COND, _DEPTH, _DIFF, _GAMMA, _N_PAR, _PHI, _ROOT
+from .._kernels.storm import _storm_fails
 from .._kernels.unit_draws import _TAN, _UNIT_DOMAIN, _prepare_table, _unit_draws_kernel
 from .._kernels.wetness import _wetness_point
 from .._numba import njit, njit_parallel, prange
 from ..errors import InputError
-from ._fs_sample import _sample_fs
 from ._inputs import _grid_inputs
 
 
@@ -63,7 +63,7 @@ def _draw_block(prep, u, key, first, nb, ubuf, vals):
 
 @njit
 def _count_failures(src, row, first, nb, sin_t, cos_t, inflow, rain_kind, intensity, duration,
-                    wt_depth, steady_ratio, horizon, n_depths, slope_normal):
+                    wt_depth, steady_ratio, horizon, n_depths, z_min, slope_normal):
     """Number of samples src[row, :, first + j] (j < nb) with FS < 1."""
     fails = 0
     if rain_kind == _STEADY:
@@ -78,19 +78,19 @@ def _count_failures(src, row, first, nb, sin_t, cos_t, inflow, rain_kind, intens
         return fails
     for j in range(nb):
         s = first + j
-        fs = _sample_fs(
-            _vertical_depth(src[row, _DEPTH, s], cos_t, slope_normal),
-            src[row, _COH, s] + src[row, _ROOT, s], src[row, _TAN, s],
-            src[row, _GAMMA, s], src[row, _COND, s], src[row, _DIFF, s], sin_t, cos_t, inflow,
-            rain_kind, intensity, duration, wt_depth, steady_ratio, horizon, n_depths,
+        # the decision FS < 1 of the least storm FS, with its depths pruned by a bound
+        fails += _storm_fails(
+            _vertical_depth(src[row, _DEPTH, s], cos_t, slope_normal), n_depths, z_min, sin_t,
+            cos_t, wt_depth, intensity, src[row, _COND, s] / 86400.0, src[row, _DIFF, s],
+            duration, steady_ratio, horizon, src[row, _COH, s] + src[row, _ROOT, s],
+            src[row, _TAN, s], src[row, _GAMMA, s],
         )
-        fails += fs < 1.0
     return fails
 
 
 @njit_parallel
 def _failure_probability_kernel(slope, sca, unit, prep, draws, unit_mode, rain_kind, rain,
-                                samples, n_depths, slope_normal, run_key, p_out, se_out):
+                                samples, n_depths, z_min, slope_normal, run_key, p_out, se_out):
     n_par = prep.shape[1]
     n = slope.size
     q = rain[0]
@@ -116,12 +116,12 @@ def _failure_probability_kernel(slope, sca, unit, prep, draws, unit_mode, rain_k
                 if unit_mode:
                     fails += _count_failures(draws, u, first, nb, sin_t, cos_t, q * a, rain_kind,
                                              rain[0], rain[1], rain[2], rain[3], rain[4], n_depths,
-                                             slope_normal)
+                                             z_min, slope_normal)
                 else:
                     _draw_block(prep, u, key, first, nb, ubuf, vals)
                     fails += _count_failures(vals, 0, 0, nb, sin_t, cos_t, q * a, rain_kind,
                                              rain[0], rain[1], rain[2], rain[3], rain[4], n_depths,
-                                             slope_normal)
+                                             z_min, slope_normal)
             pf = fails / samples
             p_out[i] = pf
             se_out[i] = math.sqrt(pf * (1.0 - pf) / samples)
@@ -138,6 +138,7 @@ def failure_probability(
     seed=0,
     correlation="cell",
     n_depths=1,
+    min_failure_depth_m=0.0,
     depth_measured="vertical",
 ):
     """Monte Carlo probability of failure P(FS < 1) per cell.
@@ -167,7 +168,12 @@ def failure_probability(
         (the soil of a unit is uniform but unknown).
     n_depths : int, keyword-only
         Storm only: depths tried between the surface and the sampled soil
-        depth (1 = the soil base only).
+        depth (1 = the soil base only); the same depth rule as
+        :func:`slopescreen.hydrology.storm_minimum`.
+    min_failure_depth_m : float, keyword-only
+        Storm only: minimum credible failure depth z_min, m (default 0);
+        the depths tried are z_min + (H - z_min) k / n_depths, k = 1..n_depths,
+        at the sampled soil depth H (the base only where H <= z_min).
     depth_measured : {"vertical", "slope_normal"}, keyword-only
         How the table's ``depth_m`` was measured. ``"slope_normal"``: each
         sampled thickness H is turned into the vertical depth z = H / cos(theta)
@@ -222,6 +228,7 @@ def failure_probability(
     shape, slope, sca, unit, encoded, _, rain_kind, rain_vec, nd = _grid_inputs(
         slope_deg, sca_m, unit_index, table, rain, n_depths
     )
+    z_min = _validate.nonnegative(min_failure_depth_m, "min_failure_depth_m")
     n, s = _validate.samples_and_seed(samples, seed)
     if correlation not in ("cell", "unit"):
         raise InputError(f"correlation: expected 'cell' or 'unit', got {correlation!r}")
@@ -237,6 +244,6 @@ def failure_probability(
     p_out = np.empty(size, dtype=np.float32)
     se_out = np.empty(size, dtype=np.float32)
     _failure_probability_kernel(slope, sca, unit, prep, draws, correlation == "unit", rain_kind,
-                                rain_vec, n, nd, _validate.depth_measured(depth_measured), run_key,
-                                p_out, se_out)
+                                rain_vec, n, nd, z_min, _validate.depth_measured(depth_measured),
+                                run_key, p_out, se_out)
     return p_out.reshape(shape), se_out.reshape(shape)

@@ -56,6 +56,10 @@ def _has_dry_case(manifest) -> bool:
     return any(c.get("steady_mm_per_day") == 0 for c in manifest.get("rain") or [])
 
 
+def _has_storm(manifest) -> bool:
+    return any(c.get("steady_mm_per_day") is None for c in manifest.get("rain") or [])
+
+
 def _has_clusters(manifest) -> bool:
     return any(p.get("key") == "cluster_labels" for p in manifest.get("products") or [])
 
@@ -78,6 +82,14 @@ CHANGES = (
         "A steady rain case of 0 mm/day is now accepted: the dry factor of safety, with no "
         "water table.",
         "Infinite-slope factor of safety", _has_dry_case),
+    MethodChange(
+        "storm_depths",
+        "Storm cases search the same failure depths in the FS map, the Monte Carlo and FOSM: "
+        "from the minimum credible failure depth ([soil] min_failure_depth_m, 0.3 m by "
+        "default) down to the soil base. Before, the map searched from a few centimetres "
+        "and the probabilities used the base only, so a cell could show FS < 1 with a "
+        "probability of failure of 0.",
+        "Storm response (Iverson 2000)", _has_storm),
     MethodChange(
         "cluster_proof",
         "A failure cluster that touches a margin face charged by its modular lower bound (a "

@@ -48,9 +48,20 @@ class SoilUnit:
     diffusivity_m2_per_s: Any
 
 
+#: Default ``[soil] min_failure_depth_m``, m: the shallowest failure plane a
+#: storm product considers (common practice; a c' = 0 soil otherwise "fails"
+#: at a few centimetres). docs/methods.md, "Storm response (Iverson 2000)".
+MIN_FAILURE_DEPTH_M = 0.3
+
+#: Number of failure depths every storm product tries between the minimum
+#: failure depth and the soil base.
+STORM_DEPTHS = 20
+
+
 @dataclass(frozen=True)
 class Soil:
-    """The ``[soil]`` section: an optional unit map and one table per unit."""
+    """The ``[soil]`` section: an optional unit map, one table per unit and
+    the minimum credible failure depth of the storm products, m."""
 
     map: Path | None
     units: dict[int, SoilUnit]
@@ -58,6 +69,7 @@ class Soil:
     """How the units' ``depth_m`` was measured: ``"vertical"`` (z, as in a pit) or
     ``"slope_normal"`` (H, normal to the slope, as by a probe); the kernels use
     z = H / cos(theta) per cell (docs/methods.md, "Slope-normal soil thickness")."""
+    min_failure_depth_m: float = MIN_FAILURE_DEPTH_M
 
 
 @dataclass(frozen=True)

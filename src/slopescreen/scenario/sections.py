@@ -17,6 +17,7 @@ from .fields import (
 )
 from .model import (
     DEPTH_MEASURED,
+    MIN_FAILURE_DEPTH_M,
     ROUTING_METHODS,
     Clusters,
     Corridor,
@@ -58,7 +59,10 @@ def _parse_soil_unit(table, ctx: Ctx, code: int) -> SoilUnit:
 
 
 def _parse_soil(table, ctx: Ctx, base: Path):
-    check_keys(table, ctx, {"map", "units", "depth_measured"}, required=("units",))
+    check_keys(table, ctx, {"map", "units", "depth_measured", "min_failure_depth_m"},
+               required=("units",))
+    min_depth = get_number(table, "min_failure_depth_m", ctx, default=MIN_FAILURE_DEPTH_M,
+                           low=0.0, high=20.0)
     soil_map = get_path(table, "map", ctx)
     depth_measured = get_string(table, "depth_measured", ctx, default="vertical",
                                 choices=DEPTH_MEASURED)
@@ -80,7 +84,8 @@ def _parse_soil(table, ctx: Ctx, base: Path):
         raise ctx.child("map").fail(
             f"{len(units)} soil units are given but no map says where each lies; "
             "add map = \"soil_units.tif\" or keep exactly one unit")
-    return {"soil": Soil(map=soil_map, units=units, depth_measured=depth_measured)}
+    return {"soil": Soil(map=soil_map, units=units, depth_measured=depth_measured,
+                         min_failure_depth_m=min_depth)}
 
 
 def _parse_rain(table, ctx: Ctx, base: Path):
