@@ -9,6 +9,8 @@ docs/methods.md, "Infinite-slope factor of safety").
 import math
 
 import numpy as np
+from numba import types
+from numba.extending import overload
 
 from .._numba import njit
 
@@ -26,16 +28,27 @@ def _rad(deg):
     return np.float64(deg) * (math.pi / 180.0)
 
 
-@njit
 def _vertical_depth(depth, cos_t, slope_normal):
     """Vertical soil depth z of a unit's soil depth at a cell of slope theta.
 
     A depth measured normal to the slope (H) is z = H / cos(theta); a vertical
     one is z itself (docs/methods.md, "Slope-normal soil thickness"). This is
     the one place the conversion is written; every kernel that reads a unit's
-    depth calls it.
+    depth calls it. Compiled, z keeps the float type of ``depth`` (a float32
+    raster value stays float32), so a vertical depth gives the kernels the very
+    value, and type, they read before the conversion existed.
     """
     return depth / cos_t if slope_normal else depth
+
+
+@overload(_vertical_depth, jit_options={"cache": True})
+def _vertical_depth_typed(depth, cos_t, slope_normal):
+    kind = np.float32 if depth == types.float32 else np.float64
+
+    def impl(depth, cos_t, slope_normal):
+        return kind(depth / cos_t) if slope_normal else kind(depth)
+
+    return impl
 
 
 @njit
