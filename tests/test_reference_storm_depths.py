@@ -170,22 +170,48 @@ def test_no_failure_depth_shallower_than_the_minimum():
 
 def test_pruned_failure_decision_equals_the_plain_depth_loop():
     # brute force: the plain loop over every depth (_storm_min_point) against the pruned,
-    # early-exit decision the Monte Carlo uses; same answer on every random case
-    from slopescreen._kernels.storm import _storm_fails, _storm_min_point
+    # early-exit, tabulated-peak decision the Monte Carlo uses; same answer on every random
+    # case, with and without a horizon that cuts the rise of the head short
+    from slopescreen._kernels.storm import _storm_fails, _storm_min_point, peak_table
 
+    peak = peak_table()
     rng = np.random.default_rng(8)
     checked = 0
-    for _ in range(4000):
+    for _ in range(6000):
         a = math.radians(rng.uniform(10.0, 50.0))
+        horizon = math.inf if rng.random() < 0.7 else rng.uniform(0.5, 80.0) * 3600.0
         args = (rng.uniform(0.1, 3.0), 20, rng.choice([0.0, 0.3, 0.6]), math.sin(a),
                 math.cos(a), rng.uniform(0.0, 2.0), rng.uniform(1.0, 60.0) / 3.6e6,
                 rng.uniform(0.1, 5.0) / 86400.0, 10 ** rng.uniform(-6, -3),
-                rng.uniform(1.0, 60.0) * 3600.0, 0.0, math.inf)
+                rng.uniform(1.0, 60.0) * 3600.0, 0.0, horizon)
         strength = (rng.uniform(0.0, 8.0), math.tan(math.radians(rng.uniform(25.0, 42.0))),
                     rng.uniform(16.0, 21.0))
         fs = _storm_min_point(*args, *strength, False, False)[0]
         if abs(fs - 1.0) < 1e-9:
             continue
-        assert _storm_fails(*args, *strength) == (fs < 1.0)
+        assert _storm_fails(*args, *strength, *peak) == (fs < 1.0)
         checked += 1
-    assert checked > 3900
+    assert checked > 5900
+
+
+def test_tabulated_peak_head_matches_a_bounded_search_within_its_bound():
+    # the peak over t* of Iverson's (2000) R(t*) - R(t* - T*) found by scipy's bounded Brent
+    # search (an independent optimiser) against the table's interpolated value; the table's
+    # stated relative error bound eps must cover the difference
+    from slopescreen._kernels.storm import _table_at, peak_table
+
+    table, x0, inv_h, eps = peak_table()
+
+    def r(ts):
+        if ts <= 0.0:
+            return 0.0
+        return math.sqrt(ts / math.pi) * math.exp(-1.0 / ts) - special.erfc(1.0 / math.sqrt(ts))
+
+    assert eps < 1e-5
+    for storm_ts in np.geomspace(1e-5, 1e5, 61) * 1.0137:
+        res = optimize.minimize_scalar(lambda t: -(r(t) - r(t - storm_ts)),
+                                       bounds=(storm_ts, storm_ts + 50.0 * max(1.0, storm_ts)),
+                                       method="bounded", options={"xatol": 1e-10 * storm_ts})
+        exact = -res.fun
+        tabulated = math.exp(_table_at(table, x0, inv_h, 0, math.log(storm_ts)))
+        assert abs(tabulated / exact - 1.0) <= eps

@@ -31,7 +31,7 @@ from .._kernels.inverse_cdf import _quantile_block
 from .._kernels.rain_case import _STEADY
 from .._kernels.slope_stability import _rad, _steady_fs_point, _vertical_depth
 from .._kernels.soil_table import _COH, _COND, _DEPTH, _DIFF, _GAMMA, _N_PAR, _PHI, _ROOT
-from .._kernels.storm import _storm_fails
+from .._kernels.storm import _storm_fails, peak_table
 from .._kernels.unit_draws import _TAN, _UNIT_DOMAIN, _prepare_table, _unit_draws_kernel
 from .._kernels.wetness import _wetness_point
 from .._numba import njit, njit_parallel, prange
@@ -63,7 +63,8 @@ def _draw_block(prep, u, key, first, nb, ubuf, vals):
 
 @njit
 def _count_failures(src, row, first, nb, sin_t, cos_t, inflow, rain_kind, intensity, duration,
-                    wt_depth, steady_ratio, horizon, n_depths, z_min, slope_normal):
+                    wt_depth, steady_ratio, horizon, n_depths, z_min, slope_normal, table, x0,
+                    inv_h, eps):
     """Number of samples src[row, :, first + j] (j < nb) with FS < 1."""
     fails = 0
     if rain_kind == _STEADY:
@@ -83,14 +84,15 @@ def _count_failures(src, row, first, nb, sin_t, cos_t, inflow, rain_kind, intens
             _vertical_depth(src[row, _DEPTH, s], cos_t, slope_normal), n_depths, z_min, sin_t,
             cos_t, wt_depth, intensity, src[row, _COND, s] / 86400.0, src[row, _DIFF, s],
             duration, steady_ratio, horizon, src[row, _COH, s] + src[row, _ROOT, s],
-            src[row, _TAN, s], src[row, _GAMMA, s],
+            src[row, _TAN, s], src[row, _GAMMA, s], table, x0, inv_h, eps,
         )
     return fails
 
 
 @njit_parallel
 def _failure_probability_kernel(slope, sca, unit, prep, draws, unit_mode, rain_kind, rain,
-                                samples, n_depths, z_min, slope_normal, run_key, p_out, se_out):
+                                samples, n_depths, z_min, slope_normal, table, x0, inv_h, eps,
+                                run_key, p_out, se_out):
     n_par = prep.shape[1]
     n = slope.size
     q = rain[0]
@@ -116,12 +118,12 @@ def _failure_probability_kernel(slope, sca, unit, prep, draws, unit_mode, rain_k
                 if unit_mode:
                     fails += _count_failures(draws, u, first, nb, sin_t, cos_t, q * a, rain_kind,
                                              rain[0], rain[1], rain[2], rain[3], rain[4], n_depths,
-                                             z_min, slope_normal)
+                                             z_min, slope_normal, table, x0, inv_h, eps)
                 else:
                     _draw_block(prep, u, key, first, nb, ubuf, vals)
                     fails += _count_failures(vals, 0, 0, nb, sin_t, cos_t, q * a, rain_kind,
                                              rain[0], rain[1], rain[2], rain[3], rain[4], n_depths,
-                                             z_min, slope_normal)
+                                             z_min, slope_normal, table, x0, inv_h, eps)
             pf = fails / samples
             p_out[i] = pf
             se_out[i] = math.sqrt(pf * (1.0 - pf) / samples)
@@ -245,5 +247,5 @@ def failure_probability(
     se_out = np.empty(size, dtype=np.float32)
     _failure_probability_kernel(slope, sca, unit, prep, draws, correlation == "unit", rain_kind,
                                 rain_vec, n, nd, z_min, _validate.depth_measured(depth_measured),
-                                run_key, p_out, se_out)
+                                *peak_table(), run_key, p_out, se_out)
     return p_out.reshape(shape), se_out.reshape(shape)
