@@ -279,3 +279,54 @@ def test_correlated_root_cohesions_slab_probability():
     se = math.sqrt(exact * (1 - exact) / 4000)
     assert 0.05 < exact < 0.95 and abs(exact - independent) > 8 * se
     assert abs(res.p_f[0] - exact) < 4 * se
+
+
+def test_storm_cluster_samples_take_the_maps_failure_depths():
+    # item: every storm product uses one failure-depth rule (docs/methods.md, "Storm response
+    # (Iverson 2000)"). Each FS sample of a storm cluster must equal the force model built from
+    # the storm FS map of that sample's draws: each cell at the depth of its least storm FS
+    # (storm_minimum, itself checked against Iverson's equations written out with scipy in
+    # test_reference_storm_depths.py) and W = psi / (Z cos^2) there.
+    from slopescreen.hydrology import StormInputs, storm_minimum
+    from slopescreen.stability import SoilStrength
+
+    rng = np.random.default_rng(12)
+    rows, cols = 9, 8
+    slope = rng.uniform(28.0, 42.0, (rows, cols))
+    aspect = rng.uniform(160.0, 200.0, (rows, cols))
+    lab = np.zeros((rows, cols), np.int32)
+    lab[2:7, 2:6] = 1
+    lab[4, 6] = 1
+    rain = StormRain(30.0, 20.0, 1.8)         # water table 1.8 m down, 30 mm/h for 20 h
+    z_min, n_depths = 0.3, 20
+    units = [_unit(depth_m=uniform(2.0, 2.6), cohesion_kpa=2.0,
+                   conductivity_m_per_day=lognormal(0.8, 0.5), diffusivity_m2_per_s=1e-4,
+                   friction_deg=normal(34.0, 2.0))]
+    samples = 6
+    res = _run(lab, slope, aspect, units, 2.0, samples, seed=5, rain=rain, keep_samples=True,
+               n_depths=n_depths, min_failure_depth_m=z_min)
+    draws, lat = cluster_parameter_draws(encode_table(units), 2.0, samples=samples, seed=5)
+    above_base = 0
+    for s in range(samples):
+        h, c, cr, phi, gam, k, d0 = draws[0, :, s]
+        storm = StormInputs(water_table_depth_m=1.8, intensity_m_per_s=rain.intensity_m_per_s,
+                            conductivity_m_per_s=k / 86400.0, diffusivity_m2_per_s=d0,
+                            duration_s=rain.duration_s)
+        least = storm_minimum(slope, soil_depth_m=h, storm=storm,
+                              strength=SoilStrength(cohesion_kpa=c, root_cohesion_kpa=cr,
+                                                    friction_deg=phi, unit_weight_kn_m3=gam),
+                              n_depths=n_depths, min_failure_depth_m=z_min)
+        depth = least.depth_m.astype(np.float64)
+        above_base += int((depth < h - 1e-6).sum())
+        psi = storm_pressure_head(depth, least.time_s.astype(np.float64), slope_deg=slope,
+                                  storm=storm)
+        cos2 = np.cos(np.radians(slope)) ** 2
+        wet = np.clip(psi / (depth * cos2), 0.0, 1.0)
+        f = cluster_forces(slope, aspect, depth, wet, dx=DX, dy=DY, cohesion_kpa=c,
+                           root_cohesion_kpa=cr, lateral_root_cohesion_kpa=lat[0, s],
+                           friction_deg=phi, unit_weight_kn_m3=gam, passive_fraction=ETA)
+        # float32 map depth and time against the kernel's float64: agreement to ~1e-6
+        assert res.fs_samples[0, s] == pytest.approx(cluster_factor_of_safety(f, lab == 1),
+                                                     rel=2e-5)
+    # the rule matters here: many cells have their least FS above the soil base
+    assert above_base > samples * 10

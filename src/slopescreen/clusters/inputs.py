@@ -317,12 +317,22 @@ class ClusterUncertainty:
         ``"slope_normal"``: each sampled thickness H becomes the cell's
         vertical depth z = H / cos(theta) (docs/methods.md, "Slope-normal soil
         thickness").
+    n_depths : int
+        Storm only: failure depths tried per cell and sample (default 1: the
+        soil base only), the depth rule of
+        :func:`slopescreen.hydrology.storm_minimum`; a run uses 20.
+    min_failure_depth_m : float
+        Storm only: minimum credible failure depth z_min, m (default 0); the
+        depths tried are z_min + (H - z_min) k / n_depths, k = 1..n_depths, at
+        the drawn soil depth H (the base only where H <= z_min); a run uses
+        ``[soil] min_failure_depth_m``.
 
     Raises
     ------
     InputError
-        A bad unit index, table, lateral root cohesion, sample count, seed or
-        rain case (the message names the field); a steady case without ``sca_m``.
+        A bad unit index, table, lateral root cohesion, sample count, seed,
+        rain case or depth rule (the message names the field); a steady case
+        without ``sca_m``.
 
     Notes
     -----
@@ -358,10 +368,15 @@ class ClusterUncertainty:
     rain: object = None
     sca_m: np.ndarray | None = None
     depth_measured: str = "vertical"
+    n_depths: int = 1
+    min_failure_depth_m: float = 0.0
 
     def __post_init__(self):
         put = self._put
         _validate.depth_measured(self.depth_measured)
+        put("n_depths", _count(self.n_depths, "n_depths", 1))
+        put("min_failure_depth_m",
+            _validate.nonnegative(self.min_failure_depth_m, "min_failure_depth_m"))
         unit = np.asarray(self.unit_index)
         if unit.ndim != 2 or not np.issubdtype(unit.dtype, np.integer):
             raise InputError(f"unit_index: expected a 2-D integer array, got {unit.dtype} of "

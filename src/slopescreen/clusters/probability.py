@@ -32,13 +32,17 @@ Wetness
 -------
 The wetness of each cell is recomputed per sample from the drawn
 parameters, as in the stability stage's Monte Carlo. Steady rain:
-W = min(1, q a / (K z sin cos)). Storm (Iverson 2000): the pressure head at
-the drawn soil base z where it peaks within the storm's horizon, with the
-drawn K_s and D_0, and W = psi / (z cos^2 theta) clipped to [0, 1], as
-the deterministic storm map converts it. Each cell takes its own peak
-time (the same per-cell envelope as the deterministic storm clusters,
-conservative for a cluster whose cells peak at different times); the slip
-surface is the soil base, as in the stability stage's storm Monte Carlo.
+W = min(1, q a / (K z sin cos)). Storm (Iverson 2000): each cell's failure
+depth is the depth of its least storm FS over the failure depths of
+docs/methods.md, "Storm response (Iverson 2000)" (z_min + (H - z_min) k / n
+at the drawn soil depth H, the base only where H <= z_min), with the drawn
+parameters, and its wetness W = psi / (Z cos^2 theta), clipped to [0, 1],
+with psi the head at that depth and time: the rule of the storm FS map,
+whose least-FS depth and wetness the deterministic storm clusters take, so
+a draw at the median parameters gives the deterministic cluster's FS.
+Each cell takes its own depth and peak time (the same per-cell envelope as
+the deterministic storm clusters, conservative for a cluster whose cells
+peak at different times).
 A fixed wetness raster may be passed instead (held while depth, strength
 and weight vary).
 """
@@ -64,7 +68,8 @@ from .._kernels.soil_table import (
     _ROOT,
     _checked_table,
 )
-from .._kernels.storm import _peak_head
+from .._kernels.iverson import _head_point
+from .._kernels.storm import _storm_min_point
 from .._kernels.unit_draws import _UNIT_DOMAIN, _prepare_table, _unit_draws_kernel
 from .._kernels.wetness import _wetness_point
 from .._numba import njit, njit_parallel, prange
@@ -174,18 +179,22 @@ _FIXED = -1  # rain kind: the wetness raster is held
 
 @njit
 def _sample_values(out, r, c, s, unit, draws, lateral, slope, sca, wet_fixed, rain_kind, rain,
-                   down, slope_normal):
+                   down, slope_normal, n_depths, z_min):
     """Face inputs of cell (r, c) in sample s (see ``_face_force``)."""
     u = unit[r, c]
-    z = _vertical_depth(draws[u, _DEPTH, s], math.cos(_rad(slope[r, c])), slope_normal)
+    th = _rad(slope[r, c])
+    cos_t = math.cos(th)
+    z = _vertical_depth(draws[u, _DEPTH, s], cos_t, slope_normal)
     if rain_kind == _STEADY:
-        th = _rad(slope[r, c])
-        w = _wetness_point(rain[0] * sca[r, c], draws[u, _COND, s], z, math.sin(th),
-                           math.cos(th))
+        w = _wetness_point(rain[0] * sca[r, c], draws[u, _COND, s], z, math.sin(th), cos_t)
     elif rain_kind == _STORM:
-        cos_t = math.cos(_rad(slope[r, c]))
-        _, psi, _ = _peak_head(z, cos_t, rain[2], rain[0], draws[u, _COND, s] / 86400.0,
-                               draws[u, _DIFF, s], rain[1], rain[3], rain[4])
+        k = draws[u, _COND, s] / 86400.0
+        _, z, t, _ = _storm_min_point(
+            z, n_depths, z_min, math.sin(th), cos_t, rain[2], rain[0], k, draws[u, _DIFF, s],
+            rain[1], rain[3], rain[4], draws[u, _COH, s] + draws[u, _ROOT, s],
+            math.tan(_rad(draws[u, _PHI, s])), draws[u, _GAMMA, s], False, False)
+        psi, _ = _head_point(z, t, cos_t, rain[2], rain[0], k, draws[u, _DIFF, s], rain[1],
+                             rain[3])
         w = min(1.0, max(0.0, psi / (z * cos_t * cos_t)))
     else:
         w = wet_fixed[r, c]
@@ -202,17 +211,34 @@ def _sample_values(out, r, c, s, unit, draws, lateral, slope, sca, wet_fixed, ra
     out[9] = slope[r, c]
 
 
+@njit
+def _values_at(cache, stamp, r, c, r0, c0, s, unit, draws, lateral, slope, sca, wet_fixed,
+               rain_kind, rain, down, slope_normal, n_depths, z_min):
+    """The face inputs of cell (r, c) in sample s, computed once per sample and cluster.
+
+    ``cache`` and ``stamp`` cover the cluster's bounding box with a one-cell
+    halo (origin r0 - 1, c0 - 1): a cell shared by several faces, or by its own
+    base and its neighbours' faces, has its storm depth search done once.
+    """
+    i = r - r0 + 1
+    j = c - c0 + 1
+    out = cache[i, j]
+    if stamp[i, j] != s:
+        _sample_values(out, r, c, s, unit, draws, lateral, slope, sca, wet_fixed, rain_kind,
+                       rain, down, slope_normal, n_depths, z_min)
+        stamp[i, j] = s
+    return out
+
+
 @njit_parallel
 def _cluster_fs_kernel(ptr, cells_r, cells_c, slope, down, unit, valid, sca, wet_fixed,
                        rain_kind, rain, draws, lateral, dx, dy, eta, jaky_full, slope_normal,
-                       free_nodata, out):
+                       free_nodata, n_depths, z_min, out):
     rows, cols = unit.shape
     n_c = ptr.size - 1
     samples = out.shape[1]
     area = dx * dy
     for j in prange(n_c):
-        own = np.empty(10)
-        nb = np.empty(10)
         lo, hi = ptr[j], ptr[j + 1]
         r0 = rows
         c0 = cols
@@ -226,14 +252,17 @@ def _cluster_fs_kernel(ptr, cells_r, cells_c, slope, down, unit, valid, sca, wet
         member = np.zeros((r1 - r0, c1 - c0), dtype=np.bool_)
         for t in range(lo, hi):
             member[cells_r[t] - r0, cells_c[t] - c0] = True
+        cache = np.empty((r1 - r0 + 2, c1 - c0 + 2, 10))
+        stamp = np.full((r1 - r0 + 2, c1 - c0 + 2), -1, dtype=np.int64)
+        nb = np.empty(10)
         for s in range(samples):
             num = 0.0
             den = 0.0
             for t in range(lo, hi):
                 r = cells_r[t]
                 c = cells_c[t]
-                _sample_values(own, r, c, s, unit, draws, lateral, slope, sca, wet_fixed,
-                               rain_kind, rain, down, slope_normal)
+                own = _values_at(cache, stamp, r, c, r0, c0, s, unit, draws, lateral, slope, sca,
+                                 wet_fixed, rain_kind, rain, down, slope_normal, n_depths, z_min)
                 d_i, r_i, _ = _basal_forces(slope[r, c], own[0], own[1], own[2], own[3], own[4],
                                             draws[unit[r, c], _ROOT, s], own[6], area)
                 num += r_i
@@ -248,11 +277,13 @@ def _cluster_fs_kernel(ptr, cells_r, cells_c, slope, down, unit, valid, sca, wet
                     has_nb = inside and valid[rr, cc]
                     if inside and not has_nb and free_nodata:
                         continue  # a free face towards nodata
+                    face_nb = nb
                     if has_nb:
-                        _sample_values(nb, rr, cc, s, unit, draws, lateral, slope, sca,
-                                       wet_fixed, rain_kind, rain, down, slope_normal)
+                        face_nb = _values_at(cache, stamp, rr, cc, r0, c0, s, unit, draws,
+                                             lateral, slope, sca, wet_fixed, rain_kind, rain,
+                                             down, slope_normal, n_depths, z_min)
                     length = dy if k % 2 == 0 else dx
-                    w, h = _face_force(k, length, own, nb, has_nb, eta, jaky_full)
+                    w, h = _face_force(k, length, own, face_nb, has_nb, eta, jaky_full)
                     num += w
                     den += h
             if den <= 0.0 or num >= FS_CAP * den:
@@ -448,7 +479,8 @@ def cluster_failure_probability(clusters, slope_deg, aspect_deg, unit_index=None
     out = np.empty((ids.size, n), dtype=np.float64)
     _cluster_fs_kernel(ptr, rr, cc, slope, down, unit.astype(np.int64), valid, sca, wet,
                        rain_kind, rain_vec, draws, lateral, dx, dy, eta, bool(jaky_full),
-                       _validate.depth_measured(unc.depth_measured), free_nodata, out)
+                       _validate.depth_measured(unc.depth_measured), free_nodata, unc.n_depths,
+                       unc.min_failure_depth_m, out)
     p = (out < 1.0).mean(axis=1) if ids.size else np.zeros(0)
     se = np.sqrt(p * (1.0 - p) / n)
     med = np.median(out, axis=1) if ids.size else np.zeros(0)

@@ -84,7 +84,8 @@ CHANGES = (
         "Infinite-slope factor of safety", _has_dry_case),
     MethodChange(
         "storm_depths",
-        "Storm cases search the same failure depths in the FS map, the Monte Carlo and FOSM: "
+        "Storm cases search the same failure depths in the FS map, the Monte Carlo, FOSM and "
+        "the failure-cluster Monte Carlo: "
         "from the minimum credible failure depth ([soil] min_failure_depth_m, 0.3 m by "
         "default) down to the soil base. Before, the map searched from a few centimetres "
         "and the probabilities used the base only, so a cell could show FS < 1 with a "
