@@ -281,35 +281,46 @@ def test_correlated_root_cohesions_slab_probability():
     assert abs(res.p_f[0] - exact) < 4 * se
 
 
-def test_storm_cluster_samples_take_the_maps_failure_depths():
+@pytest.mark.parametrize("antecedent", [None, 1.0])
+def test_storm_cluster_samples_take_the_maps_failure_depths(antecedent):
     # item: every storm product uses one failure-depth rule (docs/methods.md, "Storm response
     # (Iverson 2000)"). Each FS sample of a storm cluster must equal the force model built from
     # the storm FS map of that sample's draws: each cell at the depth of its least storm FS
     # (storm_minimum, itself checked against Iverson's equations written out with scipy in
-    # test_reference_storm_depths.py) and W = psi / (Z cos^2) there.
-    from slopescreen.hydrology import StormInputs, storm_minimum
+    # test_reference_storm_depths.py) and W = psi / (Z cos^2) there. With an antecedent
+    # recharge, each cell's initial water table is the steady one of the sample's draws
+    # (antecedent_table_depth, checked by hand in test_reference_antecedent.py).
+    from slopescreen.hydrology import StormInputs, antecedent_table_depth, storm_minimum
     from slopescreen.stability import SoilStrength
 
     rng = np.random.default_rng(12)
     rows, cols = 9, 8
     slope = rng.uniform(28.0, 42.0, (rows, cols))
     aspect = rng.uniform(160.0, 200.0, (rows, cols))
+    sca = rng.uniform(5.0, 600.0, (rows, cols))
     lab = np.zeros((rows, cols), np.int32)
     lab[2:7, 2:6] = 1
     lab[4, 6] = 1
-    rain = StormRain(30.0, 20.0, 1.8)         # water table 1.8 m down, 30 mm/h for 20 h
+    if antecedent is None:
+        rain = StormRain(30.0, 20.0, 1.8)     # water table 1.8 m down, 30 mm/h for 20 h
+        extra = {}
+    else:
+        rain = StormRain(30.0, 20.0, antecedent_mm_per_day=antecedent)
+        extra = {"sca_m": sca}
     z_min, n_depths = 0.3, 20
     units = [_unit(depth_m=uniform(2.0, 2.6), cohesion_kpa=2.0,
                    conductivity_m_per_day=lognormal(0.8, 0.5), diffusivity_m2_per_s=1e-4,
                    friction_deg=normal(34.0, 2.0))]
     samples = 6
     res = _run(lab, slope, aspect, units, 2.0, samples, seed=5, rain=rain, keep_samples=True,
-               n_depths=n_depths, min_failure_depth_m=z_min)
+               n_depths=n_depths, min_failure_depth_m=z_min, **extra)
     draws, lat = cluster_parameter_draws(encode_table(units), 2.0, samples=samples, seed=5)
     above_base = 0
     for s in range(samples):
         h, c, cr, phi, gam, k, d0 = draws[0, :, s]
-        storm = StormInputs(water_table_depth_m=1.8, intensity_m_per_s=rain.intensity_m_per_s,
+        table = 1.8 if antecedent is None else antecedent_table_depth(
+            sca, slope, recharge_mm_per_day=antecedent, conductivity_m_per_day=k, depth_m=h)
+        storm = StormInputs(water_table_depth_m=table, intensity_m_per_s=rain.intensity_m_per_s,
                             conductivity_m_per_s=k / 86400.0, diffusivity_m2_per_s=d0,
                             duration_s=rain.duration_s)
         least = storm_minimum(slope, soil_depth_m=h, storm=storm,

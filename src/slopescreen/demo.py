@@ -389,7 +389,7 @@ steady_mm_per_day = 6
 name = "design storm"
 storm_mm_per_h = 30
 duration_h = 8
-water_table_depth_m = 0.8
+antecedent_mm_per_day = 2
 
 [uncertainty]
 samples = 300

@@ -23,3 +23,17 @@ def _wetness_point(inflow, k, depth, sin_t, cos_t):
     w = 1.0 if inflow >= cap else w
     w = 0.0 if inflow <= 0.0 else w
     return math.nan if math.isnan(cap) or math.isnan(inflow) else w
+
+
+@njit
+def _storm_table_depth(table_depth, inflow, k, depth, sin_t, cos_t):
+    """Vertical depth d of a storm's initial water table, m.
+
+    ``table_depth`` >= 0: that depth (one water table for the case). Negative:
+    the steady water table of an antecedent recharge, d = z (1 - W) with
+    W = :func:`_wetness_point` of ``inflow`` = q a (docs/methods.md, "Storm
+    response (Iverson 2000)", antecedent water table).
+    """
+    if table_depth >= 0.0:
+        return table_depth
+    return depth * (1.0 - _wetness_point(inflow, k, depth, sin_t, cos_t))

@@ -307,11 +307,12 @@ class ClusterUncertainty:
         results with any number of threads.
     rain : SteadyRain or StormRain, optional
         The rain case: wetness recomputed per sample from the drawn
-        parameters (a steady case needs ``sca_m``). Default None: the
+        parameters (a steady case, and a storm with ``antecedent_mm_per_day``,
+        need ``sca_m``). Default None: the
         wetness given to the function is held fixed over the samples.
     sca_m : array_like, optional
         Specific catchment area a, m (>= 0), shape (rows, cols); used by a
-        steady rain case only.
+        steady rain case and by a storm's antecedent water table only.
     depth_measured : {"vertical", "slope_normal"}
         How the table's ``depth_m`` was measured (default ``"vertical"``).
         ``"slope_normal"``: each sampled thickness H becomes the cell's
@@ -331,8 +332,8 @@ class ClusterUncertainty:
     ------
     InputError
         A bad unit index, table, lateral root cohesion, sample count, seed,
-        rain case or depth rule (the message names the field); a steady case
-        without ``sca_m``.
+        rain case or depth rule (the message names the field); a steady case,
+        or a storm with an antecedent recharge, without ``sca_m``.
 
     Notes
     -----
@@ -400,6 +401,9 @@ class ClusterUncertainty:
             put("sca_m", _validate.read_only(_validate.field(self.sca_m, "sca_m", 0.0, math.inf)))
         elif isinstance(self.rain, SteadyRain):
             raise InputError("sca_m: a steady rain case needs the specific catchment area")
+        elif getattr(self.rain, "antecedent_mm_per_day", None) is not None:
+            raise InputError("sca_m: a storm with antecedent_mm_per_day needs the specific "
+                             "catchment area")
 
     def _put(self, key, value):
         object.__setattr__(self, key, value)

@@ -42,7 +42,9 @@ whose least-FS depth and wetness the deterministic storm clusters take, so
 a draw at the median parameters gives the deterministic cluster's FS.
 Each cell takes its own depth and peak time (the same per-cell envelope as
 the deterministic storm clusters, conservative for a cluster whose cells
-peak at different times).
+peak at different times). A storm with an antecedent recharge starts each
+cell from the steady water table of that recharge with the drawn K_s and
+soil depth (docs/methods.md, "Storm response (Iverson 2000)").
 A fixed wetness raster may be passed instead (held while depth, strength
 and weight vary).
 """
@@ -55,7 +57,7 @@ import numpy as np
 from .. import _validate
 from .._kernels.counter_rng import _counter_key, _mix64, _seed_key, _stream_key, _uniform01
 from .._kernels.inverse_cdf import _quantile_at
-from .._kernels.rain_case import _STEADY, _STORM, _rain_vector
+from .._kernels.rain_case import _STEADY, _STORM, _needs_area, _rain_vector
 from .._kernels.slope_stability import FS_CAP, _rad, _vertical_depth
 from .._kernels.soil_table import (
     _COH,
@@ -71,7 +73,7 @@ from .._kernels.soil_table import (
 from .._kernels.iverson import _head_point
 from .._kernels.storm import _storm_min_point
 from .._kernels.unit_draws import _UNIT_DOMAIN, _prepare_table, _unit_draws_kernel
-from .._kernels.wetness import _wetness_point
+from .._kernels.wetness import _storm_table_depth, _wetness_point
 from .._numba import njit, njit_parallel, prange
 from ..errors import InputError
 from ._force_kernels import _basal_forces, _face_force
@@ -189,12 +191,15 @@ def _sample_values(out, r, c, s, unit, draws, lateral, slope, sca, wet_fixed, ra
         w = _wetness_point(rain[0] * sca[r, c], draws[u, _COND, s], z, math.sin(th), cos_t)
     elif rain_kind == _STORM:
         k = draws[u, _COND, s] / 86400.0
+        sin_t = math.sin(th)
+        # the case's water table, or the steady one of its antecedent recharge (rain[2] < 0)
+        d = _storm_table_depth(rain[2], rain[5] * sca[r, c] if rain[2] < 0.0 else 0.0,
+                               draws[u, _COND, s], z, sin_t, cos_t)
         _, z, t, _ = _storm_min_point(
-            z, n_depths, z_min, math.sin(th), cos_t, rain[2], rain[0], k, draws[u, _DIFF, s],
+            z, n_depths, z_min, sin_t, cos_t, d, rain[0], k, draws[u, _DIFF, s],
             rain[1], rain[3], rain[4], draws[u, _COH, s] + draws[u, _ROOT, s],
             math.tan(_rad(draws[u, _PHI, s])), draws[u, _GAMMA, s], False, False)
-        psi, _ = _head_point(z, t, cos_t, rain[2], rain[0], k, draws[u, _DIFF, s], rain[1],
-                             rain[3])
+        psi, _ = _head_point(z, t, cos_t, d, rain[0], k, draws[u, _DIFF, s], rain[1], rain[3])
         w = min(1.0, max(0.0, psi / (z * cos_t * cos_t)))
     else:
         w = wet_fixed[r, c]
@@ -449,7 +454,7 @@ def cluster_failure_probability(clusters, slope_deg, aspect_deg, unit_index=None
     if (rain is None) == (wetness is None):
         raise InputError("rain, wetness: give either a rain case (wetness per sample) or a "
                          "fixed wetness raster, not both or neither")
-    rain_kind, rain_vec = (_FIXED, np.zeros(5)) if rain is None else _rain_vector(rain)
+    rain_kind, rain_vec = (_FIXED, np.zeros(6)) if rain is None else _rain_vector(rain)
     encoded = unc.table
     n, s = unc.samples, unc.seed
     eta = float(_validate.field(passive_fraction, "passive_fraction", 0.0, 1.0, allow_nan=False))
@@ -464,7 +469,7 @@ def cluster_failure_probability(clusters, slope_deg, aspect_deg, unit_index=None
         except ValueError:
             raise InputError(f"wetness: shape {w.shape} does not broadcast to {shape}") from None
         valid &= np.isfinite(wet)
-    if rain_kind == _STEADY:
+    if rain is not None and _needs_area(rain_kind, rain_vec):
         sca = np.asarray(unc.sca_m, dtype=np.float64)
         if sca.shape != shape:
             raise InputError(f"sca_m: shape {sca.shape} does not match slope_deg {shape}")

@@ -1,6 +1,7 @@
 """Steady-state wetness W = h_w / z under steady recharge.
 
-O'Loughlin (1986); Montgomery & Dietrich (1994): :func:`steady_wetness`.
+O'Loughlin (1986); Montgomery & Dietrich (1994): :func:`steady_wetness`, and
+the steady water table it implies before a storm: :func:`antecedent_table_depth`.
 """
 
 import math
@@ -15,17 +16,28 @@ from .rain import _INF
 
 
 @njit_parallel
-def _steady_wetness_kernel(sca, slope, q, k, depth, st, slope_normal, out):
+def _steady_kernel(sca, slope, q, k, depth, st, slope_normal, table_depth, out):
+    """W per cell, or (``table_depth``) the water-table depth z (1 - W)."""
     for i in prange(out.size):
         th = _rad(slope[i * st[1]])
         cos_t = math.cos(th)
-        out[i] = _wetness_point(
-            q[i * st[2]] * 1e-3 * sca[i * st[0]],
-            k[i * st[3]],
-            _vertical_depth(depth[i * st[4]], cos_t, slope_normal),
-            math.sin(th),
-            cos_t,
-        )
+        z = _vertical_depth(depth[i * st[4]], cos_t, slope_normal)
+        w = _wetness_point(q[i * st[2]] * 1e-3 * sca[i * st[0]], k[i * st[3]], z, math.sin(th),
+                           cos_t)
+        out[i] = z * (1.0 - w) if table_depth else w
+
+
+def _steady_field(sca_m, slope_deg, recharge_mm_per_day, conductivity_m_per_day, depth_m,
+                  depth_measured, table_depth, dtype):
+    sca = _validate.field(sca_m, "sca_m", 0.0, _INF)
+    slope = _validate.slope_field(slope_deg)
+    q = _validate.field(recharge_mm_per_day, "recharge_mm_per_day", 0.0, _INF)
+    k = _validate.physical_field(conductivity_m_per_day, "conductivity_m_per_day")
+    depth = _validate.physical_field(depth_m, "depth_m")
+    shape, arrs, st = _validate.broadcast_flat([sca, slope, q, k, depth])
+    out = np.empty(int(np.prod(shape)), dtype=dtype)
+    _steady_kernel(*arrs, st, _validate.depth_measured(depth_measured), table_depth, out)
+    return out.reshape(shape)
 
 
 def steady_wetness(sca_m, slope_deg, *, recharge_mm_per_day, conductivity_m_per_day, depth_m,
@@ -91,12 +103,54 @@ def steady_wetness(sca_m, slope_deg, *, recharge_mm_per_day, conductivity_m_per_
     >>> round(float(w), 4)  # 0.005 * 100 / (1.728 * cos 30 * sin 30)
     0.6682
     """
-    sca = _validate.field(sca_m, "sca_m", 0.0, _INF)
-    slope = _validate.slope_field(slope_deg)
-    q = _validate.field(recharge_mm_per_day, "recharge_mm_per_day", 0.0, _INF)
-    k = _validate.physical_field(conductivity_m_per_day, "conductivity_m_per_day")
-    depth = _validate.physical_field(depth_m, "depth_m")
-    shape, arrs, st = _validate.broadcast_flat([sca, slope, q, k, depth])
-    out = np.empty(int(np.prod(shape)), dtype=np.float32)
-    _steady_wetness_kernel(*arrs, st, _validate.depth_measured(depth_measured), out)
-    return out.reshape(shape)
+    return _steady_field(sca_m, slope_deg, recharge_mm_per_day, conductivity_m_per_day, depth_m,
+                         depth_measured, False, np.float32)
+
+
+def antecedent_table_depth(sca_m, slope_deg, *, recharge_mm_per_day, conductivity_m_per_day,
+                           depth_m, depth_measured="vertical"):
+    """Vertical depth of the steady water table under a background recharge, m.
+
+    The initial water table of a storm that follows the terrain: under a
+    steady background recharge q0 the saturated thickness is h0 = W z, capped
+    at the soil depth (W <= 1), so the water table lies at d = z (1 - W)
+    below the surface, shallower in hollows (large a) than on spurs.
+
+    Parameters
+    ----------
+    sca_m, slope_deg, recharge_mm_per_day, conductivity_m_per_day, depth_m, depth_measured
+        As in :func:`steady_wetness`; ``recharge_mm_per_day`` is q0.
+
+    Returns
+    -------
+    numpy.ndarray of float64
+        d in [0, z] (0: saturated to the surface; z: no water above the
+        soil base), vertical, m; NaN where any input is NaN.
+
+    Raises
+    ------
+    InputError
+        As :func:`steady_wetness`.
+
+    Notes
+    -----
+    docs/methods.md, "Storm response (Iverson 2000)": the steady state is
+    that of O'Loughlin (1986) and Montgomery & Dietrich (1994)::
+
+        W = min(1, q0 a / (K_s z sin theta cos theta)),     d = z (1 - W)
+
+    Iverson's (2000) initial head psi0 = (Z - d) beta with beta = cos^2 theta
+    is that of slope-parallel flow, the flow of the steady state, so the head
+    at the soil base before the storm is W z cos^2 theta, the pore pressure
+    of the steady map. The steady state needs the rain-free spell before the
+    storm to last longer than the area takes to drain (about A / D0).
+
+    Examples
+    --------
+    >>> d = antecedent_table_depth(100.0, 30.0, recharge_mm_per_day=5.0,
+    ...                            conductivity_m_per_day=1.728, depth_m=1.0)
+    >>> round(float(d), 4)  # 1 - 0.005 * 100 / (1.728 * cos 30 * sin 30)
+    0.3318
+    """
+    return _steady_field(sca_m, slope_deg, recharge_mm_per_day, conductivity_m_per_day, depth_m,
+                         depth_measured, True, np.float64)

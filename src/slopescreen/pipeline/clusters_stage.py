@@ -12,7 +12,8 @@ from ..grid import Grid
 from ..report.cautions import SHORT
 from .results import ClusterCase, ClusterLayers
 from ..scenario.model import STORM_DEPTHS
-from .stability_stage import SoilCells, effective_uncertainty, min_failure_depth, rain_model
+from .stability_stage import (SoilCells, effective_uncertainty, min_failure_depth, rain_model,
+                              rain_needs_area)
 
 CLUSTER_FIELDS = ("id", "rain", "fs", "failure_probability", "area_m2", "volume_m3",
                   "mean_depth_m", "length_m", "width_m", "n_cells", "min_cell_fs", "lower_bound",
@@ -74,7 +75,7 @@ def clusters_stage(scenario, inputs, cells: SoilCells, slope, stability, earlier
         unit_index=soil.index_array(), table=soil.table,
         lateral_root_cohesion_kpa=[u.lateral_root_cohesion_kpa for u in soil.units],
         samples=unc.samples, seed=unc.seed, rain=rain_model(case),
-        sca_m=None if case.is_storm else cells.sca_m, depth_measured=soil.depth_measured,
+        sca_m=cells.sca_m if rain_needs_area(case) else None, depth_measured=soil.depth_measured,
         # the storm FS map's failure depths (docs/methods.md, "Storm response (Iverson 2000)")
         n_depths=STORM_DEPTHS, min_failure_depth_m=min_failure_depth(scenario))
     strength = ClusterStrength(

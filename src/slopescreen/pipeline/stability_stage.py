@@ -61,8 +61,14 @@ def rain_model(case):
     from ..hydrology import SteadyRain, StormRain
 
     if case.is_storm:
-        return StormRain(case.storm_mm_per_h, case.duration_h, case.water_table_depth_m)
+        return StormRain(case.storm_mm_per_h, case.duration_h, case.water_table_depth_m,
+                         antecedent_mm_per_day=case.antecedent_mm_per_day)
     return SteadyRain(case.steady_mm_per_day)
+
+
+def rain_needs_area(case) -> bool:
+    """True when a rain case reads the specific catchment area (steady, or an antecedent storm)."""
+    return not case.is_storm or case.antecedent_mm_per_day is not None
 
 
 def recharge_stage(scenario, inputs, cells: SoilCells) -> RechargeResult:
@@ -100,14 +106,20 @@ def _steady_cells(slope_deg, sca_m, *, recharge_mm_per_day, depth_measured, dept
     return wet, fs
 
 
-def _storm_cells(slope_deg, area_m2, *, case, depth_measured, min_failure_depth_m, depth_m,
-                 conductivity_m_per_day,
-                 diffusivity_m2_per_s, cohesion_kpa, root_cohesion_kpa, friction_deg,
-                 unit_weight_kn_m3):
-    from ..hydrology import StormInputs, storm_minimum, storm_pressure_head
+def _storm_cells(slope_deg, area_m2, sca_m, *, case, depth_measured, min_failure_depth_m,
+                 depth_m, conductivity_m_per_day, diffusivity_m2_per_s, cohesion_kpa,
+                 root_cohesion_kpa, friction_deg, unit_weight_kn_m3):
+    from ..hydrology import (StormInputs, antecedent_table_depth, storm_minimum,
+                             storm_pressure_head)
     from ..stability import SoilStrength
 
-    storm = StormInputs(water_table_depth_m=case.water_table_depth_m,
+    table = case.water_table_depth_m
+    if case.antecedent_mm_per_day is not None:  # the steady water table of that recharge
+        table = antecedent_table_depth(sca_m, slope_deg,
+                                       recharge_mm_per_day=case.antecedent_mm_per_day,
+                                       conductivity_m_per_day=conductivity_m_per_day,
+                                       depth_m=depth_m, depth_measured=depth_measured)
+    storm = StormInputs(water_table_depth_m=table,
                         intensity_m_per_s=case.storm_mm_per_h / 3.6e6,
                         conductivity_m_per_s=conductivity_m_per_day / 86400.0,
                         diffusivity_m2_per_s=diffusivity_m2_per_s,
@@ -148,7 +160,7 @@ def stability_stage(scenario, inputs, cells: SoilCells, *, case) -> StabilityRes
     fs, wet, depth, time_h, flags = soil.by_unit(
         lambda **kw: _storm_cells(case=case, depth_measured=soil.depth_measured,
                                   min_failure_depth_m=min_failure_depth(scenario), **kw),
-        {"slope_deg": cells.slope_deg, "area_m2": cells.area_m2},
+        {"slope_deg": cells.slope_deg, "area_m2": cells.area_m2, "sca_m": cells.sca_m},
         {"depth_m": "depth_m", "conductivity_m_per_day": "conductivity_m_per_day",
          "diffusivity_m2_per_s": "diffusivity_m2_per_s"} | STRENGTH,
         fill=(np.nan, np.nan, np.nan, np.nan, 0))

@@ -5,7 +5,7 @@ import math
 import numpy as np
 
 from .. import _validate
-from .._kernels.rain_case import _STEADY, _STORM, _rain_vector
+from .._kernels.rain_case import _STORM, _needs_area, _rain_vector
 from .._kernels.soil_table import _checked_table
 from ..errors import InputError
 
@@ -16,9 +16,11 @@ def _grid_inputs(slope_deg, sca_m, unit_index, table, rain, n_depths):
     slope, _ = _validate.surface(slope_deg, name="slope_deg", min_size=1)
     _validate.slope_field(slope)
     shape = slope.shape
-    if rain_kind == _STEADY:
+    area = _needs_area(rain_kind, rain_vec)
+    if area:
         if sca_m is None:
-            raise InputError("sca_m: a steady rain case needs the specific catchment area")
+            raise InputError("sca_m: a steady rain case, or a storm with antecedent_mm_per_day, "
+                             "needs the specific catchment area")
         sca = _validate.field(sca_m, "sca_m", 0.0, math.inf)
         if sca.shape != shape:
             raise InputError(f"sca_m: shape {sca.shape} does not match slope_deg shape {shape}")
@@ -37,6 +39,6 @@ def _grid_inputs(slope_deg, sca_m, unit_index, table, rain, n_depths):
             f"the table), got [{unit.min()}, {unit.max()}]"
         )
     nd = _validate.positive_int(n_depths, "n_depths")
-    flat_sca = sca.reshape(-1) if rain_kind == _STEADY else sca
+    flat_sca = sca.reshape(-1) if area else sca
     return (shape, slope.reshape(-1), flat_sca, unit.astype(np.int64, copy=False).reshape(-1),
             encoded, params, rain_kind, rain_vec, nd)

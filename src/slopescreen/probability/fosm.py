@@ -9,7 +9,7 @@ from typing import NamedTuple
 import numpy as np
 
 from .. import _validate
-from .._kernels.rain_case import _STEADY
+from .._kernels.rain_case import _STEADY, _area_rate
 from .._kernels.slope_stability import _rad, _vertical_depth
 from .._kernels.soil_table import _COH, _COND, _DEPTH, _DIFF, _GAMMA, _N_PAR, _PHI, _ROOT
 from .._numba import njit, njit_parallel, prange
@@ -105,7 +105,7 @@ def _fosm_kernel(slope, sca, unit, means, sds, x_lo, x_hi, rain_kind, rain, n_de
     for i in prange(slope.size):
         u = unit[i]
         th = slope[i]
-        a = sca[i] if rain_kind == _STEADY else 0.0
+        a = sca[i] if rain_kind == _STEADY or rain[2] < 0.0 else 0.0
         if u < 0 or math.isnan(th) or math.isnan(a):
             mean_out[i] = math.nan
             sd_out[i] = math.nan
@@ -113,7 +113,7 @@ def _fosm_kernel(slope, sca, unit, means, sds, x_lo, x_hi, rain_kind, rain, n_de
         rad = _rad(th)
         sin_t = math.sin(rad)
         cos_t = math.cos(rad)
-        inflow = rain[0] * a
+        inflow = _area_rate(rain_kind, rain) * a
         x = means[u].copy()
         f0 = _fs_of_vector(x, sin_t, cos_t, inflow, rain_kind, rain, n_depths, z_min,
                            slope_normal)

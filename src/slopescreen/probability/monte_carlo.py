@@ -28,12 +28,12 @@ from .. import _validate
 from .._kernels.counter_rng import _counter_key, _mix64, _seed_key, _stream_key, _uniform01
 from .._kernels.friction import _tan_friction
 from .._kernels.inverse_cdf import _quantile_block
-from .._kernels.rain_case import _STEADY
+from .._kernels.rain_case import _STEADY, _area_rate
 from .._kernels.slope_stability import _rad, _steady_fs_point, _vertical_depth
 from .._kernels.soil_table import _COH, _COND, _DEPTH, _DIFF, _GAMMA, _N_PAR, _PHI, _ROOT
 from .._kernels.storm import _storm_fails, peak_table
 from .._kernels.unit_draws import _TAN, _UNIT_DOMAIN, _prepare_table, _unit_draws_kernel
-from .._kernels.wetness import _wetness_point
+from .._kernels.wetness import _storm_table_depth, _wetness_point
 from .._numba import njit, njit_parallel, prange
 from ..errors import InputError
 from ._inputs import _grid_inputs
@@ -65,7 +65,11 @@ def _draw_block(prep, u, key, first, nb, ubuf, vals):
 def _count_failures(src, row, first, nb, sin_t, cos_t, inflow, rain_kind, intensity, duration,
                     wt_depth, steady_ratio, horizon, n_depths, z_min, slope_normal, table, x0,
                     inv_h, eps):
-    """Number of samples src[row, :, first + j] (j < nb) with FS < 1."""
+    """Number of samples src[row, :, first + j] (j < nb) with FS < 1.
+
+    ``inflow`` = q a, m^2/day: the steady recharge, or a storm's antecedent
+    recharge (read where ``wt_depth`` < 0, see ``_storm_table_depth``).
+    """
     fails = 0
     if rain_kind == _STEADY:
         for j in range(nb):
@@ -79,10 +83,12 @@ def _count_failures(src, row, first, nb, sin_t, cos_t, inflow, rain_kind, intens
         return fails
     for j in range(nb):
         s = first + j
+        depth = _vertical_depth(src[row, _DEPTH, s], cos_t, slope_normal)
         # the decision FS < 1 of the least storm FS, with its depths pruned by a bound
         fails += _storm_fails(
-            _vertical_depth(src[row, _DEPTH, s], cos_t, slope_normal), n_depths, z_min, sin_t,
-            cos_t, wt_depth, intensity, src[row, _COND, s] / 86400.0, src[row, _DIFF, s],
+            depth, n_depths, z_min, sin_t, cos_t,
+            _storm_table_depth(wt_depth, inflow, src[row, _COND, s], depth, sin_t, cos_t),
+            intensity, src[row, _COND, s] / 86400.0, src[row, _DIFF, s],
             duration, steady_ratio, horizon, src[row, _COH, s] + src[row, _ROOT, s],
             src[row, _TAN, s], src[row, _GAMMA, s], table, x0, inv_h, eps,
         )
@@ -95,7 +101,8 @@ def _failure_probability_kernel(slope, sca, unit, prep, draws, unit_mode, rain_k
                                 run_key, p_out, se_out):
     n_par = prep.shape[1]
     n = slope.size
-    q = rain[0]
+    q = _area_rate(rain_kind, rain)
+    needs_area = rain_kind == _STEADY or rain[2] < 0.0
     n_chunks = (n + _CHUNK - 1) // _CHUNK
     for c in prange(n_chunks):
         vals = np.empty((1, n_par + 1, _BLOCK), dtype=np.float64)
@@ -103,7 +110,7 @@ def _failure_probability_kernel(slope, sca, unit, prep, draws, unit_mode, rain_k
         for i in range(c * _CHUNK, min(n, (c + 1) * _CHUNK)):
             u = unit[i]
             th = slope[i]
-            a = sca[i] if rain_kind == _STEADY else 0.0
+            a = sca[i] if needs_area else 0.0
             if u < 0 or math.isnan(th) or math.isnan(a):
                 p_out[i] = math.nan
                 se_out[i] = math.nan
@@ -150,8 +157,11 @@ def failure_probability(
     slope_deg : array_like, shape (rows, cols)
         Slope angle, degrees in [0, 90); NaN is nodata.
     sca_m : array_like, shape (rows, cols), or None
-        Specific catchment area a, m (>= 0); needed for steady rain, ignored
-        for a storm. NaN is nodata.
+        Specific catchment area a, m (>= 0); needed for steady rain and for
+        a storm with ``antecedent_mm_per_day`` (each sample's initial water
+        table is then the steady one of that recharge,
+        :func:`slopescreen.hydrology.antecedent_table_depth`, with the drawn
+        K_s and soil depth), ignored otherwise. NaN is nodata.
     unit_index : array_like of int, shape (rows, cols)
         Row of ``table`` holding each cell's soil unit; -1 is nodata.
     table : numpy.ndarray, shape (n_units, 7, 5)

@@ -60,6 +60,10 @@ def _has_storm(manifest) -> bool:
     return any(c.get("steady_mm_per_day") is None for c in manifest.get("rain") or [])
 
 
+def _has_antecedent_storm(manifest) -> bool:
+    return any(c.get("antecedent_mm_per_day") is not None for c in manifest.get("rain") or [])
+
+
 def _has_clusters(manifest) -> bool:
     return any(p.get("key") == "cluster_labels" for p in manifest.get("products") or [])
 
@@ -91,6 +95,13 @@ CHANGES = (
         "and the probabilities used the base only, so a cell could show FS < 1 with a "
         "probability of failure of 0.",
         "Storm response (Iverson 2000)", _has_storm),
+    MethodChange(
+        "antecedent_table",
+        "A storm case with antecedent_mm_per_day starts from the steady water table of that "
+        "background recharge in each cell, so hollows start wetter than spurs of the same "
+        "slope; before, a storm took one water-table depth under every cell and its map did "
+        "not depend on the contributing area.",
+        "Storm response (Iverson 2000)", _has_antecedent_storm),
     MethodChange(
         "cluster_proof",
         "A failure cluster that touches a margin face charged by its modular lower bound (a "

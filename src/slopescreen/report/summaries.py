@@ -311,8 +311,12 @@ def rain_text(case: dict) -> str:
             return "dry: no recharge (0 mm/day), the soil drained"
         return f"steady recharge {case['steady_mm_per_day']:g} mm/day"
     total = case["storm_mm_per_h"] * case["duration_h"]
-    return (f"storm of {case['storm_mm_per_h']:g} mm/h for {case['duration_h']:g} h ({total:g} mm), "
-            f"water table {case['water_table_depth_m']:g} m below the surface before it")
+    storm = f"storm of {case['storm_mm_per_h']:g} mm/h for {case['duration_h']:g} h ({total:g} mm)"
+    if case.get("antecedent_mm_per_day") is not None:
+        return (f"{storm}, starting from the steady water table of "
+                f"{case['antecedent_mm_per_day']:g} mm/day of background recharge (shallower in "
+                f"hollows than on spurs)")
+    return f"{storm}, water table {case['water_table_depth_m']:g} m below the surface before it"
 
 
 def _num(v) -> str:

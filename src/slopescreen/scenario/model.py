@@ -76,7 +76,10 @@ class Soil:
 class RainCase:
     """One ``[[rain]]`` case: steady recharge or a storm (Iverson 2000).
 
-    Exactly one of ``steady_mm_per_day`` and ``storm_mm_per_h`` is set.
+    Exactly one of ``steady_mm_per_day`` and ``storm_mm_per_h`` is set; a
+    storm has ``duration_h`` and exactly one of ``water_table_depth_m`` (one
+    water table under every cell) and ``antecedent_mm_per_day`` (the steady
+    water table of a background recharge, per cell).
     """
 
     name: str
@@ -84,6 +87,7 @@ class RainCase:
     storm_mm_per_h: float | None = None
     duration_h: float | None = None
     water_table_depth_m: float | None = None
+    antecedent_mm_per_day: float | None = None
 
     @property
     def is_storm(self) -> bool:

@@ -96,7 +96,7 @@ def _parse_rain(table, ctx: Ctx, base: Path):
     for i, item in enumerate(table):
         c = ctx.child(i)
         check_keys(item, c, {"name", "steady_mm_per_day", "storm_mm_per_h", "duration_h",
-                             "water_table_depth_m"}, required=("name",))
+                             "water_table_depth_m", "antecedent_mm_per_day"}, required=("name",))
         name = get_string(item, "name", c, required=True)
         if name in names:
             raise c.child("name").fail(f"rain case name {name!r} is used twice; names must differ")
@@ -105,22 +105,29 @@ def _parse_rain(table, ctx: Ctx, base: Path):
         storm = get_number(item, "storm_mm_per_h", c, low=0.0, high=1000.0, low_open=True)
         if steady is None and storm is None:
             raise c.fail("give steady_mm_per_day (steady recharge) or storm_mm_per_h with "
-                         "duration_h and water_table_depth_m (a storm)")
+                         "duration_h and water_table_depth_m or antecedent_mm_per_day (a storm)")
         if steady is not None and storm is not None:
             raise c.child("storm_mm_per_h").fail(
                 "a rain case is either steady (steady_mm_per_day) or a storm (storm_mm_per_h), not both")
         if steady is not None:
-            for key in ("duration_h", "water_table_depth_m"):
+            for key in ("duration_h", "water_table_depth_m", "antecedent_mm_per_day"):
                 if key in item:
                     raise c.child(key).fail("applies only to a storm case (storm_mm_per_h)")
             cases.append(RainCase(name=name, steady_mm_per_day=steady))
         else:
             duration = get_number(item, "duration_h", c, low=0.0, high=24.0 * 30, low_open=True,
                                   required=True)
-            table_depth = get_number(item, "water_table_depth_m", c, low=0.0, high=20.0,
-                                     required=True)
+            if ("water_table_depth_m" in item) == ("antecedent_mm_per_day" in item):
+                key = "antecedent_mm_per_day" if "antecedent_mm_per_day" in item else (
+                    "water_table_depth_m")
+                raise c.child(key).fail(
+                    "a storm needs exactly one of water_table_depth_m (one water table under "
+                    "every cell) and antecedent_mm_per_day (the steady water table of that "
+                    "recharge, per cell)")
+            table_depth = get_number(item, "water_table_depth_m", c, low=0.0, high=20.0)
+            ante = get_number(item, "antecedent_mm_per_day", c, low=0.0, high=5000.0)
             cases.append(RainCase(name=name, storm_mm_per_h=storm, duration_h=duration,
-                                  water_table_depth_m=table_depth))
+                                  water_table_depth_m=table_depth, antecedent_mm_per_day=ante))
     slugs = [r.slug for r in cases]
     if len(set(slugs)) != len(slugs):
         raise ctx.fail("two rain case names give the same file name; make them differ in letters or digits")
