@@ -159,6 +159,16 @@ def main():
     print(f"  {t:7.2f} s  {storm_slope.size * args.samples / t / 1e6:8.2f} M samples x cells/s  "
           f"mean P_f {np.nanmean(ps):.4f}")
 
+    # the same with each cell's initial water table from 2 mm/day of antecedent recharge
+    storm_sca = synthetic(args.storm_cells, seed=3)[1]
+    (ps, _), t = timed(failure_probability, storm_slope, storm_sca, storm_units, table,
+                       StormRain(15.0, 8.0, antecedent_mm_per_day=2.0), samples=args.samples,
+                       seed=7, n_depths=20, min_failure_depth_m=0.3)
+    print(f"\nMonte Carlo, storm from an antecedent water table (2 mm/day), 20 depths, "
+          f"{storm_slope.size:.3g} cells x {args.samples} samples")
+    print(f"  {t:7.2f} s  {storm_slope.size * args.samples / t / 1e6:8.2f} M samples x cells/s  "
+          f"mean P_f {np.nanmean(ps):.4f}")
+
     rss = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024
     print(f"\npeak RSS {rss:.0f} MB")
 
