@@ -198,7 +198,13 @@ def probability(slope, aspect, wet, labels, samples=400):
     sca = np.full(labels.shape, 80.0)
     cases = {"fixed wetness": dict(wetness=wet),
              "steady rain": dict(rain=SteadyRain(60.0), sca_m=sca),
-             "storm": dict(rain=StormRain(15.0, 12.0, 0.8))}
+             "storm": dict(rain=StormRain(15.0, 12.0, 0.8)),
+             # the pipeline's depth rule (docs/methods.md, "Storm response (Iverson 2000)")
+             "storm, 20 depths": dict(rain=StormRain(15.0, 12.0, 0.8), n_depths=20,
+                                      min_failure_depth_m=0.3),
+             "storm, 20 depths, antecedent 2 mm/day": dict(
+                 rain=StormRain(15.0, 12.0, antecedent_mm_per_day=2.0), sca_m=sca, n_depths=20,
+                 min_failure_depth_m=0.3)}
     small = np.zeros(labels.shape, np.int32)
     small[:3, :3] = 1
     cells = int((labels > 0).sum())
