@@ -8,6 +8,7 @@ convergence proxy. Prints seconds, cells per second and the counts that matter.
     python benchmarks/bench_clusters.py                 # 1000 x 1000 failing map, 400 x 400 bound map
     python benchmarks/bench_clusters.py --bound-cells 1000
     python benchmarks/bench_clusters.py --only-size     # size-resolved program only
+    python benchmarks/bench_clusters.py --only-probability   # cluster Monte Carlo only
 """
 
 import argparse
@@ -56,6 +57,8 @@ def main():
     ap.add_argument("--size-time-limit", type=float, default=10.0,
                     help="MILP time limit per window and band, s")
     ap.add_argument("--only-size", action="store_true", help="run the size-resolved part only")
+    ap.add_argument("--only-probability", action="store_true",
+                    help="run the cluster Monte Carlo (on the failing clusters) only")
     args = ap.parse_args()
 
     # warm-up: numba compilation
@@ -65,6 +68,14 @@ def main():
         size_resolved(args)
         return
 
+    if args.only_probability:
+        # the clusters of the size-resolved part's grid, as in a whole run
+        n = args.size_cells
+        slope, aspect, wet = (v[:n, :n] for v in terrain(max(n, 64)))
+        res = failure_clusters(slope, 1.2, wet, dx=5.0, dy=5.0, aspect_deg=aspect, bound=False,
+                               **SOIL)
+        probability(slope, aspect, wet, res.labels)
+        return
     n = args.cells
     slope, aspect, wet = terrain(n)
     t0 = time.perf_counter()

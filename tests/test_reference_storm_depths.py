@@ -194,6 +194,35 @@ def test_pruned_failure_decision_equals_the_plain_depth_loop():
     assert checked > 5900
 
 
+def test_pruned_least_depth_equals_the_plain_depth_loop():
+    # brute force: the plain loop over every depth (_storm_min_point) against the pruned,
+    # tabulated-peak search of the cluster Monte Carlo (_storm_least_depth): the same least FS,
+    # the same depth and the same head on every random case, with and without a horizon,
+    # cohesion down to zero (ties of capped heads) and antecedent-like deep tables
+    from slopescreen._kernels.iverson import _head_point
+    from slopescreen._kernels.storm import _storm_least_depth, _storm_min_point, peak_table
+
+    peak = peak_table()
+    rng = np.random.default_rng(9)
+    for i in range(6000):
+        a = math.radians(rng.uniform(10.0, 50.0))
+        horizon = math.inf if rng.random() < 0.7 else rng.uniform(0.5, 80.0) * 3600.0
+        args = (rng.uniform(0.1, 3.0), int(rng.choice([1, 5, 20])), rng.choice([0.0, 0.3, 0.6]),
+                math.sin(a), math.cos(a), rng.uniform(0.0, 2.0),
+                rng.uniform(0.0, 60.0) / 3.6e6 if i % 10 else 0.0,
+                rng.uniform(0.1, 5.0) / 86400.0, 10 ** rng.uniform(-6, -3),
+                rng.uniform(1.0, 60.0) * 3600.0, 0.0, horizon)
+        cohesion = 0.0 if i % 7 == 0 else rng.uniform(0.0, 8.0)
+        strength = (cohesion, math.tan(math.radians(rng.uniform(25.0, 42.0))),
+                    rng.uniform(16.0, 21.0))
+        fs, z, t, _ = _storm_min_point(*args, *strength, False, False)
+        psi = _head_point(z, t, args[4], args[5], args[6], args[7], args[8], args[9],
+                          args[10])[0]
+        got = _storm_least_depth(*args, *strength, *peak)
+        assert got[0] == fs and got[1] == z, (i, got, fs, z)
+        assert got[2] == pytest.approx(psi, rel=1e-12, abs=1e-12)
+
+
 def test_tabulated_peak_head_matches_a_bounded_search_within_its_bound():
     # the peak over t* of Iverson's (2000) R(t*) - R(t* - T*) found by scipy's bounded Brent
     # search (an independent optimiser) against the table's interpolated value; the table's

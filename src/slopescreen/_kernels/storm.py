@@ -91,6 +91,43 @@ def peak_table():
 
 
 @njit
+def _any_nan(soil_depth, sin_a, d, intensity, k, d0, duration, cohesion, tan_phi, gamma,
+             steady_ratio):
+    """True where any input of a storm least-FS search is NaN (nodata)."""
+    return (
+        math.isnan(soil_depth) or math.isnan(sin_a) or math.isnan(d) or math.isnan(intensity)
+        or math.isnan(k) or math.isnan(d0) or math.isnan(duration) or math.isnan(cohesion)
+        or math.isnan(tan_phi) or math.isnan(gamma) or math.isnan(steady_ratio)
+    )
+
+
+@njit
+def _depth_span(soil_depth, n_depths, z_min):
+    """(top, n) of :func:`_failure_depth`: the base only where the soil is no deeper than z_min."""
+    if soil_depth <= z_min:
+        return 0.0, 1
+    return z_min, n_depths
+
+
+@njit
+def _tabled_rise(z, cos_a, d0, duration, horizon, ratio, table, x0, inv_h, eps):
+    """Z (I/K) P(T*) at depth Z from the peak table, or -1 where the table cannot be used.
+
+    -1 where T* lies outside the table or the peak may come after the
+    horizon (its tabulated time widened by ``eps``); the rise has relative
+    error at most ``eps`` (:func:`peak_table`).
+    """
+    tz = z * z / (4.0 * d0 * cos_a * cos_a)
+    x = math.log(duration / tz)
+    if not (x > _LOG_TS_LO and x < _LOG_TS_HI):
+        return -1.0
+    if horizon != _INF and math.exp(_table_at(table, x0, inv_h, 1, x)) * duration * (
+            1.0 + eps) > horizon:
+        return -1.0
+    return z * ratio * math.exp(_table_at(table, x0, inv_h, 0, x))
+
+
+@njit
 def _failure_depth(soil_depth, top, j, n):
     """The j-th of n failure depths between ``top`` (excluded) and the soil base."""
     if j == n:
@@ -114,21 +151,14 @@ def _storm_min_point(soil_depth, n_depths, z_min, sin_a, cos_a, d, intensity, k,
     cap bound, the time returned is the first at which the head reaches the
     cap (the FS stays at its least value from then until the head falls).
     """
-    if (
-        math.isnan(soil_depth) or math.isnan(sin_a) or math.isnan(d) or math.isnan(intensity)
-        or math.isnan(k) or math.isnan(d0) or math.isnan(duration) or math.isnan(cohesion)
-        or math.isnan(tan_phi) or math.isnan(gamma) or math.isnan(steady_ratio)
-    ):
+    if _any_nan(soil_depth, sin_a, d, intensity, k, d0, duration, cohesion, tan_phi, gamma,
+                steady_ratio):
         return math.nan, math.nan, math.nan, False
     best_fs = _INF
     best_z = math.nan
     best_t = math.nan
     best_cap = False
-    top = z_min
-    n = n_depths
-    if soil_depth <= z_min:
-        top = 0.0
-        n = 1
+    top, n = _depth_span(soil_depth, n_depths, z_min)
     for j in range(1, n + 1):
         z = _failure_depth(soil_depth, top, j, n)
         t, psi, capped = _peak_head(z, cos_a, d, intensity, k, d0, duration, steady_ratio,
@@ -172,20 +202,11 @@ def _storm_fails(soil_depth, n_depths, z_min, sin_a, cos_a, d, intensity, k, d0,
     decision is not the same over the table's error bound (or T* or the
     horizon fall outside it) is the peak solved exactly.
     """
-    if (
-        math.isnan(soil_depth) or math.isnan(sin_a) or math.isnan(d) or math.isnan(intensity)
-        or math.isnan(k) or math.isnan(d0) or math.isnan(duration) or math.isnan(cohesion)
-        or math.isnan(tan_phi) or math.isnan(gamma) or math.isnan(steady_ratio)
-    ):
+    if _any_nan(soil_depth, sin_a, d, intensity, k, d0, duration, cohesion, tan_phi, gamma,
+                steady_ratio):
         return False
-    beta = cos_a * cos_a - steady_ratio
-    if beta < 0.0:
-        beta = 0.0
-    top = z_min
-    n = n_depths
-    if soil_depth <= z_min:
-        top = 0.0
-        n = 1
+    beta = max(0.0, cos_a * cos_a - steady_ratio)
+    top, n = _depth_span(soil_depth, n_depths, z_min)
     ratio = min(intensity, k) / k
     raining = intensity > 0.0 and duration > 0.0
     for j in range(n, 0, -1):
@@ -195,24 +216,73 @@ def _storm_fails(soil_depth, n_depths, z_min, sin_a, cos_a, d, intensity, k, d0,
         # (c' >= 0), so when the base-most depth left holds, every shallower one does
         if _storm_fs_point(z, cap, sin_a, cos_a, cohesion, tan_phi, gamma, False) >= 1.0:
             return False
+        rise = -1.0
         if raining:
-            tz = z * z / (4.0 * d0 * cos_a * cos_a)
-            x = math.log(duration / tz)
-            if x > _LOG_TS_LO and x < _LOG_TS_HI and (
-                    horizon == _INF
-                    or math.exp(_table_at(table, x0, inv_h, 1, x)) * duration * (1.0 + eps)
-                    <= horizon):
-                rise = z * ratio * math.exp(_table_at(table, x0, inv_h, 0, x))
-                base = beta * (z - d)
-                psi_hi = min(cap, base + rise * (1.0 + eps))
-                if _storm_fs_point(z, psi_hi, sin_a, cos_a, cohesion, tan_phi, gamma,
-                                   False) >= 1.0:
-                    continue
-                psi_lo = min(cap, base + rise * (1.0 - eps))
-                if _storm_fs_point(z, psi_lo, sin_a, cos_a, cohesion, tan_phi, gamma,
-                                   False) < 1.0:
-                    return True
+            rise = _tabled_rise(z, cos_a, d0, duration, horizon, ratio, table, x0, inv_h, eps)
+        if rise >= 0.0:
+            base = beta * (z - d)
+            psi_hi = min(cap, base + rise * (1.0 + eps))
+            if _storm_fs_point(z, psi_hi, sin_a, cos_a, cohesion, tan_phi, gamma,
+                               False) >= 1.0:
+                continue
+            psi_lo = min(cap, base + rise * (1.0 - eps))
+            if _storm_fs_point(z, psi_lo, sin_a, cos_a, cohesion, tan_phi, gamma,
+                               False) < 1.0:
+                return True
         _, psi, _ = _peak_head(z, cos_a, d, intensity, k, d0, duration, steady_ratio, horizon)
         if _storm_fs_point(z, psi, sin_a, cos_a, cohesion, tan_phi, gamma, False) < 1.0:
             return True
     return False
+
+
+@njit
+def _storm_least_depth(soil_depth, n_depths, z_min, sin_a, cos_a, d, intensity, k, d0,
+                       duration, steady_ratio, horizon, cohesion, tan_phi, gamma, table, x0,
+                       inv_h, eps):
+    """(fs, depth, psi) of :func:`_storm_min_point` (no suction), found with fewer peaks.
+
+    The same least FS over the failure depths, the same depth (the
+    shallowest of exact ties) and the exact peak head there; only depths
+    that can still beat the best so far get an exact peak. Depths are tried
+    from the base up. Where the capped head psi = beta Z leaves a depth above
+    the best FS (and c' >= 0), no shallower depth can reach it: with the head
+    at its cap FS falls with Z (a relative margin of 1e-9 covers rounding
+    where it is the same at every depth). Where the tabulated peak (:func:`peak_table`)
+    widened by its error bound leaves the depth above the best FS, the depth
+    is passed over without solving its peak.
+    """
+    if _any_nan(soil_depth, sin_a, d, intensity, k, d0, duration, cohesion, tan_phi, gamma,
+                steady_ratio):
+        return math.nan, math.nan, math.nan
+    beta = max(0.0, cos_a * cos_a - steady_ratio)
+    top, n = _depth_span(soil_depth, n_depths, z_min)
+    ratio = min(intensity, k) / k
+    raining = intensity > 0.0 and duration > 0.0
+    best_fs = _INF
+    best_z = math.nan
+    best_psi = math.nan
+    for j in range(n, 0, -1):
+        z = _failure_depth(soil_depth, top, j, n)
+        cap = beta * z
+        fs_cap = _storm_fs_point(z, cap, sin_a, cos_a, cohesion, tan_phi, gamma, False)
+        if fs_cap > best_fs:
+            # the margin keeps the rounding of an FS that is the same at every depth
+            # (c' = 0, capped heads) from ending the search before the shallowest tie
+            if cohesion >= 0.0 and fs_cap > best_fs * (1.0 + 1e-9):
+                break
+            continue
+        rise = -1.0
+        if raining:
+            rise = _tabled_rise(z, cos_a, d0, duration, horizon, ratio, table, x0, inv_h, eps)
+        if rise >= 0.0:
+            psi_hi = min(cap, beta * (z - d) + rise * (1.0 + eps))
+            if _storm_fs_point(z, psi_hi, sin_a, cos_a, cohesion, tan_phi, gamma,
+                               False) > best_fs:
+                continue
+        _, psi, _ = _peak_head(z, cos_a, d, intensity, k, d0, duration, steady_ratio, horizon)
+        fs = _storm_fs_point(z, psi, sin_a, cos_a, cohesion, tan_phi, gamma, False)
+        if fs <= best_fs:
+            best_fs = fs
+            best_z = z
+            best_psi = psi
+    return best_fs, best_z, best_psi

@@ -70,8 +70,7 @@ from .._kernels.soil_table import (
     _ROOT,
     _checked_table,
 )
-from .._kernels.iverson import _head_point
-from .._kernels.storm import _storm_min_point
+from .._kernels.storm import _storm_least_depth, peak_table
 from .._kernels.unit_draws import _UNIT_DOMAIN, _prepare_table, _unit_draws_kernel
 from .._kernels.wetness import _storm_table_depth, _wetness_point
 from .._numba import njit, njit_parallel, prange
@@ -181,8 +180,12 @@ _FIXED = -1  # rain kind: the wetness raster is held
 
 @njit
 def _sample_values(out, r, c, s, unit, draws, lateral, slope, sca, wet_fixed, rain_kind, rain,
-                   down, slope_normal, n_depths, z_min):
-    """Face inputs of cell (r, c) in sample s (see ``_face_force``)."""
+                   down, slope_normal, n_depths, z_min, peak):
+    """Face inputs of cell (r, c) in sample s (see ``_face_force``).
+
+    Storm: the depth and head of the least FS over the failure depths, from
+    the drawn parameters (``peak`` is :func:`~slopescreen._kernels.storm.peak_table`).
+    """
     u = unit[r, c]
     th = _rad(slope[r, c])
     cos_t = math.cos(th)
@@ -195,11 +198,11 @@ def _sample_values(out, r, c, s, unit, draws, lateral, slope, sca, wet_fixed, ra
         # the case's water table, or the steady one of its antecedent recharge (rain[2] < 0)
         d = _storm_table_depth(rain[2], rain[5] * sca[r, c] if rain[2] < 0.0 else 0.0,
                                draws[u, _COND, s], z, sin_t, cos_t)
-        _, z, t, _ = _storm_min_point(
-            z, n_depths, z_min, sin_t, cos_t, d, rain[0], k, draws[u, _DIFF, s],
-            rain[1], rain[3], rain[4], draws[u, _COH, s] + draws[u, _ROOT, s],
-            math.tan(_rad(draws[u, _PHI, s])), draws[u, _GAMMA, s], False, False)
-        psi, _ = _head_point(z, t, cos_t, d, rain[0], k, draws[u, _DIFF, s], rain[1], rain[3])
+        _, z, psi = _storm_least_depth(
+            z, n_depths, z_min, sin_t, cos_t, d, rain[0], k, draws[u, _DIFF, s], rain[1],
+            rain[3], rain[4], draws[u, _COH, s] + draws[u, _ROOT, s],
+            math.tan(_rad(draws[u, _PHI, s])), draws[u, _GAMMA, s], peak[0], peak[1], peak[2],
+            peak[3])
         w = min(1.0, max(0.0, psi / (z * cos_t * cos_t)))
     else:
         w = wet_fixed[r, c]
@@ -218,7 +221,7 @@ def _sample_values(out, r, c, s, unit, draws, lateral, slope, sca, wet_fixed, ra
 
 @njit
 def _values_at(cache, stamp, r, c, r0, c0, s, unit, draws, lateral, slope, sca, wet_fixed,
-               rain_kind, rain, down, slope_normal, n_depths, z_min):
+               rain_kind, rain, down, slope_normal, n_depths, z_min, peak):
     """The face inputs of cell (r, c) in sample s, computed once per sample and cluster.
 
     ``cache`` and ``stamp`` cover the cluster's bounding box with a one-cell
@@ -230,7 +233,7 @@ def _values_at(cache, stamp, r, c, r0, c0, s, unit, draws, lateral, slope, sca, 
     out = cache[i, j]
     if stamp[i, j] != s:
         _sample_values(out, r, c, s, unit, draws, lateral, slope, sca, wet_fixed, rain_kind,
-                       rain, down, slope_normal, n_depths, z_min)
+                       rain, down, slope_normal, n_depths, z_min, peak)
         stamp[i, j] = s
     return out
 
@@ -238,7 +241,7 @@ def _values_at(cache, stamp, r, c, r0, c0, s, unit, draws, lateral, slope, sca, 
 @njit_parallel
 def _cluster_fs_kernel(ptr, cells_r, cells_c, slope, down, unit, valid, sca, wet_fixed,
                        rain_kind, rain, draws, lateral, dx, dy, eta, jaky_full, slope_normal,
-                       free_nodata, n_depths, z_min, out):
+                       free_nodata, n_depths, z_min, peak, out):
     rows, cols = unit.shape
     n_c = ptr.size - 1
     samples = out.shape[1]
@@ -267,7 +270,8 @@ def _cluster_fs_kernel(ptr, cells_r, cells_c, slope, down, unit, valid, sca, wet
                 r = cells_r[t]
                 c = cells_c[t]
                 own = _values_at(cache, stamp, r, c, r0, c0, s, unit, draws, lateral, slope, sca,
-                                 wet_fixed, rain_kind, rain, down, slope_normal, n_depths, z_min)
+                                 wet_fixed, rain_kind, rain, down, slope_normal, n_depths, z_min,
+                                 peak)
                 d_i, r_i, _ = _basal_forces(slope[r, c], own[0], own[1], own[2], own[3], own[4],
                                             draws[unit[r, c], _ROOT, s], own[6], area)
                 num += r_i
@@ -286,7 +290,7 @@ def _cluster_fs_kernel(ptr, cells_r, cells_c, slope, down, unit, valid, sca, wet
                     if has_nb:
                         face_nb = _values_at(cache, stamp, rr, cc, r0, c0, s, unit, draws,
                                              lateral, slope, sca, wet_fixed, rain_kind, rain,
-                                             down, slope_normal, n_depths, z_min)
+                                             down, slope_normal, n_depths, z_min, peak)
                     length = dy if k % 2 == 0 else dx
                     w, h = _face_force(k, length, own, face_nb, has_nb, eta, jaky_full)
                     num += w
@@ -485,7 +489,7 @@ def cluster_failure_probability(clusters, slope_deg, aspect_deg, unit_index=None
     _cluster_fs_kernel(ptr, rr, cc, slope, down, unit.astype(np.int64), valid, sca, wet,
                        rain_kind, rain_vec, draws, lateral, dx, dy, eta, bool(jaky_full),
                        _validate.depth_measured(unc.depth_measured), free_nodata, unc.n_depths,
-                       unc.min_failure_depth_m, out)
+                       unc.min_failure_depth_m, peak_table(), out)
     p = (out < 1.0).mean(axis=1) if ids.size else np.zeros(0)
     se = np.sqrt(p * (1.0 - p) / n)
     med = np.median(out, axis=1) if ids.size else np.zeros(0)
