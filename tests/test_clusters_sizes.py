@@ -108,25 +108,46 @@ def test_band_without_any_set_and_bad_inputs():
 def test_size_resolved_table_and_untouched_inputs():
     # lateral roots of 8 kPa keep every face submodular on the 40 degree block (phi' 34)
     f = _forces(steep_deg=40.0, lateral_root_cohesion_kpa=8.0)
+    shape = f.valid.shape
+    kw = dict(min_area_m2=50.0, max_area_m2=600.0, bands=2, time_limit_s=5.0)
     before = [a.copy() for a in (f.driving, f.resisting, f.face_resistance, f.face_thrust)]
-    res = size_resolved_clusters(f, candidates=[(0, 12, 0, 12), (2, 10, 2, 10)],
-                                 min_area_m2=50.0, max_area_m2=600.0, bands=2, time_limit_s=5.0)
+    # the whole grid, a window inside it, a window that cuts the large band's cluster of the
+    # whole grid, and the whole grid again
+    windows = [(0, 12, 0, 12), (2, 10, 2, 10), (2, 7, 2, 10), (0, 12, 0, 12)]
+    res = size_resolved_clusters(f, candidates=windows, **kw)
     for a, b in zip(before, (f.driving, f.resisting, f.face_resistance, f.face_thrust)):
         np.testing.assert_array_equal(a, b)
     assert tuple(res.table) == SIZE_COLUMNS
-    # the large band's answer of the inner window is the outer window's cluster: listed once
-    assert len(res.masks) == 3 and (res.table["candidate"] == [0, 0, 1]).all()
-    assert (res.table["band"] == [0, 1, 0]).all()
-    alone = size_resolved_clusters(f, candidates=[(2, 10, 2, 10)], min_area_m2=50.0,
-                                   max_area_m2=600.0, bands=2, time_limit_s=5.0)
-    np.testing.assert_array_equal(alone.grid_mask(1, f.valid.shape),
-                                  res.grid_mask(1, f.valid.shape))
-    keys = {(int(b), res.grid_mask(i, f.valid.shape).tobytes())
-            for i, b in enumerate(res.table["band"])}
+    # the listing rule of size_resolved_clusters' docstring, applied here to each window's own
+    # answers (every window searched alone): a cluster that already answers a band for an
+    # earlier window is left out; windows keep their order
+    expected, seen = [], set()
+    for ci, window in enumerate(windows[:3]):
+        alone = size_resolved_clusters(f, candidates=[window], **kw)
+        assert (alone.table["band"] == [0, 1]).all() and (alone.table["n_cells"] > 0).all()
+        for i in range(2):
+            mask = alone.grid_mask(i, shape)
+            key = (i, mask.tobytes())
+            if key not in seen:
+                seen.add(key)
+                expected.append((ci, i, mask, float(alone.table["fs"][i])))
+    assert len(res.masks) == len(expected)
+    for i, (ci, band, mask, fs) in enumerate(expected):
+        assert res.table["candidate"][i] == ci and res.table["band"][i] == band
+        np.testing.assert_array_equal(res.grid_mask(i, shape), mask)
+        assert res.table["fs"][i] == pytest.approx(fs, rel=1e-12)
+    # whatever the answers, a repeated window adds no row: each of its answers is one of the
+    # first listing's
+    assert 3 not in res.table["candidate"]
+    # the instance exercises both branches of the rule: some later window's answer coincides
+    # with an earlier one (6 answers of the 3 windows, fewer listed) and some does not (the
+    # window of rows 2..6 holds only part of the whole grid's large-band cluster, rows 3..7)
+    assert len(expected) < 6 and (np.asarray([e[0] for e in expected]) > 0).any()
+    keys = {(int(b), res.grid_mask(i, shape).tobytes()) for i, b in enumerate(res.table["band"])}
     assert len(keys) == len(res.masks)     # no cluster twice in one band
     assert res.table["proven"].all()
     assert (res.table["area_m2"] == res.table["n_cells"] * 25.0).all()
-    assert not res.grid_mask(0, f.valid.shape)[0, 0]   # nodata never joins
+    assert not any(res.grid_mask(i, shape)[0, 0] for i in range(len(res.masks)))  # nodata
 
 
 def test_stage_with_size_resolved_search_and_probability():

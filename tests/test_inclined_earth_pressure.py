@@ -2,7 +2,9 @@
 
 Oracles: the classical inclined Rankine formula for a cohesionless backfill, the
 Mazindrani-Ganjali (1997) coefficient in its normalised paper form c / (gamma z) integrated by
-scipy.integrate.quad, level Rankine at beta = 0, and a hand block balance of an inclined slab.
+scipy.integrate.quad, level Rankine at beta = 0, and a hand block balance of an inclined slab
+whose margin is charged on the 16 directed cell pairs with Cauchy-Crofton weights (Boykov and
+Kolmogorov 2003, from memory; force model of Milledge et al. 2014).
 """
 
 import math
@@ -12,6 +14,7 @@ import pytest
 from scipy import integrate
 
 from earth_pressure_oracle import inclined_rankine
+from pair_oracle import STEPS, pair_geometry
 from slopescreen.clusters import ClusterOptions, cluster_factor_of_safety, cluster_forces
 from slopescreen.clusters.forces import face_pressures
 from slopescreen.errors import InputError
@@ -130,43 +133,115 @@ def test_steeper_than_phi_no_passive_and_conjugate_active():
     assert at["active"] / 9.0 == pytest.approx(math.cos(math.radians(35.0)), rel=1e-3)
 
 
-def _hand_slab(theta, phi, gamma, z, c_lat, eta, dx, dy, nr, nc, toe_free):
-    """Block balance of a dry cohesionless nr x nc slab facing south on a plane at theta < phi,
-    written out by hand: thrusts parallel to the ground add to the driving force in full."""
-    t, p = math.radians(theta), math.radians(phi)
-    area = nr * nc * dx * dy
-    drive = gamma * z * area * math.sin(t)
-    basal = gamma * z * math.cos(t) ** 2 * math.tan(p) * area / math.cos(t)
+def _pair_charges(theta, phi, gamma, z, c_lat, eta, dx, dy):
+    """Per step k, (W, H) of a pair on a dry cohesionless plane facing south, written out by hand.
+
+    Per metre (inclined Rankine, closed form; thrusts parallel to the ground): toe eta K_p s,
+    head c_lat z, side c_lat z + (1 - sin phi) tan phi s, active K_a s with s = gamma z^2 / 2;
+    pair k with c = e_k . downslope: W = a_k [c+^2 toe + c-^2 head + (1 - c^2) side] and
+    H = a_k c-^2 P_a (docs/methods.md, "Multi-cell failure clusters").
+    """
+    p = math.radians(phi)
     ka, kp = inclined_rankine(theta, phi)
     sv = gamma * z * z / 2
-    width, length = nc * dx, nr * dy
-    toe = 0.0 if toe_free else eta * kp * sv * width
-    head = c_lat * z * width
-    sides = 2 * length * (c_lat * z + (1 - math.sin(p)) * math.tan(p) * sv)
-    return (basal + toe + head + sides) / (drive + ka * sv * width)
+    toe, head = eta * kp * sv, c_lat * z
+    side = c_lat * z + (1 - math.sin(p)) * math.tan(p) * sv
+    out = []
+    for ue, un, a_k in pair_geometry(dx, dy):
+        c = -un                                # downslope (east, north) = (0, -1)
+        cp, cm = max(c, 0.0), max(-c, 0.0)
+        out.append((a_k * (cp * cp * toe + cm * cm * head + (1 - c * c) * side),
+                    a_k * cm * cm * ka * sv))
+    return out
+
+
+def _partners(mask, nodata, k):
+    """(off-grid, nodata, valid outside) counts of the pairs of step k leaving ``mask``."""
+    rows, cols = mask.shape
+    dr, dc = STEPS[k]
+    rr, cc = np.nonzero(mask)
+    r2, c2 = rr + dr, cc + dc
+    on = (r2 >= 0) & (r2 < rows) & (c2 >= 0) & (c2 < cols)
+    hole = np.zeros(rr.size, bool)
+    hole[on] = nodata[r2[on], c2[on]]
+    member = np.zeros(rr.size, bool)
+    member[on] = mask[r2[on], c2[on]]
+    return int((~on).sum()), int(hole.sum()), int((on & ~hole & ~member).sum())
+
+
+def _hand_slab(theta, phi, gamma, z, c_lat, eta, dx, dy, mask, nodata, free):
+    """Block balance of a dry cohesionless slab (cells of ``mask``) facing south on a plane at
+    theta < phi, written out by hand: basal terms per cell, margin pair by pair; a pair towards
+    nodata is free (W = H = 0) when ``free``, else charged like any other (uniform plane, so the
+    cell's own values equal the pair mean). Returns FS and the partner counts per class."""
+    t, p = math.radians(theta), math.radians(phi)
+    area = int(mask.sum()) * dx * dy
+    drive = gamma * z * area * math.sin(t)
+    basal = gamma * z * math.cos(t) ** 2 * math.tan(p) * area / math.cos(t)
+    margin = thrust = 0.0
+    seen = np.zeros(3, int)
+    for k, (w_k, h_k) in enumerate(_pair_charges(theta, phi, gamma, z, c_lat, eta, dx, dy)):
+        off, hole, out = _partners(mask, nodata, k)
+        seen += (off, hole, out)
+        n = off + out + (0 if free else hole)
+        margin += n * w_k
+        thrust += n * h_k
+    return (basal + margin) / (drive + thrust), seen
 
 
 @pytest.mark.parametrize("rule", ["free", "charged"])
 def test_slab_above_nodata_hand_balance(rule):
-    # an inclined slab whose toe row borders nodata (a cut): free by default, so no passive
-    # resistance; "charged" keeps the face with the cell's own values
-    rows, cols, nr, nc = 12, 10, 5, 4
+    # an inclined slab whose toe row borders nodata (a cut): free by default, so the pairs
+    # into the cut give no passive resistance (nor side resistance on the oblique ones);
+    # "charged" keeps them with the cell's own values. The same slab moved against the west
+    # edge also has pairs off the grid, charged in both modes.
+    rows, cols = 12, 10
     slope = np.full((rows, cols), 30.0)
     slope[8, :] = np.nan                    # the row below the slab's toe
     kw = dict(dx=4.0, dy=5.0, cohesion_kpa=0.0, root_cohesion_kpa=0.0,
               lateral_root_cohesion_kpa=4.0, friction_deg=36.0, unit_weight_kn_m3=18.0,
               passive_fraction=0.5)
+    hand = (30.0, 36.0, 18.0, 1.2, 4.0, 0.5, 4.0, 5.0)
     f = cluster_forces(slope, np.full((rows, cols), 180.0), 1.2, 0.0, nodata_faces=rule, **kw)
-    mask = np.zeros((rows, cols), bool)
-    mask[3:8, 2:6] = True
-    expect = _hand_slab(30.0, 36.0, 18.0, 1.2, 4.0, 0.5, 4.0, 5.0, nr, nc, rule == "free")
-    assert cluster_factor_of_safety(f, mask) == pytest.approx(expect, rel=1e-12)
-    # a nodata cell up-slope of the head: a free face has no thrust and no root resistance
-    plane = np.full((rows, cols), 30.0)
-    g = cluster_forces(np.where(np.arange(rows)[:, None] == 2, np.nan, plane),
-                       np.full((rows, cols), 180.0), 1.2, 0.0, nodata_faces=rule, **kw)
-    assert (g.face_thrust[1, 3, :] > 0).all() == (rule == "charged")
-    assert (g.face_resistance[1, 3, :] == 0).all() == (rule == "free")
+    fs = {}
+    for c0 in (2, 0):
+        mask = np.zeros((rows, cols), bool)
+        mask[3:8, c0:c0 + 4] = True
+        expect, seen = _hand_slab(*hand, mask, np.isnan(slope), rule == "free")
+        assert seen[1] > 0 and seen[2] > 0 and (seen[0] > 0) == (c0 == 0)
+        fs[c0] = cluster_factor_of_safety(f, mask)
+        assert fs[c0] == pytest.approx(expect, rel=1e-12)
+    # the cut removes resistance only when free
+    full, _ = _hand_slab(*hand, mask, np.zeros((rows, cols), bool), False)
+    assert (fs[0] < full * (1 - 1e-3)) == (rule == "free")
+    # a nodata row up-slope of the head: pair by pair over the grid, a pair into nodata is
+    # free (no thrust, no root resistance) or charged; pairs off the grid or to valid cells
+    # are charged
+    hole = np.broadcast_to(np.arange(rows)[:, None] == 2, (rows, cols))
+    g = cluster_forces(np.where(hole, np.nan, 30.0), np.full((rows, cols), 180.0), 1.2, 0.0,
+                       nodata_faces=rule, **kw)
+    charges = _pair_charges(*hand)
+    # c = e_k . downslope is exactly 0 here on the east-west pairs, ~1e-16 in the model
+    # (aspect 180 read through sin and cos): a rounding allowance far below any charge
+    tol = 1e-12 * max(w_k for w_k, _ in charges)
+    into_hole = 0
+    for k, (dr, dc) in enumerate(STEPS):
+        w = np.full((rows, cols), charges[k][0])
+        h = np.full((rows, cols), charges[k][1])
+        for r in range(rows):
+            for c in range(cols):
+                r2, c2 = r + dr, c + dc
+                if 0 <= r2 < rows and 0 <= c2 < cols and hole[r2, c2] and rule == "free":
+                    w[r, c] = h[r, c] = 0.0
+                into_hole += int(0 <= r2 < rows and 0 <= c2 < cols and hole[r2, c2]
+                                 and not hole[r, c])
+        w[hole] = h[hole] = np.nan
+        np.testing.assert_allclose(g.face_resistance[k], w, rtol=1e-12, atol=tol)
+        np.testing.assert_allclose(g.face_thrust[k], h, rtol=1e-12, atol=tol)
+    assert into_hole > 0
+    # the head pairs (north) of the row below the hole: thrust only when charged
+    assert (g.face_thrust[2, 3, :] > 0).all() == (rule == "charged")
+    assert (g.face_resistance[2, 3, :] == 0).all() == (rule == "free")
 
 
 def test_nodata_faces_rejected_when_unknown():

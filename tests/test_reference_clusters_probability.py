@@ -1,8 +1,11 @@
 """Probability that a cluster fails, checked against exact answers.
 
 A rectangular slab whose FS is linear in a root cohesion (block force balance worked by hand,
-docs/methods.md, "Multi-cell failure clusters"): P(FS < 1) is a normal (or truncated normal)
-probability from scipy.stats, and the Monte Carlo estimate must lie within 4 standard errors of it.
+docs/methods.md, "Multi-cell failure clusters"; force model of Milledge et al. 2014): P(FS < 1)
+is a normal (or truncated normal) probability from scipy.stats, and the Monte Carlo estimate must
+lie within 4 standard errors of it. The margin of the slab is charged on the 16 directed cell
+pairs (8 neighbours, 8 knight moves) with Cauchy-Crofton weights (Boykov and Kolmogorov 2003,
+from memory), written out here from the weight formula with the pairs counted on the raster.
 """
 
 import math
@@ -13,6 +16,7 @@ import pytest
 from scipy import optimize, stats
 
 from earth_pressure_oracle import inclined_rankine
+from pair_oracle import STEPS, pair_geometry
 from slopescreen.clusters import cluster_factor_of_safety, cluster_forces
 from slopescreen.clusters.probability import cluster_failure_probability, cluster_parameter_draws
 from slopescreen.hydrology import SteadyRain, StormRain, storm_pressure_head
@@ -24,9 +28,26 @@ THETA, PHI, GAMMA, Z, ETA = 38.0, 33.0, 17.0, 1.3, 0.5
 DX, DY = 4.0, 5.0
 
 
-def _slab_terms(nr, nc, w, c_lat):
-    """Hand force balance of an nr x nc slab facing south, c' = 0, bulk unit weight.
+def _margin_pairs(mask):
+    """Per step k, the number of ordered pairs (i in S, i + e_k not in S or off the grid)."""
+    rows, cols = mask.shape
+    rr, cc = np.nonzero(mask)
+    counts = []
+    for dr, dc in STEPS:
+        r2, c2 = rr + dr, cc + dc
+        on = (r2 >= 0) & (r2 < rows) & (c2 >= 0) & (c2 < cols)
+        inside = np.zeros(rr.size, bool)
+        inside[on] = mask[r2[on], c2[on]]
+        counts.append(int((~inside).sum()))
+    return counts
 
+
+def _slab_terms(mask, w, c_lat):
+    """Hand force balance of a slab (cells of ``mask``) facing south, c' = 0, bulk unit weight.
+
+    Uniform fields, so every margin pair has the same per-metre values; pair k is charged
+    factor_k [c+^2 toe + c-^2 head + (1 - c^2) side] and an active thrust factor_k c-^2 P_a,
+    c = e_k . downslope (Milledge et al. 2014 force model on the pairs of docs/methods.md).
     Returns (resistance without basal roots, driving + active, basal root coefficient),
     all kN, so that FS = (res0 + c_r * coef) / drive.
     """
@@ -34,20 +55,26 @@ def _slab_terms(nr, nc, w, c_lat):
     hw = w * Z
     col = GAMMA * Z
     u = GW * hw * math.cos(t) ** 2
-    area = nr * nc * DX * DY
+    area = int(mask.sum()) * DX * DY
     drive = col * area * math.sin(t)
     basal0 = (col * math.cos(t) ** 2 - u) * math.tan(p) * area / math.cos(t)
     s = math.sin(p)
-    ka, kp = inclined_rankine(THETA, PHI)
+    ka, kp = inclined_rankine(THETA, PHI)     # closed form, ground parallel to the slip plane
     k0 = 1 - s
     dry = Z - hw
     sv = GAMMA * dry ** 2 / 2 + GAMMA * dry * hw + (GAMMA - GW) * hw ** 2 / 2
-    width, length = nc * DX, nr * DY          # toe and head run east-west, sides north-south
-    toe = ETA * kp * sv * width
-    head = c_lat * Z * width
-    active = ka * sv * width                  # c' = 0: no tension zone
-    sides = 2 * length * (c_lat * Z + k0 * math.tan(p) * sv)
-    return basal0 + toe + head + sides, drive + active, area / math.cos(t)
+    toe = ETA * kp * sv                        # per metre of margin
+    head = c_lat * Z
+    side = c_lat * Z + k0 * math.tan(p) * sv
+    active = ka * sv                           # c' = 0: no tension zone
+    down_e, down_n = 0.0, -1.0                 # aspect 180: downslope is south
+    margin = thrust = 0.0
+    for n_k, (ue, un, a_k) in zip(_margin_pairs(mask), pair_geometry(DX, DY)):
+        c = ue * down_e + un * down_n
+        cp, cm = max(c, 0.0), max(-c, 0.0)
+        margin += n_k * a_k * (cp * cp * toe + cm * cm * head + (1 - c * c) * side)
+        thrust += n_k * a_k * cm * cm * active
+    return basal0 + margin, drive + thrust, area / math.cos(t)
 
 
 def _grid(nr=5, nc=4, rows=12, cols=10):
@@ -72,7 +99,7 @@ def _run(lab, slope, aspect, units, lateral, samples, seed=11, **kw):
 
 def test_basal_root_cohesion_truncated_normal_slab():
     lab, slope, aspect = _grid()
-    res0, drive, coef = _slab_terms(5, 4, 0.6, 6.0)
+    res0, drive, coef = _slab_terms(lab == 1, 0.6, 6.0)
     c_star = (drive - res0) / coef            # FS = 1 at c_r = c*
     assert c_star > 0
     mean, sd = c_star + 0.8, 2.0              # truncated at 0 (physical range)
@@ -89,8 +116,8 @@ def test_lateral_root_cohesion_normal_slab():
     # FS is linear in the lateral root cohesion too (sides and head): the scenario key that the
     # encoded table lacks, drawn from its own streams
     lab, slope, aspect = _grid(6, 3)
-    r_a, d_a, coef = _slab_terms(6, 3, 0.8, 0.0)
-    r_b, _, _ = _slab_terms(6, 3, 0.8, 1.0)
+    r_a, d_a, coef = _slab_terms(lab == 1, 0.8, 0.0)
+    r_b, _, _ = _slab_terms(lab == 1, 0.8, 1.0)
     per_kpa = r_b - r_a                        # resistance per kPa of lateral root cohesion
     c_star = (d_a - r_a - 3.0 * coef) / per_kpa    # basal roots fixed at 3 kPa
     mean, sd = c_star + 1.5, 4.0
@@ -108,7 +135,7 @@ def test_two_units_inside_one_cluster():
     lab, slope, aspect = _grid(5, 4)
     unit = np.zeros(lab.shape, int)
     unit[:, 4:] = 1                           # columns 2-3 unit 0, columns 4-5 unit 1
-    res0, drive, coef = _slab_terms(5, 4, 1.0, 5.0)
+    res0, drive, coef = _slab_terms(lab == 1, 1.0, 5.0)
     a1 = a2 = coef / 2
     threshold = drive - res0
     cbar = threshold / coef                   # mean basal root cohesion at FS = 1
@@ -132,7 +159,7 @@ def test_steady_rain_wetness_from_sampled_conductivity():
     q = 40.0  # mm/day
 
     def fs_of(w):
-        r, d, _ = _slab_terms(5, 4, w, 15.0)   # roots hold the dry slab (FS 1.07)
+        r, d, _ = _slab_terms(lab == 1, w, 15.0)   # roots hold the dry slab (FS 1.02)
         return r / d - 1.0
 
     assert fs_of(0.0) > 0 > fs_of(1.0)
@@ -170,7 +197,7 @@ def test_storm_wetness_from_sampled_conductivity():
         return min(1.0, max(0.0, -best.fun / (Z * cos2)))
 
     def fs_minus_one(log_k):
-        r, d, _ = _slab_terms(5, 4, wetness(math.exp(log_k)), 20.0)
+        r, d, _ = _slab_terms(lab == 1, wetness(math.exp(log_k)), 20.0)
         return r / d - 1.0
 
     lo, hi = math.log(0.5), math.log(50.0)   # W = 1 (head at its cap) at the low end
@@ -262,8 +289,8 @@ def test_correlated_root_cohesions_slab_probability():
     # threshold, a normal variable whose sd adds the two terms (independent draws would add
     # them in quadrature and give another probability); exact value from scipy.stats.norm.
     lab, slope, aspect = _grid(6, 3)
-    r_a, d_a, coef = _slab_terms(6, 3, 0.8, 0.0)
-    r_b, _, _ = _slab_terms(6, 3, 0.8, 1.0)
+    r_a, d_a, coef = _slab_terms(lab == 1, 0.8, 0.0)
+    r_b, _, _ = _slab_terms(lab == 1, 0.8, 1.0)
     per_kpa = r_b - r_a
     threshold = d_a - r_a
     mb, sl = 4.0, 0.7

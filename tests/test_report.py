@@ -514,6 +514,6 @@ def test_changes_listed_follow_what_the_run_used():
                        "uncertainty": {"samples": 40}}
     found = dict((c.key, t) for c, t in changes_for(clusters, edge_cells=25))
     assert list(found) == ["edge_slopes", "cluster_proof", "inclined_earth_pressure",
-                           "free_nodata_faces", "root_correlation"]
-    assert "1,203 such faces" in found["cluster_proof"]
+                           "cluster_pairs", "free_nodata_faces", "root_correlation"]
+    assert "1,203 such pairs" in found["cluster_proof"]
     assert "25 cells (5.0 % of the cells with data)" in found["edge_slopes"]

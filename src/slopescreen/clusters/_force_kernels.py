@@ -11,6 +11,7 @@ import numpy as np
 
 from .._kernels.slope_stability import GAMMA_W, _fs_point, _rad
 from .._numba import njit, njit_parallel, prange
+from ._faces import FACE_DCOL, FACE_DROW, N_FACES
 
 
 @njit
@@ -150,8 +151,11 @@ def _basal_forces(slope_deg, z, wet, gm, gs, coh, root_b, phi_deg, area):
 
 
 @njit
-def _face_force(k, length, own, nb, has_nb, eta, jaky_full):
-    """(W, H) of face k of a cell, kN.
+def _face_force(ue, un, factor, own, nb, has_nb, eta, jaky_full):
+    """(W, H) of the pair of a cell towards the cell across step (ue, un), kN.
+
+    (ue, un) is the unit step direction and ``factor`` its Cauchy-Crofton
+    weight (:func:`slopescreen.clusters._faces.face_geometry`), m.
 
     ``own`` and ``nb`` hold (z, wetness, gamma_m, gamma_sat, c', c_r lateral,
     phi' degrees, downslope east, downslope north, slope degrees) of the cell and of the
@@ -190,17 +194,18 @@ def _face_force(k, length, own, nb, has_nb, eta, jaky_full):
         vn = own[8]
     toe, head, side, thrust = _face_per_length(
         fz, fm, fgm, fgs, fc, fl, math.tan(fphi), math.sin(fphi), eta, jaky_full, fslope)
-    cosang = (1.0, 0.0, -1.0, 0.0)[k] * ve + (0.0, 1.0, 0.0, -1.0)[k] * vn
+    cosang = ue * ve + un * vn
     cp = max(cosang, 0.0)
     cm = max(-cosang, 0.0)
-    w = length * (cp * cp * toe + cm * cm * head + (1.0 - cosang * cosang) * side)
-    h = length * cm * cm * thrust
+    w = factor * (cp * cp * toe + cm * cm * head + (1.0 - cosang * cosang) * side)
+    h = factor * cm * cm * thrust
     return w, h
 
 
 @njit_parallel
 def _forces_kernel(slope, aspect, depth, wet, coh, root_b, root_l, phi, gm, gs, valid, dx, dy,
-                   eta, jaky_full, free_nodata, driving, resisting, face_w, face_h, cell_fs, down):
+                   geometry, eta, jaky_full, free_nodata, driving, resisting, face_w, face_h,
+                   cell_fs, down):
     rows, cols = slope.shape
     area = dx * dy
     for r in prange(rows):
@@ -211,7 +216,7 @@ def _forces_kernel(slope, aspect, depth, wet, coh, root_b, root_l, phi, gm, gs, 
                 driving[r, c] = math.nan
                 resisting[r, c] = math.nan
                 cell_fs[r, c] = math.nan
-                for k in range(4):
+                for k in range(N_FACES):
                     face_w[k, r, c] = math.nan
                     face_h[k, r, c] = math.nan
                 continue
@@ -221,10 +226,9 @@ def _forces_kernel(slope, aspect, depth, wet, coh, root_b, root_l, phi, gm, gs, 
             resisting[r, c] = r_i
             cell_fs[r, c] = fs_i
             _cell_values(own, slope, depth, wet, gm, gs, coh, root_l, phi, down, r, c)
-            for k in range(4):
-                rr = r + (0, -1, 0, 1)[k]
-                cc = c + (1, 0, -1, 0)[k]
-                length = dy if k % 2 == 0 else dx
+            for k in range(N_FACES):
+                rr = r + FACE_DROW[k]
+                cc = c + FACE_DCOL[k]
                 inside = 0 <= rr < rows and 0 <= cc < cols
                 has_nb = inside and valid[rr, cc]
                 if inside and not has_nb and free_nodata:
@@ -233,7 +237,8 @@ def _forces_kernel(slope, aspect, depth, wet, coh, root_b, root_l, phi, gm, gs, 
                     continue
                 if has_nb:
                     _cell_values(nb, slope, depth, wet, gm, gs, coh, root_l, phi, down, rr, cc)
-                w, h = _face_force(k, length, own, nb, has_nb, eta, jaky_full)
+                w, h = _face_force(geometry[0, k], geometry[1, k], geometry[2, k], own, nb,
+                                   has_nb, eta, jaky_full)
                 face_w[k, r, c] = w
                 face_h[k, r, c] = h
 

@@ -19,7 +19,8 @@ cells: z_f = x_p x_q. With the terms of
                            (z_f >= x_p + x_q - 1 where p_N - lam p_D < 0)
                            kmin <= sum_i x_i <= kmax,   connectivity
 
-z_f equals x_p x_q at every integer point: where the coefficient
+One z_f per unordered pair of valid cells among the 16 pairs of
+:mod:`slopescreen.clusters._faces`. z_f equals x_p x_q at every integer point: where the coefficient
 -(p_N - lam p_D) of z_f is <= 0 (the face is submodular; docs/methods.md,
 "Multi-cell failure clusters") the minimum pushes z_f up to min(x_p, x_q);
 elsewhere the lower McCormick inequality is added and z_f is pushed down to max(0, x_p + x_q - 1).
@@ -68,11 +69,14 @@ Proven bounds
   scaling up). Connectivity is not in it either. This plain bound is the
   ``relaxation_bound`` reported.
 * Perimeter bound: the same LP with one more valid inequality. A set of k
-  grid cells has at least 2 ceil(2 sqrt(k)) margin faces (the minimum
-  perimeter of polyominoes), so at most 2k - ceil(2 sqrt(k)) inner faces;
-  with the chord a + b k of 2 sqrt(k) over the band (concave, so the chord
-  lies below) every set of the band satisfies
-  sum z <= (2 - b) sum x - a (homogenised: - a t). A scaled-down large set
+  grid cells has at least 2 ceil(2 sqrt(k)) margin sides (the minimum
+  perimeter of polyominoes), so at most 2k - ceil(2 sqrt(k)) inner pairs
+  of side-sharing cells; with the chord a + b k of 2 sqrt(k) over the band
+  (concave, so the chord lies below) every set of the band satisfies
+  sum z <= (2 - b) sum x - a over those pairs (homogenised: - a t), and
+  likewise over the diagonal pairs and over each of two families of knight
+  pairs (the same bound in the lattice the two steps span; see
+  ``_isoperimetric_line``): four inequalities. A scaled-down large set
   x = alpha 1_S has sum z close to 2 sum x and violates it, so this bound
   sees the upper area limit in part: it pays for the margin a small set
   cannot avoid. The MILP carries the same inequality (a cut that no integer
@@ -113,7 +117,9 @@ from ..errors import InputError
 from ..stability import FS_CAP
 from ._solve import solve_checked
 from .cut import pair_terms
+from ._faces import HALF, pair_slices
 from .forces import cluster_factor_of_safety
+from .small_sets import ENUMERATION_MAX_CELLS, least_stable_small
 from .heuristic import _cut, band_heuristic, band_terms, set_ratio
 from .search import FOUR_CONNECTED, _sub, least_stable_in_window
 
@@ -145,7 +151,7 @@ class BandResult(NamedTuple):
     proven: bool
     """lower_bound meets fs within a relative 1e-6 (True also for "none": nothing to find)."""
     method: str
-    """What settled it: "cut", "relaxation", "milp", "time_limit" (unproven) or "none"."""
+    """What settled it: "cut", "enumeration", "relaxation", "milp", "time_limit" (unproven) or "none"."""
     milp_solves: int
     """MILPs solved (warm start included)."""
     seconds: float
@@ -188,6 +194,16 @@ def band_cells(min_area_m2, max_area_m2, cell_area_m2):
     return kmin, kmax
 
 
+# four families of two independent pair directions (codes of slopescreen.clusters._faces):
+# sides (east, north), diagonals, and two pairs of knight moves (each spanning a lattice of
+# index 5); the perimeter cut holds for each family
+_FAMILY = np.full(16, -1, dtype=np.int64)
+_FAMILY[[0, 2]] = 0
+_FAMILY[[1, 3]] = 1
+_FAMILY[[8, 10]] = 2
+_FAMILY[[9, 11]] = 3
+
+
 class _Model:
     """The MILP and the relaxation LP of one window, parametrised by lam and the band.
 
@@ -203,21 +219,24 @@ class _Model:
         n = int(valid.sum())
         index[valid] = np.arange(n)
         self.index = index
-        ps, qs, wn, wd = [], [], [], []
-        east = valid[:, :-1] & valid[:, 1:]
-        ps.append(index[:, :-1][east])
-        qs.append(index[:, 1:][east])
-        wn.append(terms.pn[0][:, :-1][east])
-        wd.append(terms.pd[0][:, :-1][east])
-        south = valid[:-1, :] & valid[1:, :]
-        ps.append(index[:-1, :][south])
-        qs.append(index[1:, :][south])
-        wn.append(terms.pn[3][:-1, :][south])
-        wd.append(terms.pd[3][:-1, :][south])
+        ps, qs, wn, wd, family = [], [], [], [], []
+        for k in HALF:  # every unordered pair of valid cells once
+            pi, qi = pair_slices(k, h, w)
+            both = valid[pi] & valid[qi]
+            ps.append(index[pi][both])
+            qs.append(index[qi][both])
+            wn.append(terms.pn[k][pi][both])
+            wd.append(terms.pd[k][pi][both])
+            family.append(np.full(int(both.sum()), _FAMILY[k]))
         self.p = np.concatenate(ps)
         self.q = np.concatenate(qs)
         self.pn = np.concatenate(wn)
         self.pd = np.concatenate(wd)
+        family = np.concatenate(family)
+        # pairs of cells that share a side carry the connectivity flow; every family of two
+        # pair directions gets a perimeter cut (see _isoperimetric_line)
+        self.side = np.flatnonzero(family == 0)
+        self.families = [np.flatnonzero(family == j) for j in range(4)]
         self.n = n
         self.m = self.p.size
         self.cnx = terms.cn[valid]
@@ -249,18 +268,23 @@ class _Model:
             x = cp.Variable(n, boolean=True)
             z = cp.Variable(m, nonneg=True)
             root = cp.Variable(n, boolean=True)
-            tail = np.concatenate([self.p, self.q])
-            head = np.concatenate([self.q, self.p])
-            arcs = np.arange(2 * m)
-            t_mat = sparse.csr_array((np.ones(2 * m), (arcs, tail)), shape=(2 * m, n))
-            h_mat = sparse.csr_array((np.ones(2 * m), (arcs, head)), shape=(2 * m, n))
-            flow = cp.Variable(2 * m, nonneg=True)
+            # the connectivity flow runs between cells that share a side (clusters are
+            # 4-connected sets)
+            sp_, sq_ = self.p[self.side], self.q[self.side]
+            ma = sp_.size
+            tail = np.concatenate([sp_, sq_])
+            head = np.concatenate([sq_, sp_])
+            arcs = np.arange(2 * ma)
+            t_mat = sparse.csr_array((np.ones(2 * ma), (arcs, tail)), shape=(2 * ma, n))
+            h_mat = sparse.csr_array((np.ones(2 * ma), (arcs, head)), shape=(2 * ma, n))
+            flow = cp.Variable(2 * ma, nonneg=True)
             cons = [z <= sp @ x, z <= sq @ x, cp.sum(x) >= self.kmin, cp.sum(x) <= self.kmax,
                     cp.sum(root) == 1, root <= x, root <= self.root_ok,
                     flow <= self.big_m * (t_mat @ x), flow <= self.big_m * (h_mat @ x),
                     h_mat.T @ flow - t_mat.T @ flow >= x - self.kmax * root,
-                    x >= self.lo, x <= self.hi,
-                    cp.sum(z) <= (2.0 - self.iso_b) * cp.sum(x) - self.iso_a]
+                    x >= self.lo, x <= self.hi]
+            cons += [cp.sum(z[f]) <= (2.0 - self.iso_b) * cp.sum(x) - self.iso_a
+                     for f in self.families if f.size]
             ns = self.nonsub
             if ns.size:
                 cons.append(z[ns] >= sp[ns] @ x + sq[ns] @ x - 1.0)
@@ -278,8 +302,9 @@ class _Model:
             zr = cp.Variable(m, nonneg=True)
             t = cp.Variable(nonneg=True)
             cons = [self.cdx @ xr - self.pd @ zr == 1.0, xr <= t, zr <= sp @ xr, zr <= sq @ xr,
-                    cp.sum(xr) >= self.kmin * t, cp.sum(xr) <= self.kmax * t,
-                    cp.sum(zr) <= (2.0 - self.iso_b) * cp.sum(xr) - self.iso_a * t]
+                    cp.sum(xr) >= self.kmin * t, cp.sum(xr) <= self.kmax * t]
+            cons += [cp.sum(zr[f]) <= (2.0 - self.iso_b) * cp.sum(xr) - self.iso_a * t
+                     for f in self.families if f.size]
             ns = self.nonsub
             if ns.size:
                 cons.append(zr[ns] >= sp[ns] @ xr + sq[ns] @ xr - t)
@@ -309,9 +334,15 @@ class _Model:
 def _isoperimetric_line(kmin, kmax):
     """(a, b) with a + b k <= ceil(2 sqrt(k)) for every whole k in [kmin, kmax].
 
-    A set of k cells has at least 2 ceil(2 sqrt(k)) margin faces (Harary and
+    A set of k cells has at least 2 ceil(2 sqrt(k)) margin sides (Harary and
     Harborth 1976, minimum perimeter of polyominoes; from memory), so at most
-    2k - ceil(2 sqrt(k)) faces inside it. 2 sqrt(k) is concave, so its chord over
+    2k - ceil(2 sqrt(k)) pairs of side-sharing cells inside it. The same holds
+    for each family of two independent pair directions (:data:`_FAMILY`): in
+    the basis of the two steps every coset of the lattice they span is a grid
+    of its own; m cells of a coset meet at least ``u + v >= 2 sqrt(m)`` lines
+    of the two directions (u v >= m), each line ends a run, and sum sqrt(m_i)
+    >= sqrt(k), so at most 2k - ceil(2 sqrt(k)) pairs of the family lie
+    inside the set. 2 sqrt(k) is concave, so its chord over
     the band lies below it: sum z <= 2 sum x - (a + b sum x) holds at every set of
     the band. It removes the scaled-down large sets (x = alpha 1_S) that make the
     relaxations blind to the upper area limit.
@@ -352,9 +383,11 @@ def relaxation_bound(model, kmin, kmax, *, perimeter=False):
     model.set_band(kmin, kmax)
     if not perimeter:
         model.iso_a.value, model.iso_b.value = 0.0, 0.0  # sum z <= 2 sum x always holds
-    # primal simplex: 2-3x faster than HiGHS's default (dual) on these LPs, same optimum
-    # (measured on demo windows of 40 x 40 cells: 0.28-0.39 s against 0.69-1.0 s)
-    out = solve_checked(model.relax, simplex_strategy=4)
+    # interior point with crossover (a basic optimal point, so the same optimum as simplex):
+    # with the 16 cell pairs the LPs of large failing windows are 4-5x larger, and there it
+    # is ~10x faster than the primal simplex (stress window of 40 x 30 failing cells: 3.9 s
+    # against 36.9 s); on 40 x 40 hillslope windows both take 2.7-3.4 s
+    out = solve_checked(model.relax, solver="ipm")
     return float(min(max(out.value, 0.0), FS_CAP))
 
 
@@ -450,10 +483,13 @@ def least_stable_in_band(forces, window, *, min_area_m2, max_area_m2, time_limit
     Notes
     -----
     Order of work: (1) if the window's least-stable cluster without limits
-    (exact cuts) lies in the band, it is the answer ("cut"); (2) heuristic
-    start; (3) relaxation bound, which settles the band when it reaches the
-    heuristic's FS ("relaxation"); (4) Dinkelbach over MILPs until proven
-    ("milp") or out of time ("time_limit", unproven). See the module text
+    (exact cuts) lies in the band, it is the answer ("cut"); (2) a band of
+    at most :data:`~slopescreen.clusters.small_sets.ENUMERATION_MAX_CELLS`
+    cells is solved by enumerating every connected shape ("enumeration",
+    exact); (3) heuristic start; (4) relaxation bound, which settles the
+    band when it reaches the heuristic's FS ("relaxation"); (5) Dinkelbach
+    over MILPs until proven ("milp") or out of time ("time_limit",
+    unproven). See the module text
     for the program and the bounds:
 
         FS(S) = N(S) / D(S),   min over connected S, kmin <= |S| <= kmax
@@ -517,6 +553,13 @@ def least_stable_in_band(forces, window, *, min_area_m2, max_area_m2, time_limit
             rb = relaxation_bound(st.ensure_model(fs), kmin, kmax)
             lower = max(lower, rb)
         return result(fs, best.copy(), fs, rb, min(lower, fs), "cut", 0)
+    if kmax <= ENUMERATION_MAX_CELLS:
+        # few cells: every connected shape placed everywhere (exact, no solver)
+        fs_small, small = least_stable_small(st.terms, kmin, kmax)
+        if small is None:  # no connected set of the band has a driving force (flat ground)
+            return result(math.nan, empty, math.nan, math.nan, cut_bound, "none", 0)
+        fs = st.fs(small)
+        return result(fs, small, fs, math.nan, fs, "enumeration", 0)
     hmask, hfs, _ = heuristic if heuristic is not None else st.heuristic(kmin, kmax)
     if hmask is None:  # every connected set of the band has no driving force (flat ground)
         return result(math.nan, empty, math.nan, math.nan, cut_bound, "none", 0)

@@ -1,8 +1,9 @@
 """Exact minimisation of g_lam(S) = R + B - lam (D + H) by an s-t minimum cut.
 
 Representation (docs/methods.md, "Multi-cell failure clusters"). With
-t[k, p] = W[k, p] - lam H[k, p] the face term of cell p towards its neighbour
-q across face k (k' the opposite face), the pair term of a face between two valid cells takes
+t[k, p] = W[k, p] - lam H[k, p] the term of cell p towards its partner
+q = p + e_k (one of 16: :mod:`slopescreen.clusters._faces`; k' the opposite
+step), the pair term of two valid cells takes
 a = t[k, p] when only p is in S and b = t[k', q] when only q is. Written as
 
     phi = (a - b)/2 (x_p - x_q) + (a + b)/2 ([x_p=1, x_q=0] + [x_q=1, x_p=0])
@@ -11,8 +12,8 @@ its linear part joins the unary terms and each direction becomes an arc of
 capacity (a + b)/2 >= 0 when the face is submodular. A face with a + b < 0
 (see :func:`~slopescreen.clusters.forces.nonsubmodular_faces`) is replaced
 by its modular lower bound a x_p + b x_q (it under-counts only sets that
-hold both cells), so the function solved is never above g. A face towards
-nodata or the grid edge is charged in full in the unary term.
+hold both cells), so the function solved is never above g. A pair towards
+nodata or off the grid is charged in full in the unary term.
 
 Integer capacities: every unary coefficient and arc capacity is multiplied
 by a scale sigma and rounded **down** (floor). The integer function
@@ -31,6 +32,7 @@ from scipy import sparse
 from scipy.sparse.csgraph import breadth_first_order, maximum_flow
 
 from .._numba import njit, njit_parallel, prange
+from ._faces import ASCENDING, FACE_DCOL, FACE_DROW, N_FACES, OPPOSITE
 
 __all__ = ["pair_terms", "integer_terms", "solve_window", "SCALE_TARGET"]
 
@@ -40,30 +42,35 @@ SCALE_TARGET = float(2**30)
 
 @njit  # serial: windows are small, and a parallel launch per window costs more than it saves
 def _pair_terms_kernel(driving, resisting, face_w, face_h, valid, lam, unary, cap):
+    """Fill ``unary`` and ``cap``; return the pairs made modular (each unordered pair once)."""
     rows, cols = valid.shape
+    n_mod = 0
     for r in range(rows):
         for c in range(cols):
-            for k in range(4):
+            for k in range(N_FACES):
                 cap[k, r, c] = 0.0
             if not valid[r, c]:
                 unary[r, c] = 0.0
                 continue
             u = resisting[r, c] - lam * driving[r, c]
-            for k in range(4):
+            for k in range(N_FACES):
                 a = face_w[k, r, c] - lam * face_h[k, r, c]
-                rr = r + (0, -1, 0, 1)[k]
-                cc = c + (1, 0, -1, 0)[k]
+                rr = r + FACE_DROW[k]
+                cc = c + FACE_DCOL[k]
                 if 0 <= rr < rows and 0 <= cc < cols and valid[rr, cc]:
-                    ko = (k + 2) % 4
+                    ko = OPPOSITE[k]
                     b = face_w[ko, rr, cc] - lam * face_h[ko, rr, cc]
                     if a + b >= 0.0:
                         u += 0.5 * (a - b)
                         cap[k, r, c] = 0.5 * (a + b)
                     else:
                         u += a
+                        if k < ko:
+                            n_mod += 1
                 else:
                     u += a
             unary[r, c] = u
+    return n_mod
 
 
 def pair_terms(forces, lam, window=None):
@@ -82,10 +89,11 @@ def pair_terms(forces, lam, window=None):
     -------
     unary : numpy.ndarray, shape (rows, cols)
         u_p; 0 at nodata.
-    cap : numpy.ndarray, shape (4, rows, cols)
-        Capacity of the arc from p across face k (0 where there is no arc).
+    cap : numpy.ndarray, shape (16, rows, cols)
+        Capacity of the arc from p to its partner across step k (0 where
+        there is no arc).
     n_modular : int
-        Faces replaced by their modular lower bound (counted once each).
+        Pairs replaced by their modular lower bound (counted once each).
     """
     if window is None:
         sl = (slice(None), slice(None))
@@ -98,12 +106,9 @@ def pair_terms(forces, lam, window=None):
     fw = np.ascontiguousarray(forces.face_resistance[(slice(None),) + sl])
     fh = np.ascontiguousarray(forces.face_thrust[(slice(None),) + sl])
     unary = np.empty(valid.shape)
-    cap = np.empty((4,) + valid.shape)
-    _pair_terms_kernel(d, rs, fw, fh, valid, float(lam), unary, cap)
-    t = fw - float(lam) * fh
-    east = valid[:, :-1] & valid[:, 1:] & ((t[0][:, :-1] + t[2][:, 1:]) < 0.0)
-    south = valid[:-1, :] & valid[1:, :] & ((t[3][:-1, :] + t[1][1:, :]) < 0.0)
-    return unary, cap, int(east.sum() + south.sum())
+    cap = np.empty((N_FACES,) + valid.shape)
+    n_mod = _pair_terms_kernel(d, rs, fw, fh, valid, float(lam), unary, cap)
+    return unary, cap, int(n_mod)
 
 
 def magnitude(unary, cap):
@@ -139,15 +144,14 @@ def _graph_kernel(uint, cint, valid, r0, r1, c0, c1, boundary_in, use_boundary):
             if valid[r0 + r, c0 + c]:
                 index[r, c] = n
                 n += 1
-    src = n
+    # node n is the source (its row comes last), n + 1 the sink
     snk = n + 1
-    # rows of the CSR matrix: cells (<= 4 arcs + sink), then the source
+    # rows of the CSR matrix: cells (<= 16 arcs + sink), then the source
     indptr = np.zeros(n + 3, dtype=np.int32)
-    indices = np.empty(5 * n + n, dtype=np.int32)
-    data = np.empty(5 * n + n, dtype=np.int32)
+    indices = np.empty((N_FACES + 2) * n, dtype=np.int32)
+    data = np.empty((N_FACES + 2) * n, dtype=np.int32)
     unary = np.zeros(n, dtype=np.int64)
     pos = 0
-    order = (1, 2, 0, 3)  # north, west, east, south: ascending node index
     for r in range(h):
         for c in range(w):
             p = index[r, c]
@@ -156,10 +160,10 @@ def _graph_kernel(uint, cint, valid, r0, r1, c0, c1, boundary_in, use_boundary):
             gr = r0 + r
             gc = c0 + c
             u = uint[gr, gc]
-            for j in range(4):
-                k = order[j]
-                rr = gr + (0, -1, 0, 1)[k]
-                cc = gc + (1, 0, -1, 0)[k]
+            for j in range(N_FACES):
+                k = ASCENDING[j]  # partners in ascending node index
+                rr = gr + FACE_DROW[k]
+                cc = gc + FACE_DCOL[k]
                 if not (0 <= rr < rows and 0 <= cc < cols and valid[rr, cc]):
                     continue
                 if r0 <= rr < r1 and c0 <= cc < c1:
@@ -169,7 +173,7 @@ def _graph_kernel(uint, cint, valid, r0, r1, c0, c1, boundary_in, use_boundary):
                         data[pos] = cp
                         pos += 1
                 elif use_boundary and boundary_in[rr, cc]:
-                    u -= cint[(k + 2) % 4, rr, cc]
+                    u -= cint[OPPOSITE[k], rr, cc]
                 else:
                     u += cint[k, gr, gc]
             unary[p] = u
@@ -194,13 +198,13 @@ def solve_window(uint, cint, valid, window, boundary_in=None):
     Parameters
     ----------
     uint, cint : numpy.ndarray of int64
-        Integer unary terms (rows, cols) and arc capacities (4, rows, cols).
+        Integer unary terms (rows, cols) and arc capacities (16, rows, cols).
     valid : numpy.ndarray of bool
     window : tuple of int
         (r0, r1, c0, c1).
     boundary_in : numpy.ndarray of bool, optional
         Cells outside the window fixed in S (default: none; every outside
-        cell is out and the window's margin faces are charged).
+        cell is out and the window's margin pairs are charged).
 
     Returns
     -------

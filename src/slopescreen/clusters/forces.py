@@ -1,17 +1,19 @@
-"""Forces on a multi-cell slide: basal terms per cell, earth-pressure terms per face.
+"""Forces on a multi-cell slide: basal terms per cell, earth-pressure terms per cell pair.
 
 A candidate slide is a set S of grid cells. Each cell i carries a driving
 force D_i and a basal resisting force R_i (kN) such that a lone cell with no
 margins has the infinite-slope factor of safety R_i / D_i of
-:mod:`slopescreen.stability`. Each of the four faces of a cell (east, north,
-west, south: codes 0..3, the even neighbour codes of
-:mod:`slopescreen._neighbours` divided by 2) carries a resistance W[k, i]
-and an active thrust H[k, i] (kN) that count when i is in S and the cell
-across face k is not. Then (docs/methods.md, "Multi-cell failure clusters")::
+:mod:`slopescreen.stability`. Towards each of 16 partners j = i + e_k (the
+8 neighbours and the 8 knight moves, :data:`FACE_DROW`, :data:`FACE_DCOL`)
+cell i carries a resistance W[k, i] and an active thrust H[k, i] (kN) that
+count when i is in S and j is not. Then (docs/methods.md, "Multi-cell
+failure clusters")::
 
     FS(S) = (R(S) + B(S)) / (D(S) + H(S))
 
-with B and H summed over the margin faces of S.
+with B and H summed over the margin pairs of S. The pair weights are
+Cauchy-Crofton weights (Boykov and Kolmogorov 2003), so the resistance
+charged along a straight margin does not depend on its angle to the grid.
 """
 
 import math
@@ -22,10 +24,13 @@ import numpy as np
 from .. import _validate
 from .._kernels.slope_stability import FS_CAP, GAMMA_W
 from ..errors import InputError
+from ._faces import (FACE_DCOL, FACE_DROW, HALF, N_FACES, OPPOSITE, REACH, face_geometry,
+                     pair_slices)
 from ._force_kernels import _face_per_length, _forces_kernel
 from .inputs import ClusterStrength, _nodata_faces_free
 
 __all__ = [
+    "N_FACES",
     "FACE_DROW",
     "FACE_DCOL",
     "ClusterForces",
@@ -35,16 +40,6 @@ __all__ = [
     "cluster_factor_of_safety",
     "nonsubmodular_faces",
 ]
-
-FACE_DROW = np.array([0, -1, 0, 1], dtype=np.int64)
-"""Row step across face k (0 east, 1 north, 2 west, 3 south)."""
-
-FACE_DCOL = np.array([1, 0, -1, 0], dtype=np.int64)
-"""Column step across face k."""
-
-# outward unit normal of face k in map coordinates (east, north)
-_NORMAL_E = np.array([1.0, 0.0, -1.0, 0.0])
-_NORMAL_N = np.array([0.0, 1.0, 0.0, -1.0])
 
 
 class ClusterForces(NamedTuple):
@@ -58,9 +53,9 @@ class ClusterForces(NamedTuple):
     resisting: np.ndarray
     """R_i = max(0, C + (W_col cos^2 - u) tan phi) A / cos(theta), shape (rows, cols)."""
     face_resistance: np.ndarray
-    """W[k, i]: resistance of face k of cell i when i is in S and its neighbour is not, (4, rows, cols)."""
+    """W[k, i]: resistance of pair k of cell i when i is in S and i + e_k is not, (16, rows, cols)."""
     face_thrust: np.ndarray
-    """H[k, i]: active thrust on face k of cell i (head faces only), (4, rows, cols)."""
+    """H[k, i]: active thrust on pair k of cell i (towards upslope partners), (16, rows, cols)."""
     valid: np.ndarray
     """Cells that can belong to a cluster (every input finite)."""
     cell_fs: np.ndarray
@@ -327,23 +322,33 @@ def cluster_forces(slope_deg, aspect_deg, depth_m, wetness, *, dx, dy, strength=
         D_i = W_col A sin(theta)
         R_i = max(0, c' + c_r + (W_col cos^2(theta) - u) tan phi') A / cos(theta)
 
-    so R_i / D_i is the infinite-slope FS. Per face k of cell i (plan length
-    L = dy for east/west faces, dx for north/south), with c the cosine of the
-    angle between the face's outward normal and the downslope direction::
+    so R_i / D_i is the infinite-slope FS. Per pair k of cell i (step e_k to
+    the partner j = i + e_k, one of the 8 neighbours or the 8 knight moves),
+    with c the cosine of the angle between e_k and the downslope direction
+    and a_k = dphi_k dx dy / (2 |e_k|) its Cauchy-Crofton factor (dphi_k half
+    the angle between the directions next to e_k; Boykov and Kolmogorov
+    2003)::
 
-        W[k, i] = L [ max(c,0)^2 toe + max(-c,0)^2 head + (1 - c^2) side ]
-        H[k, i] = L max(-c,0)^2 P_a
+        W[k, i] = a_k [ max(c,0)^2 toe + max(-c,0)^2 head + (1 - c^2) side ]
+        H[k, i] = a_k max(-c,0)^2 P_a
+
+    A straight margin of length l with outward normal n is crossed by
+    l (e_k . n)_+ / (dx dy) pairs of direction k, so it is charged close to
+    l [c_n+^2 toe + c_n-^2 head + (1 - c_n^2) side] whatever its angle to the
+    grid (the quadrature smooths the c^2 anisotropy by a factor of 3 and
+    counts corners short on small clusters; docs/methods.md, "Multi-cell
+    failure clusters").
 
     toe, head, side and P_a per metre from :func:`face_pressures` with the
     face height equal to the vertical soil depth and the ground slope beta
     equal to the face's slope (inclined-backfill Rankine pressures,
     Mazindrani and Ganjali 1997, acting parallel to the ground and so along
     the slip direction: in full into the balance, nothing normal to the
-    base). Between two valid cells the face takes the mean of their
+    base). Between two valid cells the pair takes the mean of their
     properties (slope included) and the normalised sum of their downslope
-    vectors, so the face seen from either side has opposite c. A face on
-    the grid edge takes the cell's own values; a face towards nodata is free
-    (W = H = 0) or, with ``nodata_faces="charged"``, like the edge. The
+    vectors, so the pair seen from either side has opposite c. A partner off
+    the grid gives the cell's own values; a partner at nodata is free
+    (W = H = 0) or, with ``nodata_faces="charged"``, like the grid edge. The
     active thrust on head faces is counted as a driving force
     (denominator), as in docs/methods.md, "Multi-cell failure clusters". Forces of cells facing
     different ways are added as scalars (each along its own downslope
@@ -364,7 +369,7 @@ def cluster_forces(slope_deg, aspect_deg, depth_m, wetness, *, dx, dy, strength=
     ...     lateral_root_cohesion_kpa=5.0, friction_deg=32.0, unit_weight_kn_m3=18.0)
     >>> f = cluster_forces(np.full((3, 3), 35.0), np.full((3, 3), 180.0), 1.0, 0.5, dx=5.0,
     ...     dy=5.0, strength=soil)
-    >>> bool(f.face_thrust[1, 1, 1] > 0)   # the north face is the head of a south-facing slope
+    >>> bool(f.face_thrust[2, 1, 1] > 0)   # pair 2 (north) is at the head of a south-facing slope
     True
 
     The same call with the strength as loose keywords:
@@ -372,7 +377,7 @@ def cluster_forces(slope_deg, aspect_deg, depth_m, wetness, *, dx, dy, strength=
     >>> f = cluster_forces(np.full((3, 3), 35.0), np.full((3, 3), 180.0), 1.0, 0.5, dx=5.0,
     ...     dy=5.0, cohesion_kpa=2.0, root_cohesion_kpa=0.0, lateral_root_cohesion_kpa=5.0,
     ...     friction_deg=32.0, unit_weight_kn_m3=18.0)
-    >>> bool(f.face_thrust[1, 1, 1] > 0)
+    >>> bool(f.face_thrust[2, 1, 1] > 0)
     True
     """
     slope, valid = _validate.surface(slope_deg, name="slope_deg", min_size=1)
@@ -403,25 +408,26 @@ def cluster_forces(slope_deg, aspect_deg, depth_m, wetness, *, dx, dy, strength=
     down = downslope_vectors(slope, aspect)
     driving = np.empty(shape)
     resisting = np.empty(shape)
-    face_w = np.empty((4,) + shape)
-    face_h = np.empty((4,) + shape)
+    face_w = np.empty((N_FACES,) + shape)
+    face_h = np.empty((N_FACES,) + shape)
     cell_fs = np.empty(shape, dtype=np.float32)
+    geometry = np.array(face_geometry(dx, dy))
     _forces_kernel(slope, aspect, depth, wet, coh, root_b, root_l, phi, gm, gs, valid, dx, dy,
-                   eta, bool(jaky_full), free_nodata, driving, resisting, face_w, face_h, cell_fs, down)
+                   geometry, eta, bool(jaky_full), free_nodata, driving, resisting, face_w,
+                   face_h, cell_fs, down)
     return ClusterForces(driving, resisting, face_w, face_h, valid, cell_fs,
                          np.where(valid, depth, np.nan), down, dx, dy)
 
 
 def _margin_sums(forces, mask):
-    """(B, H) summed over the margin faces of ``mask`` (plain numpy)."""
+    """(B, H) summed over the margin pairs of ``mask`` (plain numpy)."""
     rows, cols = mask.shape
     b = 0.0
     h = 0.0
-    padded = np.zeros((rows + 2, cols + 2), dtype=bool)
-    padded[1:-1, 1:-1] = mask
-    for k in range(4):
-        nb = padded[1 + FACE_DROW[k]:1 + FACE_DROW[k] + rows, 1 + FACE_DCOL[k]:1 + FACE_DCOL[k] + cols]
-        margin = mask & ~nb
+    padded = np.pad(mask, REACH)
+    for k in range(N_FACES):
+        r, c = REACH + FACE_DROW[k], REACH + FACE_DCOL[k]
+        margin = mask & ~padded[r:r + rows, c:c + cols]
         b += float(forces.face_resistance[k][margin].sum())
         h += float(forces.face_thrust[k][margin].sum())
     return b, h
@@ -465,7 +471,7 @@ def cluster_factor_of_safety(forces, mask):
 
     Notes
     -----
-    A face counts when its cell is in S and the cell across it is not (or is
+    A pair counts when its cell is in S and the partner is not (or is
     nodata, or off the grid): the margin of S. This is a direct sum with no
     graph, used to recheck every cluster the cut reports.
 
@@ -498,7 +504,7 @@ def cluster_factor_of_safety(forces, mask):
 
 
 def nonsubmodular_faces(forces, lam=1.0):
-    """Faces where the pair term of g_lam is not submodular.
+    """Cell pairs where the pair term of g_lam is not submodular.
 
     Parameters
     ----------
@@ -508,23 +514,25 @@ def nonsubmodular_faces(forces, lam=1.0):
 
     Returns
     -------
-    east : numpy.ndarray of bool, shape (rows, cols - 1)
-        Face between (r, c) and (r, c + 1) fails the check.
-    south : numpy.ndarray of bool, shape (rows - 1, cols)
-        Face between (r, c) and (r + 1, c) fails the check.
+    numpy.ndarray of bool, shape (8, rows, cols)
+        ``out[j, r, c]``: the pair of cell (r, c) and its partner across
+        step k = HALF[j] (k = 0, 1, 2, 3, 8, 9, 10, 11: east, north-east,
+        north, north-west and the four knight moves between them; each
+        unordered pair once) fails the check; False where the partner is off
+        the grid or nodata.
 
     Notes
     -----
-    For the face between i and j, phi(1, 0) = W_ij - lam H_ij and
+    For the pair of i and j, phi(1, 0) = W_ij - lam H_ij and
     phi(0, 1) = W_ji - lam H_ji; the pair term is submodular iff their sum is
-    >= 0 (docs/methods.md, "Multi-cell failure clusters"). With the face model of
-    :func:`cluster_forces` the sum is
-    L [c^2 (toe + head - lam P_a) + 2 (1 - c^2) side], so it fails only where
-    eta P_p + c_r,lat z < lam P_a on a face that runs across the slope: with
-    the inclined-backfill pressures, near and beyond phi' unless lateral
-    roots hold the head.
-    Where it fails, the cut uses the modular lower bound W_ij x_i + W_ji x_j
-    of that pair (see :mod:`slopescreen.clusters.cut`).
+    >= 0 (docs/methods.md, "Multi-cell failure clusters"). With the pair
+    model of :func:`cluster_forces` the sum is
+    a_k [c^2 (toe + head - lam P_a) + 2 (1 - c^2) side], so it fails only
+    where eta P_p + c_r,lat z < lam P_a on a pair that runs along the slope
+    (c != 0): with the inclined-backfill pressures, near and beyond phi'
+    unless lateral roots hold the head. Where it fails, the cut uses the
+    modular lower bound W_ij x_i + W_ji x_j of that pair (see
+    :mod:`slopescreen.clusters.cut`).
 
     Examples
     --------
@@ -532,17 +540,23 @@ def nonsubmodular_faces(forces, lam=1.0):
     >>> kw = dict(dx=5.0, dy=5.0, cohesion_kpa=0.0, root_cohesion_kpa=0.0,
     ...     lateral_root_cohesion_kpa=0.0, friction_deg=30.0, unit_weight_kn_m3=18.0)
     >>> f = cluster_forces(np.full((3, 3), 25.0), np.full((3, 3), 180.0), 1.0, 0.0, **kw)
-    >>> int(nonsubmodular_faces(f, 1.0)[1].sum())
+    >>> int(nonsubmodular_faces(f, 1.0).sum())
     0
 
     At slope = phi' the inclined K_p and K_a are equal, so with eta = 0.5
-    and no roots every face across the slope fails the check:
+    and no roots the pairs that run nearly along the slope fail the check:
+    on a 3 x 3 grid the 6 north-south pairs and the 4 steep knight pairs
+    (c^2 = 0.8); the diagonals (c^2 = 0.5) keep enough side resistance:
 
     >>> f = cluster_forces(np.full((3, 3), 30.0), np.full((3, 3), 180.0), 1.0, 0.0, **kw)
-    >>> int(nonsubmodular_faces(f, 1.0)[1].sum())
-    6
+    >>> int(nonsubmodular_faces(f, 1.0).sum())
+    10
     """
     t = forces.face_resistance - float(lam) * forces.face_thrust
-    east = (t[0][:, :-1] + t[2][:, 1:]) < 0.0
-    south = (t[3][:-1, :] + t[1][1:, :]) < 0.0
-    return east, south
+    valid = forces.valid
+    rows, cols = valid.shape
+    out = np.zeros((HALF.size,) + valid.shape, dtype=bool)
+    for j, k in enumerate(HALF):
+        ps, qs = pair_slices(k, rows, cols)
+        out[j][ps] = valid[ps] & valid[qs] & ((t[k][ps] + t[OPPOSITE[k]][qs]) < 0.0)
+    return out

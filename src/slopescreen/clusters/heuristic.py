@@ -24,7 +24,8 @@ import numpy as np
 from scipy import ndimage
 
 from .cut import integer_terms, magnitude, pair_terms, scale_for, solve_window
-from .local_search import _DC, _DR, local_search
+from ._faces import FACE_DCOL, FACE_DROW, HALF, N_FACES, OPPOSITE, REACH, pair_slices
+from .local_search import local_search
 from .search import FOUR_CONNECTED
 
 __all__ = ["BandTerms", "band_terms", "set_ratio", "band_heuristic", "local_search",
@@ -36,13 +37,13 @@ class BandTerms(NamedTuple):
     valid: np.ndarray
     """Cells that may join a set, (h, w) bool."""
     cn: np.ndarray
-    """c_N: R_i plus every face resistance of i, (h, w)."""
+    """c_N: R_i plus every pair resistance of i, (h, w)."""
     cd: np.ndarray
     """c_D: D_i plus every active thrust of i, (h, w)."""
     pn: np.ndarray
-    """p_N[k, i]: resistance given back when i and its neighbour across k are both in S, (4, h, w)."""
+    """p_N[k, i]: resistance given back when i and its partner i + e_k are both in S, (16, h, w)."""
     pd: np.ndarray
-    """p_D[k, i]: thrust given back likewise, (4, h, w)."""
+    """p_D[k, i]: thrust given back likewise, (16, h, w)."""
     driving: np.ndarray
     """D_i alone (basal driving force), (h, w); 0 at invalid cells."""
 
@@ -84,20 +85,17 @@ def band_terms(sub):
     cd = np.where(valid, np.nan_to_num(sub.driving) + fh.sum(axis=0), 0.0)
     pn = np.zeros_like(fw)
     pd = np.zeros_like(fh)
-    both = valid[:, :-1] & valid[:, 1:]
-    e_n = np.where(both, fw[0][:, :-1] + fw[2][:, 1:], 0.0)
-    e_d = np.where(both, fh[0][:, :-1] + fh[2][:, 1:], 0.0)
-    pn[0][:, :-1] = e_n
-    pn[2][:, 1:] = e_n
-    pd[0][:, :-1] = e_d
-    pd[2][:, 1:] = e_d
-    both = valid[:-1, :] & valid[1:, :]
-    s_n = np.where(both, fw[3][:-1, :] + fw[1][1:, :], 0.0)
-    s_d = np.where(both, fh[3][:-1, :] + fh[1][1:, :], 0.0)
-    pn[3][:-1, :] = s_n
-    pn[1][1:, :] = s_n
-    pd[3][:-1, :] = s_d
-    pd[1][1:, :] = s_d
+    rows, cols = valid.shape
+    for k in HALF:
+        ko = OPPOSITE[k]
+        ps, qs = pair_slices(k, rows, cols)
+        both = valid[ps] & valid[qs]
+        pair_n = np.where(both, fw[k][ps] + fw[ko][qs], 0.0)
+        pair_d = np.where(both, fh[k][ps] + fh[ko][qs], 0.0)
+        pn[k][ps] = pair_n
+        pn[ko][qs] = pair_n
+        pd[k][ps] = pair_d
+        pd[ko][qs] = pair_d
     drv = np.where(valid, np.nan_to_num(sub.driving), 0.0)
     return BandTerms(valid, cn, cd, pn, pd, drv)
 
@@ -107,12 +105,12 @@ def set_ratio(terms, mask):
     m = np.asarray(mask, dtype=bool)
     n = float(terms.cn[m].sum())
     d = float(terms.cd[m].sum())
-    # each face with both cells in S appears twice over the four directions
-    pad = np.pad(m, 1)
+    # each pair with both cells in S appears twice over the 16 directions
+    pad = np.pad(m, REACH)
     h, w = m.shape
-    for k in range(4):
-        nb = pad[1 + _DR[k]:1 + _DR[k] + h, 1 + _DC[k]:1 + _DC[k] + w]
-        both = m & nb
+    for k in range(N_FACES):
+        r, c = REACH + FACE_DROW[k], REACH + FACE_DCOL[k]
+        both = m & pad[r:r + h, c:c + w]
         n -= 0.5 * float(terms.pn[k][both].sum())
         d -= 0.5 * float(terms.pd[k][both].sum())
     return n, d
@@ -155,8 +153,9 @@ def rectangle_starts(terms, kmin, kmax, top=4):
 
     bad = cum((~valid).astype(float))
     cn, cd = cum(terms.cn), cum(terms.cd)
-    en, ed = cum(terms.pn[0]), cum(terms.pd[0])   # east faces, on their west cell
-    sn, sd = cum(terms.pn[3]), cum(terms.pd[3])   # south faces, on their north cell
+    # each unordered pair once, on its cell p (partner p + e_k, k in HALF)
+    inner = [(int(FACE_DROW[k]), int(FACE_DCOL[k]), cum(terms.pn[k]), cum(terms.pd[k]))
+             for k in HALF]
     found = []
     for h in range(1, rows + 1):
         for w in range(max(1, -(-int(kmin) // h)), min(cols, int(kmax) // h) + 1):
@@ -165,12 +164,14 @@ def rectangle_starts(terms, kmin, kmax, top=4):
                 continue
             n = box(cn, h, w)
             d = box(cd, h, w)
-            if w > 1:
-                n = n - box(en, h, w - 1)[:, :n.shape[1]]
-                d = d - box(ed, h, w - 1)[:, :d.shape[1]]
-            if h > 1:
-                n = n - box(sn, h - 1, w)[:n.shape[0], :]
-                d = d - box(sd, h - 1, w)[:d.shape[0], :]
+            for dr, dc, pn_k, pd_k in inner:
+                # the cells p of the block whose partner lies in the block too
+                hh, ww = h - abs(dr), w - abs(dc)
+                if hh < 1 or ww < 1:
+                    continue
+                i, j = max(0, -dr), max(0, -dc)
+                n = n - box(pn_k, hh, ww)[i:i + n.shape[0], j:j + n.shape[1]]
+                d = d - box(pd_k, hh, ww)[i:i + d.shape[0], j:j + d.shape[1]]
             with np.errstate(divide="ignore", invalid="ignore"):
                 q = np.where(ok & (d > 0), n / d, np.inf)
             k = int(np.argmin(q))

@@ -12,12 +12,13 @@ import math
 import numpy as np
 
 from .._numba import njit
+from ._faces import FACE_DCOL, FACE_DROW, HALF, N_FACES
 
 __all__ = ["local_search"]
 
 _DR = (0, -1, 0, 1)
 _DC = (1, 0, -1, 0)
-"""Row and column steps of the four faces (east, north, west, south)."""
+"""Row and column steps to the four cells that share a side (the set's connectivity)."""
 
 
 @njit
@@ -109,9 +110,9 @@ def _toggle_delta(cn, cd, pn, pd, mask, r, c):
     h, w = mask.shape
     dn = cn[r, c]
     dd = cd[r, c]
-    for k in range(4):
-        rr = r + _DR[k]
-        cc = c + _DC[k]
+    for k in range(N_FACES):
+        rr = r + FACE_DROW[k]
+        cc = c + FACE_DCOL[k]
         if 0 <= rr < h and 0 <= cc < w and mask[rr, cc]:
             dn -= pn[k, r, c]
             dd -= pd[k, r, c]
@@ -185,9 +186,9 @@ def _local_search_kernel(cn, cd, pn, pd, valid, mask, kmin, kmax, max_moves):
                 size += 1
                 n += cn[r, c]
                 d += cd[r, c]
-                for k in (0, 3):
-                    rr = r + _DR[k]
-                    cc = c + _DC[k]
+                for k in HALF:  # each pair inside the set once
+                    rr = r + FACE_DROW[k]
+                    cc = c + FACE_DCOL[k]
                     if 0 <= rr < h and 0 <= cc < w and mask[rr, cc]:
                         n -= pn[k, r, c]
                         d -= pd[k, r, c]

@@ -75,6 +75,7 @@ from .._kernels.unit_draws import _UNIT_DOMAIN, _prepare_table, _unit_draws_kern
 from .._kernels.wetness import _storm_table_depth, _wetness_point
 from .._numba import njit, njit_parallel, prange
 from ..errors import InputError
+from ._faces import FACE_DCOL, FACE_DROW, N_FACES, REACH, face_geometry
 from ._force_kernels import _basal_forces, _face_force
 from .forces import downslope_vectors
 from .inputs import ClusterUncertainty, _encode_lateral, _nodata_faces_free
@@ -225,11 +226,11 @@ def _values_at(cache, stamp, r, c, r0, c0, s, unit, draws, lateral, slope, sca, 
     """The face inputs of cell (r, c) in sample s, computed once per sample and cluster.
 
     ``cache`` and ``stamp`` cover the cluster's bounding box with a one-cell
-    halo (origin r0 - 1, c0 - 1): a cell shared by several faces, or by its own
+    halo of the pairs' reach (origin r0 - REACH, c0 - REACH): a cell shared by several pairs, or by its own
     base and its neighbours' faces, has its storm depth search done once.
     """
-    i = r - r0 + 1
-    j = c - c0 + 1
+    i = r - r0 + REACH
+    j = c - c0 + REACH
     out = cache[i, j]
     if stamp[i, j] != s:
         _sample_values(out, r, c, s, unit, draws, lateral, slope, sca, wet_fixed, rain_kind,
@@ -240,7 +241,8 @@ def _values_at(cache, stamp, r, c, r0, c0, s, unit, draws, lateral, slope, sca, 
 
 @njit_parallel
 def _cluster_fs_kernel(ptr, cells_r, cells_c, slope, down, unit, valid, sca, wet_fixed,
-                       rain_kind, rain, draws, lateral, dx, dy, eta, jaky_full, slope_normal,
+                       rain_kind, rain, draws, lateral, dx, dy, geometry, eta, jaky_full,
+                       slope_normal,
                        free_nodata, n_depths, z_min, peak, out):
     rows, cols = unit.shape
     n_c = ptr.size - 1
@@ -260,8 +262,8 @@ def _cluster_fs_kernel(ptr, cells_r, cells_c, slope, down, unit, valid, sca, wet
         member = np.zeros((r1 - r0, c1 - c0), dtype=np.bool_)
         for t in range(lo, hi):
             member[cells_r[t] - r0, cells_c[t] - c0] = True
-        cache = np.empty((r1 - r0 + 2, c1 - c0 + 2, 10))
-        stamp = np.full((r1 - r0 + 2, c1 - c0 + 2), -1, dtype=np.int64)
+        cache = np.empty((r1 - r0 + 2 * REACH, c1 - c0 + 2 * REACH, 10))
+        stamp = np.full((r1 - r0 + 2 * REACH, c1 - c0 + 2 * REACH), -1, dtype=np.int64)
         nb = np.empty(10)
         for s in range(samples):
             num = 0.0
@@ -276,9 +278,9 @@ def _cluster_fs_kernel(ptr, cells_r, cells_c, slope, down, unit, valid, sca, wet
                                             draws[unit[r, c], _ROOT, s], own[6], area)
                 num += r_i
                 den += d_i
-                for k in range(4):
-                    rr = r + (0, -1, 0, 1)[k]
-                    cc = c + (1, 0, -1, 0)[k]
+                for k in range(N_FACES):
+                    rr = r + FACE_DROW[k]
+                    cc = c + FACE_DCOL[k]
                     inside = 0 <= rr < rows and 0 <= cc < cols
                     if (inside and r0 <= rr < r1 and c0 <= cc < c1
                             and member[rr - r0, cc - c0]):
@@ -291,8 +293,8 @@ def _cluster_fs_kernel(ptr, cells_r, cells_c, slope, down, unit, valid, sca, wet
                         face_nb = _values_at(cache, stamp, rr, cc, r0, c0, s, unit, draws,
                                              lateral, slope, sca, wet_fixed, rain_kind, rain,
                                              down, slope_normal, n_depths, z_min, peak)
-                    length = dy if k % 2 == 0 else dx
-                    w, h = _face_force(k, length, own, face_nb, has_nb, eta, jaky_full)
+                    w, h = _face_force(geometry[0, k], geometry[1, k], geometry[2, k], own,
+                                       face_nb, has_nb, eta, jaky_full)
                     num += w
                     den += h
             if den <= 0.0 or num >= FS_CAP * den:
@@ -425,7 +427,7 @@ def cluster_failure_probability(clusters, slope_deg, aspect_deg, unit_index=None
     >>> res = cluster_failure_probability(lab, np.full((6, 6), 30.0), np.full((6, 6), 180.0),
     ...     dx=5.0, dy=5.0, uncertainty=unc, wetness=0.3)
     >>> res.ids.tolist(), float(res.p_f[0])
-    ([1], 0.495)
+    ([1], 0.56)
 
     The same call in the loose form:
 
@@ -433,7 +435,7 @@ def cluster_failure_probability(clusters, slope_deg, aspect_deg, unit_index=None
     ...     np.zeros((6, 6), int), t, lateral_root_cohesion_kpa=1.0, dx=5.0, dy=5.0,
     ...     wetness=0.3, samples=200, seed=3)
     >>> float(res.p_f[0])
-    0.495
+    0.56
     """
     slope, _ = _validate.surface(slope_deg, name="slope_deg", min_size=1)
     dx, dy = _validate.cell_size(dx, dy)
@@ -487,7 +489,8 @@ def cluster_failure_probability(clusters, slope_deg, aspect_deg, unit_index=None
     down = downslope_vectors(slope, aspect)
     out = np.empty((ids.size, n), dtype=np.float64)
     _cluster_fs_kernel(ptr, rr, cc, slope, down, unit.astype(np.int64), valid, sca, wet,
-                       rain_kind, rain_vec, draws, lateral, dx, dy, eta, bool(jaky_full),
+                       rain_kind, rain_vec, draws, lateral, dx, dy,
+                       np.array(face_geometry(dx, dy)), eta, bool(jaky_full),
                        _validate.depth_measured(unc.depth_measured), free_nodata, unc.n_depths,
                        unc.min_failure_depth_m, peak_table(), out)
     p = (out < 1.0).mean(axis=1) if ids.size else np.zeros(0)

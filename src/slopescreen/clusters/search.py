@@ -5,12 +5,13 @@ Why the components of the lam = 1 minimiser are failing clusters
 Let S be the **least** minimiser of g = g_1 (the intersection of all
 minimisers; it is itself a minimiser because g is submodular, and it is
 the set reachable from the source in the residual graph of a maximum flow).
-Split S into its 4-connected components C_1 .. C_m.
+Split S into its components C_1 .. C_m joined through the 16 cell pairs
+that carry margin forces (:func:`~slopescreen.clusters._faces.pair_components`).
 
-1. Components share no face: two cells of different components are never
-   4-neighbours, so every margin face of S has exactly one cell in exactly
-   one component and the other cell outside S. The basal terms are sums
-   over cells. Hence g(S) = sum_j g(C_j).
+1. Components share no pair: two cells of different components are never
+   partners, so every margin pair of S has exactly one cell in exactly one
+   component and the other cell outside S. The basal terms are sums over
+   cells. Hence g(S) = sum_j g(C_j).
 2. For the same reason g(S \ C_j) = g(S) - g(C_j).
 3. If some g(C_j) >= 0, then g(S \ C_j) <= g(S), so S \ C_j is also a
    minimiser, strictly smaller than S: impossible for the least minimiser.
@@ -25,7 +26,7 @@ reported cluster is rechecked from the force terms and kept only if FS < 1.
 
 Convexity and tightness (Lovasz 1983; the min-cut form of submodular
 pseudo-boolean minimisation, e.g. Kolmogorov and Zabih 2004, both from
-memory): when every face has phi(1,0) + phi(0,1) >= 0, g_lam is a sum of
+memory): when every pair has phi(1,0) + phi(0,1) >= 0, g_lam is a sum of
 unary terms and nonnegative cut terms, its Lovasz extension is convex and
 piecewise linear, the LP over [0,1]^n is tight and is the dual of the
 s-t minimum cut solved here. The tests check this against every subset of
@@ -65,6 +66,7 @@ from .cut import (
     scale_for,
     solve_window,
 )
+from ._faces import REACH, pair_components
 from .forces import ClusterForces, cluster_factor_of_safety
 
 __all__ = [
@@ -76,7 +78,7 @@ __all__ = [
 ]
 
 FOUR_CONNECTED = ndimage.generate_binary_structure(2, 1)
-"""Cells are joined through faces only: diagonal cells share no face."""
+"""Cells that share a side: the connectivity of a size-resolved cluster (a modelling choice)."""
 
 
 def _sub(forces, window):
@@ -202,7 +204,7 @@ def least_stable_in_window(forces, window, *, max_iter=60):
         if value == 0:
             proven = lam
             break
-        labels, n = ndimage.label(mask, structure=FOUR_CONNECTED)
+        labels, n = pair_components(mask)
         found = None
         for i in range(1, n + 1):
             comp = labels == i
@@ -385,7 +387,7 @@ def failing_set(forces, *, tile_cells=200, halo_cells=24, max_rounds=4, scale=No
     rows, cols = valid.shape
     unary, cap, n_mod = pair_terms(forces, 1.0)
     m = np.where(valid, magnitude(unary, cap), 0.0)
-    side = tile_cells + 2 * halo_cells + 2
+    side = tile_cells + 2 * halo_cells + 2 * REACH
     if scale is None:
         scale = scale_for(max_box_sum(m, min(rows, 2 * side), min(cols, 2 * side)))
     # the scale may have been made from the very sum checked against it (a grid or window
@@ -422,7 +424,8 @@ def failing_set(forces, *, tile_cells=200, halo_cells=24, max_rounds=4, scale=No
         progress = False
         for sl in ndimage.find_objects(labels):
             win = (sl[0].start, sl[0].stop, sl[1].start, sl[1].stop)
-            ring = m[max(0, win[0] - 1):win[1] + 1, max(0, win[2] - 1):win[3] + 1]
+            ring = m[max(0, win[0] - REACH):win[1] + REACH,
+                     max(0, win[2] - REACH):win[3] + REACH]
             if float(ring.sum()) > limit:
                 continue  # too large for the scale: stays undecided
             lo, _ = solve_window(ui, ci, valid, win, boundary_in=lower)

@@ -209,7 +209,7 @@ def size_resolved_clusters(forces, *, candidates, min_area_m2, max_area_m2, band
         inside the window; ``relaxation_bound`` the convex relaxation's
         bound (it sees the lower area limit only); ``proven`` is True when
         ``lower_bound`` meets ``fs`` within a relative 1e-6; ``method`` says
-        what settled it ("cut", "relaxation", "milp"; "time_limit" for an
+        what settled it ("cut", "enumeration", "relaxation", "milp"; "time_limit" for an
         unproven answer; "none" when no set exists). A cluster that is the
         answer of a band in several windows is listed once, with the first
         window.
@@ -251,7 +251,7 @@ def size_resolved_clusters(forces, *, candidates, min_area_m2, max_area_m2, band
     >>> res = size_resolved_clusters(f, candidates=[(0, 6, 0, 6)], min_area_m2=25.0,
     ...     max_area_m2=400.0, bands=2)
     >>> [int(k) for k in res.table["n_cells"]], bool(res.table["proven"].all())
-    ([3, 15], True)
+    ([3, 16], True)
     """
     cell_area = forces.dx * forces.dy
     pairs = area_bands(min_area_m2, max_area_m2, cell_area, bands)

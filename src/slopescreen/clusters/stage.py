@@ -36,7 +36,8 @@ from .. import _validate
 from .forces import _extent, cluster_factor_of_safety, cluster_forces, nonsubmodular_faces
 from .inputs import ClusterOptions, ClusterStrength, ClusterUncertainty
 from .probability import cluster_failure_probability
-from .search import FOUR_CONNECTED, _sub, failing_set, fs_bound_map
+from ._faces import HALF, PAIR_STRUCTURE, pair_components, pair_slices
+from .search import _sub, failing_set, fs_bound_map
 from .sizes import candidate_windows, size_resolved_clusters
 
 __all__ = ["ClusterResult", "TABLE_COLUMNS", "failure_clusters", "cluster_table"]
@@ -225,8 +226,8 @@ def failure_clusters(slope_deg, depth_m, wetness, *, dx, dy, aspect_deg, strengt
                             depth_measured=depth_measured, nodata_faces=opts.nodata_faces)
     fset = failing_set(forces, tile_cells=opts.tile_cells, halo_cells=opts.halo_cells)
     undecided = fset.upper & ~fset.lower
-    labels, n = ndimage.label(fset.lower, structure=FOUR_CONNECTED)
-    near_undecided = ndimage.binary_dilation(undecided, structure=FOUR_CONNECTED)
+    labels, n = pair_components(fset.lower)
+    near_undecided = ndimage.binary_dilation(undecided, structure=PAIR_STRUCTURE)
     keep = np.zeros(n + 1, dtype=bool)
     proven = []
     for i, sl in enumerate(ndimage.find_objects(labels), start=1):
@@ -292,15 +293,16 @@ def _add_probability(table, labels, sizes, slope_deg, aspect_deg, wetness, dx, d
 
 
 def _modular_face_counts(forces, labels, n):
-    """Per cluster id 0..n: the faces touching it whose pair term of g_1 is not submodular."""
-    east, south = nonsubmodular_faces(forces, 1.0)
-    valid = forces.valid
-    east = east & valid[:, :-1] & valid[:, 1:]
-    south = south & valid[:-1, :] & valid[1:, :]
+    """Per cluster id 0..n: the cell pairs touching it whose pair term of g_1 is not submodular."""
+    bad = nonsubmodular_faces(forces, 1.0)
+    rows, cols = labels.shape
     counts = np.zeros(n + 1, dtype=np.int64)
-    for a, b in ((labels[:, :-1][east], labels[:, 1:][east]),
-                 (labels[:-1, :][south], labels[1:, :][south])):
+    for j, k in enumerate(HALF):
+        ps, qs = pair_slices(k, rows, cols)
+        hit = bad[j][ps]  # False where either cell is nodata
+        a = labels[ps][hit]
+        b = labels[qs][hit]
         counts += np.bincount(a, minlength=n + 1)
-        counts += np.bincount(np.where(b != a, b, 0), minlength=n + 1)  # a face counts once
+        counts += np.bincount(np.where(b != a, b, 0), minlength=n + 1)  # a pair counts once
     counts[0] = 0
     return counts

@@ -104,9 +104,9 @@ CHANGES = (
         "Storm response (Iverson 2000)", _has_antecedent_storm),
     MethodChange(
         "cluster_proof",
-        "A failure cluster that touches a margin face charged by its modular lower bound (a "
-        "face whose earth-pressure terms break the exact min-cut form) is now reported as not "
-        "proven; before it was reported as proven. In this run {modular_faces} such faces "
+        "A failure cluster that touches a margin cell pair charged by its modular lower bound "
+        "(a pair whose earth-pressure terms break the exact min-cut form) is now reported as "
+        "not proven; before it was reported as proven. In this run {modular_faces} such pairs "
         "were charged by their bound, over every rain case.",
         "Multi-cell failure clusters", _has_clusters),
     MethodChange(
@@ -116,6 +116,15 @@ CHANGES = (
         "to the ground, instead of the level-ground Rankine values; near the friction angle "
         "the passive resistance falls sharply, so clusters are larger and less stable, and "
         "more faces break the exact min-cut form (see the proof note of each case).",
+        "Multi-cell failure clusters", _has_clusters),
+    MethodChange(
+        "cluster_pairs",
+        "The margins of a failure cluster are now charged over 16 cell pairs per cell (the 8 "
+        "neighbours and the 8 knight moves) with Cauchy-Crofton weights, so a margin costs "
+        "the same whatever its angle to the grid; before, the 4 faces of a cell were charged "
+        "and a slope-aligned slab's FS moved by up to 8 % with its angle to the grid. Small "
+        "clusters now carry less margin than their perimeter (corners are counted short), so "
+        "their FS is a few per cent lower.",
         "Multi-cell failure clusters", _has_clusters),
     MethodChange(
         "free_nodata_faces",
