@@ -139,7 +139,7 @@ def test_band_optimum_equals_brute_force_4x5(subsets_4x5, seed, realistic, bands
                                    max_area_m2=kmax * CELL, time_limit_s=20.0, state=state)
         assert res.proven and res.method in ("cut", "enumeration", "relaxation", "milp")
         assert res.fs == pytest.approx(best, rel=1e-9)
-        assert res.lower_bound <= res.fs and res.lower_bound >= best * (1 - 1e-6)
+        assert res.lower_bound <= res.fs and res.lower_bound >= best * (1 - 1e-4)
         # the answer is a connected set of the band, and its FS recomputed from scratch
         assert ndimage.label(res.mask)[1] == 1 and kmin <= res.mask.sum() <= kmax
         assert cluster_factor_of_safety(f, res.mask) == pytest.approx(res.fs, rel=1e-12)
@@ -252,7 +252,7 @@ def test_size_resolved_table_rows_are_real_clusters():
         assert t["band_min_m2"][i] <= mask.sum() * CELL <= t["band_max_m2"][i]
         assert cluster_factor_of_safety(f, mask) == pytest.approx(t["fs"][i], rel=1e-12)
         assert t["lower_bound"][i] <= t["fs"][i]
-        assert t["proven"][i] == (t["lower_bound"][i] >= t["fs"][i] * (1 - 1e-6))
+        assert t["proven"][i] == (t["lower_bound"][i] >= t["fs"][i] * (1 - 1e-4))
         r0, r1, c0, c1 = t["row0"][i], t["row1"][i], t["col0"][i], t["col1"][i]
         assert not mask[:r0].any() and not mask[r1:].any()
         assert not mask[:, :c0].any() and not mask[:, c1:].any()

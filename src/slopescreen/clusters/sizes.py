@@ -208,7 +208,7 @@ def size_resolved_clusters(forces, *, candidates, min_area_m2, max_area_m2, band
         proven lower bound on the FS of every connected cluster of the band
         inside the window; ``relaxation_bound`` the convex relaxation's
         bound (it sees the lower area limit only); ``proven`` is True when
-        ``lower_bound`` meets ``fs`` within a relative 1e-6; ``method`` says
+        ``lower_bound`` meets ``fs`` within a relative 1e-4; ``method`` says
         what settled it ("cut", "enumeration", "relaxation", "milp"; "time_limit" for an
         unproven answer; "none" when no set exists). A cluster that is the
         answer of a band in several windows is listed once, with the first
