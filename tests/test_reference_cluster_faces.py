@@ -14,6 +14,7 @@ import numpy as np
 import pytest
 
 from slopescreen.clusters import cluster_factor_of_safety, cluster_forces, face_pressures
+from pair_oracle import STEPS
 from slopescreen.clusters._faces import face_geometry
 
 SLOPE = 34.0
@@ -102,8 +103,6 @@ def test_uniform_margin_charge_per_metre_is_isotropic(angle_deg):
     # counted on the raster with their weights, charge r = 1 per metre for a uniform r (the
     # Cauchy-Crofton property; 16 directions leave a ripple of about 1.4 %)
     ue, un, factor = face_geometry(1.0, 1.0)
-    steps = [(0, 1), (-1, 1), (-1, 0), (-1, -1), (0, -1), (1, -1), (1, 0), (1, 1),
-             (-1, 2), (-2, 1), (-2, -1), (-1, -2), (1, -2), (2, -1), (2, 1), (1, 2)]
     n = 400
     rr, cc = np.mgrid[0:n, 0:n]
     a = math.radians(angle_deg)
@@ -112,7 +111,7 @@ def test_uniform_margin_charge_per_metre_is_isotropic(angle_deg):
     inside = s < 0
     core = slice(100, 300)
     total = 0.0
-    for k, (dr, dc) in enumerate(steps):
+    for k, (dr, dc) in enumerate(STEPS):
         across = np.zeros_like(inside)
         across[max(0, -dr):n - max(0, dr), max(0, -dc):n - max(0, dc)] = ~inside[
             max(0, dr):n - max(0, -dr), max(0, dc):n - max(0, -dc)]

@@ -18,6 +18,7 @@ import numpy as np
 import pytest
 
 from earth_pressure_oracle import inclined_rankine
+from pair_oracle import HALF_STEPS, STEPS, cc_factors, opposite
 from slopescreen.clusters import (
     cluster_factor_of_safety,
     cluster_forces,
@@ -41,39 +42,6 @@ from slopescreen.stability import factor_of_safety
 
 GW = 9.81
 
-# the 16 steps (row step, column step); rows grow southward, columns eastward. k = 0..7: the 8
-# neighbours counter-clockwise from east; k = 8..15: the knight moves counter-clockwise from
-# 26.57 degrees (docs/methods.md, "Multi-cell failure clusters")
-STEPS = [(0, 1), (-1, 1), (-1, 0), (-1, -1), (0, -1), (1, -1), (1, 0), (1, 1),
-         (-1, 2), (-2, 1), (-2, -1), (-1, -2), (1, -2), (2, -1), (2, 1), (1, 2)]
-# one step of each opposite pair: every unordered pair of cells once
-HALF_STEPS = (0, 1, 2, 3, 8, 9, 10, 11)
-
-
-def _opposite(k):
-    """The step seen from the partner: e_opposite(k) = -e_k."""
-    return (k // 8) * 8 + (k % 8 + 4) % 8
-
-
-def _cc_factors(dx, dy):
-    """Cauchy-Crofton factor a_k = dphi_k dx dy / (2 |e_k|) of each step, m.
-
-    dphi_k is half the angle between the two step directions next to e_k around the circle
-    (so the dphi_k sum to 2 pi); Boykov and Kolmogorov (2003), from memory. Written out here
-    with its own angle sort.
-    """
-    ang = [math.atan2(-dr * dy, dc * dx) % (2.0 * math.pi) for dr, dc in STEPS]
-    order = sorted(range(len(STEPS)), key=ang.__getitem__)
-    out = [0.0] * len(STEPS)
-    for pos, k in enumerate(order):
-        prev = ang[order[pos - 1]] - (2.0 * math.pi if pos == 0 else 0.0)
-        nxt = ang[order[(pos + 1) % len(order)]] + (2.0 * math.pi if pos == len(order) - 1
-                                                   else 0.0)
-        dr, dc = STEPS[k]
-        out[k] = 0.5 * (nxt - prev) * dx * dy / (2.0 * math.hypot(dc * dx, dr * dy))
-    return out
-
-
 def _shifted_out(mask, dr, dc):
     """Cells of ``mask`` whose partner (r + dr, c + dc) is outside the mask or off the grid."""
     rows, cols = mask.shape
@@ -95,23 +63,23 @@ def test_step_list_and_factors_by_hand():
     # the literal steps: 16 distinct, each with its opposite, on the 5 x 5 stencil
     assert len(set(STEPS)) == 16 and all(max(abs(dr), abs(dc)) <= 2 for dr, dc in STEPS)
     for k, (dr, dc) in enumerate(STEPS):
-        assert STEPS[_opposite(k)] == (-dr, -dc)
-    assert sorted(HALF_STEPS + tuple(_opposite(k) for k in HALF_STEPS)) == list(range(16))
+        assert STEPS[opposite(k)] == (-dr, -dc)
+    assert sorted(HALF_STEPS + tuple(opposite(k) for k in HALF_STEPS)) == list(range(16))
     # square cells: dphi = atan(1/2) on the axes, atan(3/4)/2 on the diagonals, pi/8 on the
     # knight moves (26.57, 18.43 and 22.5 degrees; angles between the steps, by hand)
-    a = _cc_factors(1.0, 1.0)
+    a = cc_factors(1.0, 1.0)
     assert a[0] == pytest.approx(math.atan(0.5) / 2.0, rel=1e-12)
     assert a[1] == pytest.approx(math.atan(0.75) / 2.0 / (2.0 * math.sqrt(2.0)), rel=1e-12)
     assert a[8] == pytest.approx(math.pi / 8.0 / (2.0 * math.sqrt(5.0)), rel=1e-12)
     # the dphi sum to 2 pi on any cell shape
     for dx, dy in ((1.0, 1.0), (4.0, 5.0), (10.0, 3.0)):
         dphi = [2.0 * f * math.hypot(dc * dx, dr * dy) / (dx * dy)
-                for f, (dr, dc) in zip(_cc_factors(dx, dy), STEPS)]
+                for f, (dr, dc) in zip(cc_factors(dx, dy), STEPS)]
         assert sum(dphi) == pytest.approx(2.0 * math.pi, rel=1e-12)
     # a lone cell's pairs add up to 2 atan(1/2) + atan(3/4)/sqrt 2 + pi/(2 sqrt 5) = 2.0848 dx,
     # not its perimeter 4 dx: corners are counted short (docs/methods.md, "What it costs")
     lone = 2.0 * math.atan(0.5) + math.atan(0.75) / math.sqrt(2.0) + math.pi / (2 * math.sqrt(5))
-    assert sum(_cc_factors(1.0, 1.0)) == pytest.approx(lone, rel=1e-12)
+    assert sum(cc_factors(1.0, 1.0)) == pytest.approx(lone, rel=1e-12)
     assert lone == pytest.approx(2.0848, abs=1e-4)
     # the forces carry these weights: a lone flat cell (no downslope direction, c = 0) has
     # W = a_k side towards every partner (docs/methods.md, "Multi-cell failure clusters")
@@ -120,7 +88,7 @@ def test_step_list_and_factors_by_hand():
     f = cluster_forces(np.zeros((5, 5)), np.full((5, 5), 180.0), 1.0, 0.0, dx=4.0, dy=5.0,
                        root_cohesion_kpa=0.0, **kw)
     side = (1.0 + 2.0) * 1.0 + (1 - 0.5) * math.tan(math.radians(30.0)) * 18.0 / 2.0
-    assert np.allclose(f.face_resistance[:, 2, 2], np.array(_cc_factors(4.0, 5.0)) * side,
+    assert np.allclose(f.face_resistance[:, 2, 2], np.array(cc_factors(4.0, 5.0)) * side,
                        rtol=1e-12)
     assert not f.face_thrust[:, 2, 2].any()
 
@@ -199,7 +167,7 @@ def _hand_slab(theta, phi, gamma, gsat, z, m, c_base, c_lat, eta, dx, dy, nr, nc
     drive, basal = _basal(theta, phi, gamma, gsat, z, m, c_base, nr * nc * dx * dy)
     toe, head, side, active = _per_metre(theta, phi, gamma, gsat, z, m, c_lat, eta)
     b = h = 0.0
-    for a, (dr, dc) in zip(_cc_factors(dx, dy), STEPS):
+    for a, (dr, dc) in zip(cc_factors(dx, dy), STEPS):
         count = nr * nc - max(nr - abs(dr), 0) * max(nc - abs(dc), 0)
         # unit step (east, north) = (dc dx, -dr dy) / |e|; downslope (0, -1)
         c = dr * dy / math.hypot(dc * dx, dr * dy)
@@ -399,7 +367,7 @@ def test_lp_relaxation_in_cvxpy_equals_cut_and_brute_force():
                         ps.append(p)
                         qs.append(rr * cols + cc)
                         aa.append(t[k, r, c])
-                        bb.append(t[_opposite(k), rr, cc])
+                        bb.append(t[opposite(k), rr, cc])
         ps, qs, aa, bb = (np.array(v) for v in (ps, qs, aa, bb))
         # every interior pair on the 16 steps, once: 8 directions of (rows - |dr|)(cols - |dc|)
         assert len(ps) == sum((rows - abs(STEPS[k][0])) * (cols - abs(STEPS[k][1]))

@@ -16,17 +16,9 @@ from slopescreen.clusters import cluster_factor_of_safety, cluster_forces, least
 from slopescreen.clusters.band import WindowBands, least_stable_in_band, relaxation_bound
 from slopescreen.clusters.heuristic import band_terms, local_search, set_ratio
 from slopescreen.clusters.sizes import size_resolved_clusters
+from pair_oracle import SIDE_STEPS, STEPS  # the pair steps written out by hand, not from the package
 
 CELL = 25.0  # 5 m x 5 m cells
-# side-sharing steps (row, column; row grows southward): clusters of the size-resolved search
-# are 4-connected sets, scipy.ndimage.label's default cross structure
-SIDE_STEPS = ((0, 1), (-1, 0), (0, -1), (1, 0))
-# the 16 directed cell pairs that carry margin forces (docs/methods.md, "Multi-cell failure
-# clusters"): codes 0..7 the 8 neighbours counter-clockwise from east, 8..15 the knight moves
-# counter-clockwise from one row up and two columns east; written out here, not taken from the
-# package, so that the brute force checks the code's pair tables too
-PAIR_STEPS = ((0, 1), (-1, 1), (-1, 0), (-1, -1), (0, -1), (1, -1), (1, 0), (1, 1),
-              (-1, 2), (-2, 1), (-2, -1), (-1, -2), (1, -2), (2, -1), (2, 1), (1, 2))
 
 
 def _instance(seed, rows, cols, realistic=True, lateral_kpa=8.0):
@@ -89,7 +81,7 @@ def _connected_subsets(rows, cols):
 def _brute(forces, sets):
     """FS of every set (bit masks) summed pair by pair in plain numpy; returns (x, fs).
 
-    Pair k of cell p counts when p is in the set and p + PAIR_STEPS[k] is not or lies off the
+    Pair k of cell p counts when p is in the set and p + STEPS[k] is not or lies off the
     grid (the margin of the set, docs/methods.md, "Multi-cell failure clusters").
     """
     rows, cols = forces.valid.shape
@@ -99,7 +91,7 @@ def _brute(forces, sets):
     den = x @ forces.driving.ravel()
     for p in range(n):
         r, c = divmod(p, cols)
-        for k, (dr, dc) in enumerate(PAIR_STEPS):
+        for k, (dr, dc) in enumerate(STEPS):
             rr, cc = r + dr, c + dc
             inside = 0 <= rr < rows and 0 <= cc < cols
             margin = x[:, p] & (~x[:, rr * cols + cc] if inside else True)
