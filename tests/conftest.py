@@ -23,6 +23,18 @@ def write_tif(path, array, *, crs="EPSG:32633", transform=None, nodata=-9999.0, 
     return Path(path)
 
 
+def write_line_geojson(path, coords, *, epsg=32633):
+    """Write a one-feature GeoJSON LineString (test input) with a CRS member; returns the path."""
+    import json
+
+    doc = {"type": "FeatureCollection",
+           "crs": {"type": "name", "properties": {"name": f"urn:ogc:def:crs:EPSG::{epsg}"}},
+           "features": [{"type": "Feature", "properties": {},
+                         "geometry": {"type": "LineString", "coordinates": coords}}]}
+    Path(path).write_text(json.dumps(doc), encoding="utf-8")
+    return Path(path)
+
+
 def tilted_plane(rows=30, cols=40, cell=5.0, gradient=0.3):
     """A plane falling southward with the given gradient (dz/dy), elevations in metres."""
     r = np.arange(rows)[:, None] * np.ones((1, cols))

@@ -13,7 +13,7 @@ import numpy as np
 import pytest
 from scipy import ndimage
 
-from slopescreen.demo import DEMO_SCENARIO, SOIL_UNITS, build_valley, run_demo, write_demo_inputs
+from slopescreen.demo import DEMO_SCENARIO, SOIL_UNITS, build_valley, run_demo
 from slopescreen.grid import read_back
 from slopescreen.scenario import load_scenario
 from slopescreen.terrain import slope_aspect
@@ -123,9 +123,9 @@ def test_demo_writes_a_report_a_new_user_can_read(demo):
     text = (result.output / "report.html").read_text(encoding="utf-8")
     assert "Verrow valley demo" in text
     assert "Under “wet season”" in text and "Under “design storm”" in text
-    for section in ("corridor", "inventory"):
-        assert f"configures [{section}], but this stage did not run" in text
-    assert "configures [clusters], but this stage did not run" not in text
+    assert "configures [inventory], but this stage did not run" in text
+    for section in ("runout", "corridor", "clusters"):
+        assert f"configures [{section}], but this stage did not run" not in text
     assert "Failing clusters per rain case" in text
     maps = [p for p in result.manifest["products"] if p["key"] == "map"]
     assert len(maps) == 11                                     # slope, SCA, q_cr, 4 per rain case

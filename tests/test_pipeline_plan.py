@@ -14,7 +14,7 @@ import json
 import numpy as np
 import pytest
 
-from conftest import tilted_plane, write_tif
+from conftest import tilted_plane, write_line_geojson, write_tif
 from slopescreen import pipeline, products
 from slopescreen.cli import main
 from slopescreen.grid import read_back
@@ -62,10 +62,8 @@ segment_m = 50
 @pytest.fixture
 def case(tmp_path):
     write_tif(tmp_path / "dem.tif", tilted_plane(rows=30, cols=24, cell=5.0, gradient=0.7))
-    (tmp_path / "road.geojson").write_text(
-        '{"type": "FeatureCollection", "features": [{"type": "Feature", "properties": {}, '
-        '"geometry": {"type": "LineString", "coordinates": [[10, -10], [100, -10]]}}]}',
-        encoding="utf-8")
+    # across the plane along row 20 (5 m cells from 500000, 5100000)
+    write_line_geojson(tmp_path / "road.geojson", [[500002.0, 5099897.5], [500118.0, 5099897.5]])
     path = tmp_path / "s.toml"
     path.write_text(SCENARIO, encoding="utf-8")
     return path
@@ -92,14 +90,14 @@ def test_results_are_let_go_after_their_last_reader(case):
     stages = pipeline.plan(load_scenario(case))
     last = _last_uses(stages)
     index = {s.key: i for i, s in enumerate(stages)}
-    assert last[("conditioned",)] == index[("routing",)]       # the filled DEM goes after routing
+    assert last[("conditioned",)] == index[("runout", "storm")]   # the filled DEM serves runout last
     assert last[("stability", "wet")] < index[("stability", "storm")]
 
 
 def test_plan_gives_progress_and_not_run_notes(case):
     scenario = load_scenario(case)
     assert pipeline.planned_stages(scenario) == [s.name for s in pipeline.plan(scenario) if s.show]
-    assert [n["section"] for n in pipeline.stages_not_run(scenario)] == ["corridor"]
+    assert pipeline.stages_not_run(scenario) == []
 
 
 def test_stage_results_are_frozen(case, capsys):
@@ -123,7 +121,7 @@ def test_every_product_written_is_in_the_registry_with_its_units_and_type(case, 
     for entry in manifest["products"]:
         spec = products.spec(entry["key"])
         keys.add(entry["key"])
-        assert entry["kind"] == spec.kind
+        assert entry["kind"] == spec.kind or entry["kind"] in spec.extra_kinds
         if entry["key"] != "map":
             assert (entry["rain"] is not None) == spec.per_rain
         if spec.kind == "raster":
@@ -135,7 +133,10 @@ def test_every_product_written_is_in_the_registry_with_its_units_and_type(case, 
                 assert src.tags(1)["units"] == spec.units
                 assert "Screening" in src.tags()["CAUTION"] or "screening" in src.tags()["CAUTION"]
     # storm extras, probability and clusters all ran
-    assert {"storm_flags", "failure_probability", "cluster_fs_bound", "clusters", "report"} <= keys
+    assert {"storm_flags", "failure_probability", "cluster_fs_bound", "clusters", "report",
+            "runout_count", "runout_volume", "runout_paths", "corridor_segments"} <= keys
+    kinds = {e["kind"] for e in manifest["products"] if e["key"] == "corridor_segments"}
+    assert kinds == {"vector", "csv"}
     maps = {e["path"] for e in manifest["products"] if e["key"] == "map"}
     assert {f"map_{k}.png" for k in ("slope", "specific_catchment_area", "critical_recharge")} <= maps
 

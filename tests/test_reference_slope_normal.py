@@ -271,7 +271,7 @@ def test_pipeline_without_the_key_is_vertical_as_before(tmp_path, capsys):
     (tmp_path / "b").mkdir()
     m_default = run_ok(capsys, _write(tmp_path / "a", ""))
     m_vertical = run_ok(capsys, _write(tmp_path / "b", 'depth_measured = "vertical"'))
-    assert m_default["soil"]["depth_measured"] == "vertical"
+    assert m_default["soil"]["depth_measured"] == m_vertical["soil"]["depth_measured"] == "vertical"
     for key in ("factor_of_safety", "wetness", "critical_recharge"):
         e = next(p for p in m_default["products"] if p["key"] == key)
         first = read_back(tmp_path / "a" / "out" / e["path"])[0]

@@ -403,9 +403,14 @@ max_area_m2 = 5000
 size_windows = 5
 size_bands = 1
 
+[runout]
+# angle of reach from each source's volume (the default relation); or fix it:
+# angle_of_reach_deg = 22
+
 [corridor]
 centreline = "verrow_road.geojson"
 segment_m = 100
+half_width_m = 8
 
 [inventory]
 landslides = "verrow_landslides.geojson"

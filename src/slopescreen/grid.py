@@ -42,6 +42,9 @@ horizontal for class bands) level 1 makes files about 2 % larger than GDAL's def
 and writes them more than twice as fast (measured in benchmarks/bench_run.py; see
 docs/performance.md); every GIS that reads deflate reads them."""
 
+COUNT_NODATA = -1
+"""Nodata value of int32 count bands (a count is never negative)."""
+
 _FOOT = 0.3048
 _US_SURVEY_FOOT = 1200.0 / 3937.0
 
@@ -81,6 +84,26 @@ class Grid:
     def cell_area_m2(self) -> float:
         """Plan area of one cell, m^2."""
         return self.dx_m * self.dy_m
+
+    @classmethod
+    def regular(cls, shape, *, west: float, north: float, cell_m: float, crs="EPSG:32633",
+                valid=None) -> "Grid":
+        """A north-up grid of square cells in a metre CRS, built in memory (no file).
+
+        For notebooks, tests and examples; a run reads its grid from the DEM.
+
+        Examples
+        --------
+        >>> g = Grid.regular((3, 4), west=0.0, north=30.0, cell_m=10.0)
+        >>> g.shape, g.cell_area_m2, g.transform * (4, 3)
+        ((3, 4), 100.0, (40.0, 0.0))
+        """
+        from rasterio.transform import from_origin
+
+        shape = tuple(int(n) for n in shape)
+        mask = np.ones(shape, dtype=bool) if valid is None else np.asarray(valid, dtype=bool)
+        return cls(shape, from_origin(west, north, cell_m, cell_m), CRS.from_user_input(crs),
+                   float(cell_m), float(cell_m), mask, Path("memory"))
 
 
 def _linear_unit_in_metres(crs: CRS, path: Path) -> float:
@@ -235,7 +258,8 @@ def write_raster(path, array, grid: Grid, *, description: str, units: str, cauti
 
     float arrays are written as float32 with nodata :data:`NODATA` (NaN and
     cells outside ``grid.valid`` become nodata); uint8 arrays (class codes)
-    are written as uint8 with nodata :data:`CODE_NODATA`.
+    are written as uint8 with nodata :data:`CODE_NODATA`, int32 arrays (counts)
+    as int32 with nodata :data:`COUNT_NODATA`.
 
     Parameters
     ----------
@@ -265,6 +289,8 @@ def write_raster(path, array, grid: Grid, *, description: str, units: str, cauti
         raise ValueError(f"{path.name}: array shape {array.shape} does not match grid {grid.shape}")
     if array.dtype == np.uint8:
         dtype, nodata, predictor = "uint8", CODE_NODATA, 2
+    elif array.dtype == np.int32:
+        dtype, nodata, predictor = "int32", COUNT_NODATA, 2
     else:
         dtype, nodata, predictor = "float32", float(NODATA), 3
     profile = {
@@ -298,8 +324,8 @@ def write_raster(path, array, grid: Grid, *, description: str, units: str, cauti
 
 def _encoded(block, valid, dtype, nodata):
     """One strip of a product with nodata set outside the valid cells (and at NaN)."""
-    if dtype == "uint8":
-        return np.where(valid, block, nodata).astype(np.uint8)
+    if dtype in ("uint8", "int32"):
+        return np.where(valid, block, nodata).astype(dtype)
     data = block.astype(np.float32, copy=False)
     return np.where(valid & np.isfinite(data), data, np.float32(nodata)).astype(np.float32)
 

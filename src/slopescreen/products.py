@@ -42,6 +42,7 @@ class ProductSpec:
     key : str
         Manifest key.
     kind : {"raster", "vector", "png", "html"}
+        (a vector product may also be written as ``"csv"``: same key, ``KEY.csv``)
     units : str
         Units of the values (``"1"`` dimensionless).
     title : str
@@ -55,6 +56,7 @@ class ProductSpec:
         One product per rain case.
     dtype : str or None
         ``"float32"`` for measured values, ``"uint8"`` for classes and flags,
+        ``"int32"`` for counts,
         None for non-raster products.
     style : Style or None
         Map style; a raster with a style gets a map.
@@ -68,6 +70,9 @@ class ProductSpec:
         File name of a product that is not named after its key.
     tags : mapping
         Metadata written with every copy of the product.
+    extra_kinds : tuple of str
+        Other kinds the same product is also written as (``"csv"``: the
+        table of a vector product), each its own manifest entry.
     """
 
     key: str
@@ -83,12 +88,22 @@ class ProductSpec:
     section: str | None = None
     file: str | None = None
     tags: MappingProxyType = field(default_factory=lambda: MappingProxyType({}))
+    extra_kinds: tuple = ()
 
-    def file_name(self, rain_slug: str | None = None) -> str:
-        """File name of this product (per rain case: ``KEY_RAIN.tif``)."""
+    def file_name(self, rain_slug: str | None = None, *, kind: str | None = None) -> str:
+        """File name of this product (per rain case: ``KEY_RAIN.tif``).
+
+        ``kind`` ``"csv"`` names the table copy of a vector product (``KEY.csv``).
+
+        Examples
+        --------
+        >>> spec("corridor_segments").file_name(kind="csv")
+        'corridor_segments.csv'
+        """
+        kind = kind or self.kind
+        ext = {"raster": "tif", "vector": "gpkg", "png": "png", "html": "html", "csv": "csv"}[kind]
         if self.file is not None:
-            return self.file
-        ext = {"raster": "tif", "vector": "gpkg", "png": "png", "html": "html"}[self.kind]
+            return self.file if kind == self.kind else f"{self.file.rsplit('.', 1)[0]}.{ext}"
         return f"{self.key}_{rain_slug}.{ext}" if rain_slug else f"{self.key}.{ext}"
 
 
@@ -142,6 +157,19 @@ PRODUCTS = (
     ProductSpec("clusters", "vector", "attributes carry their units in their names",
                 "Failure clusters", "Failing multi-cell clusters and the size-resolved search",
                 "clusters", section="clusters", file="clusters.gpkg"),
+    ProductSpec("runout_count", "raster", "1", "Runout reach: sources reaching each cell",
+                "Number of failure sources whose runout reaches the cell (angle of reach)",
+                "runout", per_rain=True, dtype="int32", section="runout"),
+    ProductSpec("runout_volume", "raster", "m^3", "Runout reach: largest source volume",
+                "Largest failed volume among the sources reaching the cell, m^3", "runout",
+                per_rain=True, dtype="float32", section="runout"),
+    ProductSpec("runout_paths", "vector", "attributes carry their units in their names",
+                "Runout paths", "Path of each failure source from its crown to its runout tip",
+                "runout", section="runout", file="runout_paths.gpkg"),
+    ProductSpec("corridor_segments", "vector", "attributes carry their units in their names",
+                "Corridor segments", "One row per corridor segment and rain case: reach, "
+                "sources and hazard (GeoPackage strips and a CSV table)", "corridor",
+                section="corridor", file="corridor_segments.gpkg", extra_kinds=("csv",)),
     ProductSpec("map", "png", "units of the product shown", "Map",
                 "A map of one product over a hillshade", "maps"),
     ProductSpec("report", "html", "n/a", "Report",
@@ -199,6 +227,8 @@ def products_of_section(section: str) -> tuple[str, ...]:
     >>> products_of_section("clusters")
     ('cluster_fs_bound', 'cluster_labels', 'clusters')
     >>> products_of_section("corridor")
+    ('corridor_segments',)
+    >>> products_of_section("inventory")
     ()
     """
     return tuple(p.key for p in PRODUCTS if p.section == section)

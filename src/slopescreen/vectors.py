@@ -85,6 +85,19 @@ def write_polygons(path, polygons: dict, records: list[dict], grid: Grid, *, lay
     ValueError
         A record without a polygon, or rows with different keys.
     """
+    return write_features(path, polygons, records, grid, layer=layer, caution=caution,
+                          geometry_type="MultiPolygon", metadata=metadata, add_layer=add_layer)
+
+
+def write_features(path, geometries: dict, records: list[dict], grid: Grid, *, layer: str,
+                   caution: str, geometry_type: str, metadata: dict | None = None,
+                   add_layer: bool = False) -> Path:
+    """Write features of one geometry type with attributes as a GeoPackage layer, atomically.
+
+    As :func:`write_polygons`, for ``geometry_type`` ``"MultiPolygon"``
+    (polygons are promoted), ``"LineString"`` or ``"MultiLineString"`` (lines
+    are promoted); ``geometries`` maps each record's ``"id"`` to its geometry.
+    """
     import shapely
     from pyogrio.raw import write
 
@@ -93,10 +106,16 @@ def write_polygons(path, polygons: dict, records: list[dict], grid: Grid, *, lay
     for row in records:
         if list(row) != names:
             raise ValueError("every record must have the same fields in the same order")
-        if row["id"] not in polygons:
-            raise ValueError(f"record id {row['id']} has no polygon")
-    geoms = [shapely.geometry.MultiPolygon([polygons[r["id"]]])
-             if polygons[r["id"]].geom_type == "Polygon" else polygons[r["id"]] for r in records]
+        if row["id"] not in geometries:
+            raise ValueError(f"record id {row['id']} has no polygon or line (no geometry)")
+    promote = {"MultiPolygon": ("Polygon", shapely.geometry.MultiPolygon),
+               "MultiLineString": ("LineString", shapely.geometry.MultiLineString)}
+    geoms = []
+    for r in records:
+        g = geometries[r["id"]]
+        if geometry_type in promote and g.geom_type == promote[geometry_type][0]:
+            g = promote[geometry_type][1]([g])
+        geoms.append(g)
     wkb = np.array([shapely.to_wkb(g) for g in geoms], dtype=object)
     columns = []
     for name in names:
@@ -112,12 +131,12 @@ def write_polygons(path, polygons: dict, records: list[dict], grid: Grid, *, lay
     meta = {"CAUTION": caution} | {k: str(v) for k, v in (metadata or {}).items()}
     if add_layer:
         write(str(path), wkb, columns, names, layer=layer, driver="GPKG",
-              geometry_type="MultiPolygon", crs=grid.crs.to_wkt(), layer_metadata=meta)
+              geometry_type=geometry_type, crs=grid.crs.to_wkt(), layer_metadata=meta)
         return path
     tmp = path.with_name(f".{path.stem}.partial{path.suffix}")
     try:
         write(str(tmp), wkb, columns, names, layer=layer, driver="GPKG",
-              geometry_type="MultiPolygon", crs=grid.crs.to_wkt(), layer_metadata=meta)
+              geometry_type=geometry_type, crs=grid.crs.to_wkt(), layer_metadata=meta)
         os.replace(tmp, path)
     finally:
         if tmp.exists():

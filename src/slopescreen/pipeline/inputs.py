@@ -34,6 +34,8 @@ class Inputs:
     z: np.ndarray
     grid: Grid
     soil_codes: np.ndarray | None = None
+    corridor: object = None
+    """:class:`~slopescreen.pipeline.corridor_stage.CorridorInputs` of a ``[corridor]``."""
 
 
 @dataclass
@@ -70,7 +72,25 @@ def read_inputs(scenario: Scenario) -> Inputs:
         if not (grid.valid & has_code).any():
             raise InputError(f"{soil.map.name}: soil map has no code on any valid DEM cell")
         soil_codes = np.where(grid.valid & has_code, codes, -1).astype(_code_dtype(codes))
-    return Inputs(z=z, grid=grid, soil_codes=soil_codes)
+    corridor = None
+    if scenario.corridor is not None:
+        from .corridor_stage import read_corridor
+
+        corridor = read_corridor(scenario, grid)
+        unit = scenario.corridor.engineered_soil_unit
+        if unit is not None and soil is not None:
+            soil_codes = _with_engineered_unit(scenario, grid, soil_codes, corridor.engineered,
+                                               unit)
+    return Inputs(z=z, grid=grid, soil_codes=soil_codes, corridor=corridor)
+
+
+def _with_engineered_unit(scenario, grid, soil_codes, engineered, unit):
+    """Soil codes with the engineered ground's own unit on its cells (a new array)."""
+    if soil_codes is None:  # no soil map: the one other unit everywhere
+        base = next(c for c in sorted(scenario.soil.units) if c != unit)
+        soil_codes = np.where(grid.valid, base, -1).astype(np.int64)
+    codes = np.where(engineered & grid.valid, unit, soil_codes)
+    return codes.astype(_code_dtype(codes))
 
 
 def check(scenario: Scenario) -> Inputs:

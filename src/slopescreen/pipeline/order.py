@@ -31,7 +31,9 @@ from .inputs import RunResult, read_inputs
 from .records import inputs_sha256
 from .records import manifest as manifest_of
 from .records import run_record
+from .corridor_stage import corridor_layers_stage, corridor_stage
 from .report_stage import maps_stage, report_stage
+from .runout_stage import effective_runout, runout_layers_stage, runout_stage
 from .stability_stage import (
     effective_uncertainty, probability_stage, recharge_stage, soil_cells_stage, soil_fields_stage,
     stability_stage,
@@ -92,7 +94,7 @@ def _stage(name, key, fn, needs=None, **kw) -> Stage:
 OPTIONAL_SECTIONS = ("clusters", "runout", "corridor", "inventory")
 """Optional scenario sections that turn a stage on, in report order."""
 
-BUILT_SECTIONS = ("clusters",)
+BUILT_SECTIONS = ("clusters", "runout", "corridor")
 """Optional sections whose stage exists in this version."""
 
 
@@ -121,6 +123,8 @@ def plan(scenario: Scenario) -> tuple[Stage, ...]:
         report_needs["recharge"] = ("recharge figures",)
         sampled = effective_uncertainty(scenario) is not None
         earlier, figures = [], []
+        reach = effective_runout(scenario) is not None
+        runs, corridors = [], []
         for case in scenario.rain:
             stability = ("stability", case.name)
             stages.append(_stage(f"stability: {case.name}", stability, stability_stage,
@@ -141,14 +145,60 @@ def plan(scenario: Scenario) -> tuple[Stage, ...]:
             stages.append(_stage(f"figures: {case.name}", ("figures", case.name),
                                  case_figures_stage, case_needs, case=case, show=False))
             figures.append(("figures", case.name))
+            if reach:
+                stages += _case_reach_stages(scenario, case, sampled, runs, corridors)
         report_needs["cases"] = Many(tuple(figures))
         if scenario.clusters is not None:
             stages.append(_stage("write clusters", ("cluster layers",), cluster_layers_stage,
                                  {"cases": Many(tuple(earlier))}, section="clusters"))
             report_needs["clusters"] = ("cluster layers",)
+        if reach:
+            stages += _reach_layer_stages(scenario, runs, corridors, report_needs)
     stages += [_stage("maps", ("maps",), maps_stage, {"written": WRITTEN}),
                _stage("report", ("report",), report_stage, report_needs)]
     return tuple(stages)
+
+
+def _case_reach_stages(scenario: Scenario, case, sampled: bool, runs: list,
+                       corridors: list) -> list[Stage]:
+    """Runout of one rain case and its corridor rows (right after the case's stability)."""
+    needs = {"conditioned": ("conditioned",), "cells": ("soil",), "slope": ("slope",),
+             "stability": ("stability", case.name), "earlier": Many(tuple(runs))}
+    if sampled:
+        needs["probability"] = ("probability", case.name)
+    if scenario.clusters is not None:
+        needs["clusters"] = ("clusters", case.name)
+    key = ("runout", case.name)
+    out = [_stage(f"runout: {case.name}", key, runout_stage, needs, case=case,
+                  section=_runout_section(scenario))]
+    runs.append(key)
+    if scenario.corridor is not None:
+        cneeds = {"runout": key, "stability": ("stability", case.name),
+                  "recharge": ("recharge",)}
+        if sampled:
+            cneeds["probability"] = ("probability", case.name)
+        ckey = ("corridor", case.name)
+        out.append(_stage(f"corridor: {case.name}", ckey, corridor_stage, cneeds, case=case,
+                          section="corridor", show=False))
+        corridors.append(ckey)
+    return out
+
+
+def _runout_section(scenario: Scenario) -> str:
+    """The section a runout stage belongs to (``[corridor]`` alone also asks for reach)."""
+    return "runout" if scenario.runout is not None else "corridor"
+
+
+def _reach_layer_stages(scenario: Scenario, runs, corridors, report_needs: dict) -> list[Stage]:
+    """The runout paths and the corridor table of every rain case, each one product."""
+    out = [_stage("write runout paths", ("runout layers",), runout_layers_stage,
+                  {"cases": Many(tuple(runs))}, section=_runout_section(scenario), show=False)]
+    report_needs["runout"] = ("runout layers",)
+    if scenario.corridor is not None:
+        out.append(_stage("write corridor table", ("corridor layers",), corridor_layers_stage,
+                          {"cases": Many(tuple(corridors))}, section="corridor", show=False))
+        report_needs["corridor"] = ("corridor layers",)
+    return out
 
 
 def planned_stages(scenario: Scenario) -> list[str]:

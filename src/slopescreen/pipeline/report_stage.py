@@ -38,7 +38,8 @@ def maps_stage(scenario, inputs, written: Written) -> MapsResult:
 
 
 def report_stage(scenario, inputs, written: Written, manifest: dict, maps: MapsResult, terrain,
-                 recharge=None, cases=(), clusters=None) -> ReportResult:
+                 recharge=None, cases=(), clusters=None, runout=None,
+                 corridor=None) -> ReportResult:
     """The self-contained report: maps embedded, every parameter, the cautions.
 
     Every number it quotes was computed by the figures stages while the
@@ -57,5 +58,7 @@ def report_stage(scenario, inputs, written: Written, manifest: dict, maps: MapsR
         manifest=manifest, read=None, cell_area_m2=inputs.grid.cell_area_m2, maps=images,
         figures=figures,
         tables={"clusters": [] if clusters is None else list(clusters.records),
-                "size_resolved": [] if clusters is None else list(clusters.size_records)})
+                "size_resolved": [] if clusters is None else list(clusters.size_records),
+                "runout_paths": [] if runout is None else list(runout.records),
+                "corridor_segments": [] if corridor is None else list(corridor.records)})
     return ReportResult(html.render_report(ctx).encode("utf-8"))

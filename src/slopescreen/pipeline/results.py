@@ -43,6 +43,8 @@ class Emit:
         Metadata beyond the registry's own.
     name, units : str or None
         File name and units when not the registry's (maps).
+    kind : str or None
+        ``"csv"`` for the table copy of a vector product (same key).
     """
 
     key: str
@@ -52,6 +54,7 @@ class Emit:
     tags: MappingProxyType = _empty()
     name: str | None = None
     units: str | None = None
+    kind: str | None = None
 
 
 @dataclass(frozen=True)
@@ -169,6 +172,8 @@ class ClusterCase:
     size_polygons: MappingProxyType = _empty()
     modular_faces: int = 0
     undecided_cells: int = 0
+    cells: tuple = ()
+    """After :meth:`kept`: (flat cell indices, cluster ids) of the cluster cells."""
 
     def manifest_record(self):
         """The cut's proof status of this case, for ``manifest.json`` (``cluster_search``)."""
@@ -178,10 +183,22 @@ class ClusterCase:
             "modular_faces": self.modular_faces, "undecided_cells": self.undecided_cells}
 
     def kept(self):
-        """What later stages read: the rows and outlines, not the written rasters."""
+        """What later stages read: the rows, outlines and cluster cells, not the rasters."""
         from dataclasses import replace
 
-        return replace(self, fs_bound=None, labels=None)
+        flat = self.labels.reshape(-1)
+        where = np.flatnonzero(flat > 0)
+        return replace(self, fs_bound=None, labels=None,
+                       cells=(where, flat[where].astype(np.int64)))
+
+    def label_raster(self, shape) -> np.ndarray:
+        """The cluster id per cell (0 = none), from the kept cluster cells."""
+        if self.labels is not None:
+            return self.labels.astype(np.int64)
+        out = np.zeros(int(np.prod(shape)), dtype=np.int64)
+        if self.cells:
+            out[self.cells[0]] = self.cells[1]
+        return out.reshape(shape)
 
     def products(self):
         e = self.bound_extent_cells
@@ -202,6 +219,71 @@ class ClusterLayers:
 
     def products(self):
         return (Emit("clusters", self.layers),)
+
+
+@dataclass(frozen=True)
+class RunoutCase:
+    """Runout reach of the failure sources of one rain case.
+
+    ``count``/``volume_m3`` are the rasters (dropped by :meth:`kept`);
+    ``records`` and ``lines`` the rows and LineStrings of ``runout_paths``;
+    ``sources`` the :class:`~slopescreen.runout.Sources` and ``reach`` the
+    :class:`~slopescreen.runout.Reach` without its rasters, for the corridor.
+    """
+
+    case: RainCase
+    count: np.ndarray | None
+    volume_m3: np.ndarray | None
+    records: tuple
+    lines: MappingProxyType
+    sources: Any = field(default=None, repr=False)
+    reach: Any = field(default=None, repr=False)
+    angle_note: str = ""
+
+    def products(self):
+        if self.count is None:
+            return ()
+        return (Emit("runout_count", self.count, self.case),
+                Emit("runout_volume", self.volume_m3, self.case))
+
+    def kept(self):
+        from dataclasses import replace
+
+        return replace(self, count=None, volume_m3=None,
+                       reach=replace(self.reach, count=None, volume_m3=None))
+
+    def manifest_record(self):
+        """Sources and reach of this case, for ``manifest.json`` (``runout``)."""
+        return "runout", {"rain": self.case.name, "sources": len(self.records),
+                          "source_kind": getattr(self.sources, "kind", ""),
+                          "angle_of_reach": self.angle_note}
+
+
+@dataclass(frozen=True)
+class VectorLayers:
+    """One vector product of every rain case (an object with ``write(path)``), and a table."""
+
+    key: str
+    layers: Any = field(default=None, repr=False)
+    csv: bytes | None = None
+    records: tuple = ()
+
+    def products(self):
+        out = [Emit(self.key, self.layers)]
+        if self.csv is not None:
+            out.append(Emit(self.key, self.csv, kind="csv"))
+        return tuple(out)
+
+
+@dataclass(frozen=True)
+class CorridorCase:
+    """The corridor segment rows of one rain case."""
+
+    case: RainCase
+    records: tuple
+
+    def products(self):
+        return ()
 
 
 @dataclass(frozen=True)

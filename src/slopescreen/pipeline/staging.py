@@ -76,15 +76,19 @@ class _Writer:
         """Write one product of a stage; return its manifest entry."""
         entry = spec(emit.key)
         rain = emit.rain
-        name = emit.name or entry.file_name(None if rain is None else rain.slug)
+        kind = emit.kind or entry.kind
+        if kind != entry.kind and kind not in entry.extra_kinds:
+            raise TypeError(f"product {entry.key}: a stage gave kind {kind}, the registry says "
+                            f"{entry.kind}")
+        name = emit.name or entry.file_name(None if rain is None else rain.slug, kind=kind)
         units = emit.units or entry.units
-        if entry.kind == "raster":
+        if kind == "raster":
             self._raster(entry, emit, name)
-        elif entry.kind == "vector":
+        elif kind == "vector":
             emit.data.write(self.staging / name)
         else:
             (self.staging / name).write_bytes(emit.data)
-        product = Product(key=emit.key, path=name, kind=entry.kind, units=units,
+        product = Product(key=emit.key, path=name, kind=kind, units=units,
                           rain=None if rain is None else rain.name)
         self.products.append(product)
         return product

@@ -19,13 +19,23 @@ _ROWS = 512
 
 
 def conditioning_stage(scenario, inputs) -> ConditionedDem:
-    """Priority-Flood depression filling of the DEM, for routing (padded, NaN ring)."""
+    """Priority-Flood depression filling of the DEM, for routing (padded, NaN ring).
+
+    Culverts of a ``[corridor]`` are carved through the road fill first
+    (docs/methods.md, "Culverts through road fills").
+    """
     from .. import _validate
     from .._neighbours import pad_nan
     from ..terrain import _fill_depressions_padded
 
     z, _ = _validate.surface(inputs.z, name=f"{scenario.dem.name}: DEM")
     zp = pad_nan(z)
+    corridor = inputs.corridor
+    if corridor is not None and corridor.culverts:
+        from ..corridor.culverts import _breach_padded, _padded_indices
+
+        _breach_padded(zp, _padded_indices(corridor.culverts, inputs.grid.shape),
+                       dx=inputs.grid.dx_m, dy=inputs.grid.dy_m)
     _fill_depressions_padded(zp)
     return ConditionedDem(filled=zp)
 

@@ -99,6 +99,32 @@ def get_int(table, key, ctx: Ctx, *, default=None, low=None, high=None) -> int |
     return value
 
 
+def get_bool(table, key, ctx: Ctx, *, default=False) -> bool:
+    """Read ``true`` or ``false``."""
+    c, value = _entry(table, key, ctx, False)
+    if value is _ABSENT:
+        return default
+    if not isinstance(value, bool):
+        raise c.fail(f"expected true or false, got {_describe(value)}")
+    return value
+
+
+def get_crs(table, key, ctx: Ctx) -> str | None:
+    """Read a CRS text that pyproj understands (``"EPSG:32610"``, WKT, PROJ)."""
+    text = get_string(table, key, ctx)
+    if text is None:
+        return None
+    from pyproj import CRS
+    from pyproj.exceptions import CRSError
+
+    try:
+        CRS.from_user_input(text)
+    except CRSError:
+        raise ctx.child(key).fail(f"not a CRS pyproj knows: {_describe(text)}; "
+                                  "give e.g. \"EPSG:32610\"") from None
+    return text
+
+
 def get_string(table, key, ctx: Ctx, *, default=None, choices=None, required=False) -> str | None:
     """Read a non-empty string, optionally one of ``choices``."""
     c, value = _entry(table, key, ctx, required)

@@ -106,6 +106,24 @@ def _check_combination(s: Scenario, ctx: Ctx) -> None:
             if unit.diffusivity_m2_per_s is None:
                 raise ctx.child("soil").child("units").child(unit.code).child(
                     "diffusivity_m2_per_s").fail("required when a rain case is a storm")
+    if s.runout is not None and s.runout.source_failure_probability is not None and (
+            s.uncertainty is None):
+        raise ctx.child("runout").child("source_failure_probability").fail(
+            "needs an [uncertainty] section (the probability of failure it thresholds)")
+    if s.runout is not None and s.runout.continue_past_corridor and s.corridor is None:
+        raise ctx.child("runout").child("continue_past_corridor").fail(
+            "applies only with a [corridor] section")
+    unit = None if s.corridor is None else s.corridor.engineered_soil_unit
+    if unit is not None and (s.soil is None or unit not in s.soil.units):
+        raise ctx.child("corridor").child("engineered_soil_unit").fail(
+            f"unit {unit} has no table [soil.units.{unit}]; add one with the fill's properties")
+    if s.soil is not None and s.soil.map is None:
+        mapped = [c for c in s.soil.units if c != unit]
+        if len(mapped) != 1:
+            raise ctx.child("soil").child("map").fail(
+                f"{len(mapped)} soil units are given but no map says where each lies; "
+                "add map = \"soil_units.tif\" or keep exactly one unit"
+                + (" besides the engineered_soil_unit" if unit is not None else ""))
     inputs = {p.resolve() for p in s.input_files()}
     if s.output.resolve() in inputs or s.output.is_file():
         raise ctx.child("output").fail("must be a folder, not an input or existing file")

@@ -134,12 +134,52 @@ class Clusters:
     size_time_limit_s: float = 10.0
 
 
+#: Accepted range of ``[runout] angle_of_reach_deg`` and of the volume relation's angle, degrees.
+ANGLE_OF_REACH_RANGE_DEG = (5.0, 45.0)
+
+
+@dataclass(frozen=True)
+class Runout:
+    """``[runout]``: reach of each failure source along its flow path (angle of reach).
+
+    ``angle_of_reach_deg`` fixes the crown-to-tip angle of every source; None
+    (the default) takes it from each source's volume by the debris-flow
+    relation of docs/methods.md, "Runout reach". ``source_failure_probability``
+    makes sources of the cells whose probability of failure reaches it (where no
+    cluster stage runs; needs ``[uncertainty]``); by default a source is a
+    connected patch of cells with FS < 1. ``continue_past_corridor`` lets a
+    path run on past the first corridor strip it meets (switchbacks); by
+    default it stops there.
+    """
+
+    angle_of_reach_deg: float | None = None
+    source_failure_probability: float | None = None
+    continue_past_corridor: bool = False
+
+
 @dataclass(frozen=True)
 class Corridor:
-    """``[corridor]``: road or pipeline centreline and segment length."""
+    """``[corridor]``: road or pipeline centreline, its segments and strips, and what lies on it.
+
+    Lengths are metres along the line (``segment_m``, ``start_chainage_m``)
+    and across it (``half_width_m``, the strip each segment covers on both
+    sides). ``*_crs`` names the CRS of a file that has none. ``culverts``
+    are points where water passes through the road fill; ``engineered_ground``
+    polygons or a raster (non-zero cells) of cut and fill, optionally given
+    their own soil unit (``engineered_soil_unit``).
+    """
 
     centreline: Path
-    segment_m: float
+    segment_m: float = 100.0
+    half_width_m: float = 10.0
+    start_chainage_m: float = 0.0
+    centreline_crs: str | None = None
+    clip_to_dem: bool = False
+    culverts: Path | None = None
+    culverts_crs: str | None = None
+    engineered_ground: Path | None = None
+    engineered_ground_crs: str | None = None
+    engineered_soil_unit: int | None = None
 
 
 @dataclass(frozen=True)
@@ -164,6 +204,7 @@ class Scenario:
     rain: tuple[RainCase, ...] = ()
     uncertainty: Uncertainty | None = None
     clusters: Clusters | None = None
+    runout: Runout | None = None
     corridor: Corridor | None = None
     inventory: Inventory | None = None
     extra: dict = field(default_factory=dict)
@@ -174,7 +215,8 @@ class Scenario:
         if self.soil is not None and self.soil.map is not None:
             files.append(self.soil.map)
         if self.corridor is not None:
-            files.append(self.corridor.centreline)
+            files += [p for p in (self.corridor.centreline, self.corridor.culverts,
+                                  self.corridor.engineered_ground) if p is not None]
         if self.inventory is not None:
             files.append(self.inventory.landslides)
         return files

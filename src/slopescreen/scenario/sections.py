@@ -9,6 +9,8 @@ from .fields import (
     SOIL_PROPERTIES,
     Ctx,
     check_keys,
+    get_bool,
+    get_crs,
     get_int,
     get_number,
     get_path,
@@ -16,6 +18,7 @@ from .fields import (
     parse_parameter,
 )
 from .model import (
+    ANGLE_OF_REACH_RANGE_DEG,
     DEPTH_MEASURED,
     MIN_FAILURE_DEPTH_M,
     ROUTING_METHODS,
@@ -24,6 +27,7 @@ from .model import (
     Inventory,
     RainCase,
     Routing,
+    Runout,
     Soil,
     SoilUnit,
     Uncertainty,
@@ -80,10 +84,6 @@ def _parse_soil(table, ctx: Ctx, base: Path):
         if not -2**31 <= code < 2**31:
             raise c.fail("unit code is out of the 32-bit integer range")
         units[code] = _parse_soil_unit(unit_table, c, code)
-    if soil_map is None and len(units) != 1:
-        raise ctx.child("map").fail(
-            f"{len(units)} soil units are given but no map says where each lies; "
-            "add map = \"soil_units.tif\" or keep exactly one unit")
     return {"soil": Soil(map=soil_map, units=units, depth_measured=depth_measured,
                          min_failure_depth_m=min_depth)}
 
@@ -164,11 +164,47 @@ def _parse_clusters(table, ctx: Ctx, base: Path):
                                      high=3600.0, low_open=True))}
 
 
+def _parse_runout(table, ctx: Ctx, base: Path):
+    check_keys(table, ctx, {"angle_of_reach_deg", "source_failure_probability",
+                            "continue_past_corridor"})
+    lo, hi = ANGLE_OF_REACH_RANGE_DEG
+    return {"runout": Runout(
+        angle_of_reach_deg=get_number(table, "angle_of_reach_deg", ctx, low=lo, high=hi),
+        source_failure_probability=get_number(table, "source_failure_probability", ctx,
+                                              low=0.0, high=1.0, low_open=True),
+        continue_past_corridor=get_bool(table, "continue_past_corridor", ctx))}
+
+
 def _parse_corridor(table, ctx: Ctx, base: Path):
-    check_keys(table, ctx, {"centreline", "segment_m"}, required=("centreline",))
+    check_keys(table, ctx, {"centreline", "centreline_crs", "segment_m", "half_width_m",
+                            "start_chainage_m", "clip_to_dem", "culverts", "culverts_crs",
+                            "engineered_ground", "engineered_ground_crs",
+                            "engineered_soil_unit"}, required=("centreline",))
+    paths = {}
+    for key in ("centreline", "culverts", "engineered_ground"):
+        path = get_path(table, key, ctx, required=key == "centreline")
+        if path is not None and not path.is_file():
+            raise ctx.child(key).fail(f"{path.name} is not a file")
+        paths[key] = path
+    for key in ("culverts_crs", "engineered_ground_crs"):
+        if key in table and paths[key[:-4]] is None:
+            raise ctx.child(key).fail(f"applies only with {key[:-4]} = \"FILE\"")
+    unit = get_int(table, "engineered_soil_unit", ctx, low=-2**31, high=2**31 - 1)
+    if unit is not None and paths["engineered_ground"] is None:
+        raise ctx.child("engineered_soil_unit").fail(
+            "applies only with engineered_ground = \"FILE\" (where the unit lies)")
     return {"corridor": Corridor(
-        centreline=get_path(table, "centreline", ctx, required=True),
+        centreline=paths["centreline"],
         segment_m=get_number(table, "segment_m", ctx, default=100.0, low=0.0, low_open=True),
+        half_width_m=get_number(table, "half_width_m", ctx, default=10.0, low=0.0,
+                                high=1000.0),
+        start_chainage_m=get_number(table, "start_chainage_m", ctx, default=0.0),
+        centreline_crs=get_crs(table, "centreline_crs", ctx),
+        clip_to_dem=get_bool(table, "clip_to_dem", ctx),
+        culverts=paths["culverts"], culverts_crs=get_crs(table, "culverts_crs", ctx),
+        engineered_ground=paths["engineered_ground"],
+        engineered_ground_crs=get_crs(table, "engineered_ground_crs", ctx),
+        engineered_soil_unit=unit,
     )}
 
 
@@ -183,6 +219,7 @@ SECTION_PARSERS: dict[str, Callable[[Any, Ctx, Path], dict]] = {
     "rain": _parse_rain,
     "uncertainty": _parse_uncertainty,
     "clusters": _parse_clusters,
+    "runout": _parse_runout,
     "corridor": _parse_corridor,
     "inventory": _parse_inventory,
 }
