@@ -102,8 +102,34 @@ def make_dem(kind, size, seed):
                                                 "relief 400 m, 2000 pits/Mcell)")
 
 
-def write_inputs(work, dem):
-    """Write ``dem.tif`` and ``scenario.toml`` into ``work``; return the scenario path."""
+CORRIDOR = """
+[runout]
+
+[corridor]
+centreline = "road.geojson"
+segment_m = 100
+half_width_m = 10
+"""
+
+
+def write_road(work, dem):
+    """A meandering road across the DEM, east to west, in the DEM's CRS (GeoJSON)."""
+    rows, cols = dem.shape
+    t = np.linspace(0.0, 1.0, 2000)
+    x = ORIGIN[0] + CELL_M * cols * (0.02 + 0.96 * t)
+    y = ORIGIN[1] - CELL_M * rows * (0.5 + 0.3 * np.sin(6.0 * np.pi * t))
+    doc = {"type": "FeatureCollection",
+           "crs": {"type": "name", "properties": {"name": "urn:ogc:def:crs:EPSG::32633"}},
+           "features": [{"type": "Feature", "properties": {"name": "benchmark road"},
+                         "geometry": {"type": "LineString",
+                                      "coordinates": np.column_stack([x, y]).round(2).tolist()}}]}
+    (work / "road.geojson").write_text(json.dumps(doc))
+
+
+def write_inputs(work, dem, corridor=False):
+    """Write ``dem.tif`` and ``scenario.toml`` into ``work``; return the scenario path.
+
+    ``corridor`` adds a road and the ``[runout]`` and ``[corridor]`` sections."""
     import rasterio
     from rasterio.transform import from_origin
 
@@ -114,7 +140,9 @@ def write_inputs(work, dem):
     with rasterio.open(work / "dem.tif", "w", **profile) as dst:
         dst.write(dem, 1)
     scenario = work / "scenario.toml"
-    scenario.write_text(SCENARIO)
+    scenario.write_text(SCENARIO + (CORRIDOR if corridor else ""))
+    if corridor:
+        write_road(work, dem)
     return scenario
 
 
@@ -240,6 +268,8 @@ def main(argv=None):
     ap.add_argument("--repeat", type=int, default=1, help="timed runs after the warm-up")
     ap.add_argument("--work", type=Path, help="work folder (default under benchmarks/_data)")
     ap.add_argument("--json", type=Path, metavar="PATH", help="also write the figures here")
+    ap.add_argument("--corridor", action="store_true",
+                    help="add a road with [runout] and [corridor] (issue 11 stages)")
     ap.add_argument("--terrain-only", type=Path, metavar="SCENARIO",
                     help="helper mode: run only the terrain stages of SCENARIO and exit")
     args = ap.parse_args(argv)
@@ -251,9 +281,10 @@ def main(argv=None):
 
     from slopescreen.terrain import fill_depressions
 
-    work = args.work or HERE / "_data" / f"run_{args.dem}_{args.size}_s{args.seed}"
+    tag = "_corridor" if args.corridor else ""
+    work = args.work or HERE / "_data" / f"run_{args.dem}_{args.size}_s{args.seed}{tag}"
     dem, description = make_dem(args.dem, args.size, args.seed)
-    scenario = write_inputs(work, dem)
+    scenario = write_inputs(work, dem, corridor=args.corridor)
     cli = Path(sys.executable).parent / "slopescreen"
 
     warmup = whole_run(cli, scenario)

@@ -193,7 +193,7 @@ def test_every_image_decodes(rendered):
     assert len(images) >= 6
     for im in images:
         assert im["complete"] and im["w"] > 0 and im["h"] > 0, im
-        assert im["alt"].startswith("Map")
+        assert im["alt"].startswith(("Map", "Chart"))
 
 
 def test_screenshots_are_not_blank(rendered):

@@ -277,3 +277,25 @@ def test_centreline_without_crs_exit_2(tmp_path, capsys):
               geometry_type="LineString")
     (tmp_path / "s.toml").write_text(SCENARIO.replace("road.geojson", "road.gpkg"))
     assert_bad(capsys, tmp_path, ["road.gpkg", "centreline_crs"])
+
+
+def test_report_names_the_worst_stretches_and_the_sensitivity(run):
+    import html
+    import re
+
+    _, out, manifest = run
+    text = html.unescape(re.sub(r"<[^>]+>", " ", (out / "report.html").read_text(encoding="utf-8")))
+    text = re.sub(r"\s+", " ", text).replace("\u00a0", " ")
+    glance = text[text.index("What fails where"):text.index("Cautions")]
+    assert "Along the corridor under “wet”, runout can reach" in glance     # the first screen
+    rows = table(out)
+    [(a, b, _h)] = __import__("slopescreen.report.corridor", fromlist=["x"]).worst_stretches(
+        [{k: float(v) if k in ("from_m", "to_m", "hazard") else v for k, v in r.items()}
+         | {"hazard_rank": int(r["hazard_rank"])} for r in rows], most=1)
+    assert f"chainage {a:,.0f}–{b:,.0f} m" in glance
+    assert "Worst segments under “wet”" in text and "Hazard along the corridor" in text
+    [record] = manifest["runout"]
+    assert record["segments_reached_lower_angle"] >= record["segments_reached"]
+    assert "with every angle of reach 3° lower" in text
+    assert manifest["corridor"]["segment_m"] == 25 and manifest["runout_settings"][
+        "angle_of_reach_deg"] == 20

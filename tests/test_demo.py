@@ -128,6 +128,7 @@ def test_demo_writes_a_report_a_new_user_can_read(demo):
         assert f"configures [{section}], but this stage did not run" not in text
     assert "Failing clusters per rain case" in text
     maps = [p for p in result.manifest["products"] if p["key"] == "map"]
-    assert len(maps) == 11                                     # slope, SCA, q_cr, 4 per rain case
-    assert text.count("data:image/png;base64,") == len(maps)
+    assert len(maps) == 13                                     # slope, SCA, q_cr, 5 per rain case
+    assert text.count("data:image/png;base64,") == len(maps) + 1     # and the corridor chart
+    assert "Hazard along the corridor" in text and "Along the corridor under “wet season”" in text
     assert "colluvium, clear-cut" in text

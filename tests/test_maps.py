@@ -294,3 +294,21 @@ def test_corridor_line_is_drawn_on_top():
     np.testing.assert_allclose(on_line, np.array(to_rgb("#1b1b1b")), atol=0.03)
     legend = [t.get_text() for ax in fig.axes if ax.get_legend() for t in ax.get_legend().get_texts()]
     assert "road centreline" in legend
+
+
+def test_product_maps_draw_the_given_lines_on_every_map():
+    # the same product with and without a centreline: the line's colour appears on the map
+    grid = _grid()
+    frame = maps.MapFrame.from_grid(grid)
+    x0, x1, y0, y1 = frame.extent
+    fs = np.full(grid.shape, 0.5, dtype=np.float32)
+    entry = {"key": "factor_of_safety", "rain": "wet", "path": "fs.tif", "kind": "raster",
+             "units": "1"}
+    line = {"x": np.array([x0, x1]), "y": np.array([(y0 + y1) / 2] * 2), "label": "centreline",
+            "colour": "#1b1b1b", "width": 2.0}
+    z = np.zeros(grid.shape, dtype=np.float32)
+    plain = maps.product_maps([entry], lambda e: fs, z=z, grid=grid)[0][1]
+    drawn = maps.product_maps([entry], lambda e: fs, z=z, grid=grid, lines=[line])[0][1]
+    dark = [np.sum(np.all(np.asarray(Image.open(io.BytesIO(png)).convert("RGB")) <= 40, axis=2))
+            for png in (plain, drawn)]
+    assert dark[1] > dark[0] + 100

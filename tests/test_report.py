@@ -81,7 +81,14 @@ def write_case(folder, text=SCENARIO):
     write_tif(folder / "dem.tif", hollow_dem())
     # the road crosses the slope along row 24 of the DEM (5 m cells from 500000, 5100000)
     write_line_geojson(folder / "road.geojson", [[500004.0, 5099877.5], [500216.0, 5099877.5]])
-    (folder / "slides.geojson").write_text('{"type": "FeatureCollection", "features": []}\n')
+    # one mapped scar in the hollow (cells 8-12 of columns 20-23)
+    (folder / "slides.geojson").write_text(json.dumps({
+        "type": "FeatureCollection",
+        "crs": {"type": "name", "properties": {"name": "urn:ogc:def:crs:EPSG::32633"}},
+        "features": [{"type": "Feature", "properties": {}, "geometry": {"type": "Polygon",
+                      "coordinates": [[[500100.0, 5099960.0], [500120.0, 5099960.0],
+                                       [500120.0, 5099935.0], [500100.0, 5099935.0],
+                                       [500100.0, 5099960.0]]]}}]}) + "\n")
     p = folder / "s.toml"
     p.write_text(text, encoding="utf-8")
     return p

@@ -17,8 +17,8 @@ from dataclasses import dataclass, field
 from types import MappingProxyType
 
 from .report.styles import (
-    CLUSTER_BOUND_STYLE, FS_STYLE, PROBABILITY_STYLE, RECHARGE_STYLE, SCA_STYLE, SLOPE_STYLE,
-    WETNESS_STYLE, Style,
+    CLUSTER_BOUND_STYLE, FS_STYLE, PROBABILITY_STYLE, RECHARGE_STYLE, RUNOUT_STYLE, SCA_STYLE,
+    SLOPE_STYLE, WETNESS_STYLE, Style,
 )
 from .stability import CLASS_LABELS
 
@@ -159,7 +159,7 @@ PRODUCTS = (
                 "clusters", section="clusters", file="clusters.gpkg"),
     ProductSpec("runout_count", "raster", "1", "Runout reach: sources reaching each cell",
                 "Number of failure sources whose runout reaches the cell (angle of reach)",
-                "runout", per_rain=True, dtype="int32", section="runout"),
+                "runout", per_rain=True, dtype="int32", style=RUNOUT_STYLE, section="runout"),
     ProductSpec("runout_volume", "raster", "m^3", "Runout reach: largest source volume",
                 "Largest failed volume among the sources reaching the cell, m^3", "runout",
                 per_rain=True, dtype="float32", section="runout"),

@@ -36,6 +36,8 @@ class Inputs:
     soil_codes: np.ndarray | None = None
     corridor: object = None
     """:class:`~slopescreen.pipeline.corridor_stage.CorridorInputs` of a ``[corridor]``."""
+    landslides: tuple = ()
+    """Mapped landslides of an ``[inventory]`` (shapely polygons or points, DEM CRS)."""
 
 
 @dataclass
@@ -81,7 +83,16 @@ def read_inputs(scenario: Scenario) -> Inputs:
         if unit is not None and soil is not None:
             soil_codes = _with_engineered_unit(scenario, grid, soil_codes, corridor.engineered,
                                                unit)
-    return Inputs(z=z, grid=grid, soil_codes=soil_codes, corridor=corridor)
+    landslides = ()
+    if scenario.inventory is not None:
+        from ..corridor.vector_inputs import read_vector
+
+        inv = scenario.inventory
+        landslides = tuple(read_vector(inv.landslides, grid, kinds=("Polygon", "Point"),
+                                       key="[inventory] landslides", crs=inv.landslides_crs,
+                                       crs_key="[inventory] landslides_crs"))
+    return Inputs(z=z, grid=grid, soil_codes=soil_codes, corridor=corridor,
+                  landslides=landslides)
 
 
 def _with_engineered_unit(scenario, grid, soil_codes, engineered, unit):

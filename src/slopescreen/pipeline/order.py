@@ -154,7 +154,10 @@ def plan(scenario: Scenario) -> tuple[Stage, ...]:
             report_needs["clusters"] = ("cluster layers",)
         if reach:
             stages += _reach_layer_stages(scenario, runs, corridors, report_needs)
-    stages += [_stage("maps", ("maps",), maps_stage, {"written": WRITTEN}),
+    map_needs = {"written": WRITTEN}
+    if "runout" in report_needs:
+        map_needs["runout"] = report_needs["runout"]
+    stages += [_stage("maps", ("maps",), maps_stage, map_needs),
                _stage("report", ("report",), report_stage, report_needs)]
     return tuple(stages)
 

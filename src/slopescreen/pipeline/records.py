@@ -97,8 +97,26 @@ def manifest(scenario: Scenario, grid: Grid, products, timings, started, inputs=
         "soil": _soil_record(scenario),
         "rain": [{k: v for k, v in vars(r).items() if v is not None} for r in scenario.rain],
         "uncertainty": _uncertainty_record(scenario),
+        "runout_settings": _runout_record(scenario),
+        "corridor": _corridor_record(scenario),
         "stage_seconds": timings,
     }
+
+
+def _runout_record(scenario) -> dict | None:
+    """The runout options the run used (``[runout]``, or its defaults under a ``[corridor]``)."""
+    from .runout_stage import effective_runout
+
+    r = effective_runout(scenario)
+    return None if r is None else dict(vars(r))
+
+
+def _corridor_record(scenario) -> dict | None:
+    """The ``[corridor]`` settings, files by name."""
+    c = scenario.corridor
+    if c is None:
+        return None
+    return {k: (v.name if isinstance(v, Path) else v) for k, v in vars(c).items()}
 
 
 def _uncertainty_record(scenario) -> dict | None:

@@ -17,8 +17,53 @@ def _preview_reader(written: Written):
     return lambda entry: written.previews[(entry["key"], entry.get("rain"))]
 
 
-def maps_stage(scenario, inputs, written: Written) -> MapsResult:
-    """One map per product whose registry entry has a style."""
+CENTRELINE = {"label": "road or pipeline centreline", "colour": "#1b1b1b", "width": 2.0}
+LANDSLIDE = {"label": "mapped landslide", "colour": "#0b6e4f", "width": 1.0}
+REACHING_PATH = {"label": "runout path reaching the corridor", "colour": "#2747a8", "width": 1.1}
+"""How the lines drawn on the maps look (colour, width in points) and their legend labels."""
+
+
+def map_lines(inputs) -> list:
+    """The centreline and the outlines of mapped landslides (crosses for points), for every map."""
+    import shapely
+
+    out = []
+    if inputs.corridor is not None:
+        for part in inputs.corridor.line.geoms:
+            xy = shapely.get_coordinates(part)
+            out.append(CENTRELINE | {"x": xy[:, 0], "y": xy[:, 1]})
+    half = 1.5 * max(inputs.grid.dx_m, inputs.grid.dy_m) / inputs.grid.linear_unit_m
+    for geom in inputs.landslides:
+        for g in getattr(geom, "geoms", [geom]):
+            if g.geom_type == "Point":
+                for dx, dy in ((half, half), (half, -half)):
+                    out.append(LANDSLIDE | {"x": [g.x - dx, g.x + dx], "y": [g.y - dy, g.y + dy]})
+                continue
+            for ring in [g.exterior, *g.interiors]:
+                xy = shapely.get_coordinates(ring)
+                out.append(LANDSLIDE | {"x": xy[:, 0], "y": xy[:, 1]})
+    return out
+
+
+def path_lines_by_rain(runout) -> dict:
+    """``("runout_count", rain) -> lines`` of the runout paths that reach the corridor."""
+    import shapely
+
+    out: dict = {}
+    if runout is None:
+        return out
+    lines = runout.layers.lines
+    for row in runout.records:
+        if row["segments_reached"] > 0:
+            xy = shapely.get_coordinates(lines[row["id"]])
+            out.setdefault(("runout_count", row["rain"]), []).append(
+                REACHING_PATH | {"x": xy[:, 0], "y": xy[:, 1]})
+    return out
+
+
+def maps_stage(scenario, inputs, written: Written, runout=None) -> MapsResult:
+    """One map per product whose registry entry has a style, with the centreline and the
+    mapped landslides on every map and the reaching runout paths on the runout maps."""
     from ..report import html, maps
     from ..scenario import slugify
 
@@ -30,7 +75,9 @@ def maps_stage(scenario, inputs, written: Written) -> MapsResult:
     out = []
     for shown, png in maps.product_maps(written.entries(), _preview_reader(written),
                                         z=inputs.z, grid=inputs.grid, title=scenario.title,
-                                        rain_texts=rain_texts, marks=marks):
+                                        rain_texts=rain_texts, marks=marks,
+                                        lines=map_lines(inputs),
+                                        extra_lines=path_lines_by_rain(runout)):
         rain = shown.get("rain")
         name = f"map_{shown['key']}" + (f"_{slugify(rain)}" if rain else "") + ".png"
         out.append((shown, name, png, cases.get(rain), shown["units"]))

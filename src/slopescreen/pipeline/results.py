@@ -239,6 +239,9 @@ class RunoutCase:
     sources: Any = field(default=None, repr=False)
     reach: Any = field(default=None, repr=False)
     angle_note: str = ""
+    sensitivity: MappingProxyType = _empty()
+    """With a corridor: segments and sources reaching it at the angles used and at angles
+    ``angle_change_deg`` lower."""
 
     def products(self):
         if self.count is None:
@@ -256,7 +259,7 @@ class RunoutCase:
         """Sources and reach of this case, for ``manifest.json`` (``runout``)."""
         return "runout", {"rain": self.case.name, "sources": len(self.records),
                           "source_kind": getattr(self.sources, "kind", ""),
-                          "angle_of_reach": self.angle_note}
+                          "angle_of_reach": self.angle_note} | dict(self.sensitivity)
 
 
 @dataclass(frozen=True)

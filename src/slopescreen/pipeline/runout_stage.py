@@ -17,7 +17,7 @@ import numpy as np
 
 from ..grid import Grid
 from ..report.cautions import SHORT
-from ..scenario.model import Runout
+from ..scenario.model import ANGLE_OF_REACH_RANGE_DEG, Runout
 from .results import RunoutCase, VectorLayers
 
 PATH_FIELDS = ("id", "source", "rain", "source_kind", "travel_length_m", "drop_m",
@@ -27,6 +27,12 @@ PATH_FIELDS = ("id", "source", "rain", "source_kind", "travel_length_m", "drop_m
 """Attributes of the ``runout_paths`` layer, in order (units in the names; ``stopped`` says why
 the path ended; ``travel_angle_deg`` = atan(drop / travel length) at the tip; ``segments`` lists
 the corridor segments reached, by number, comma-separated)."""
+
+
+SENSITIVITY_DEG = 3.0
+"""With a corridor, the reach is also found with every angle of reach this much lower
+(degrees), and the report says how many more segments that reaches: angles of reach are
+empirical (docs/methods.md, "Runout reach")."""
 
 
 def effective_runout(scenario) -> Runout | None:
@@ -79,6 +85,19 @@ def runout_stage(scenario, inputs, conditioned, cells, slope, stability, probabi
     reach = runout_reach(zp, sources, angle, dx=grid.dx_m, dy=grid.dy_m, strips=strips,
                          continue_past_corridor=opts.continue_past_corridor,
                          receivers=receivers)
+    sensitivity = {}
+    if corridor is not None:
+        # the same sources with every angle SENSITIVITY_DEG lower (within 5-45 degrees)
+        lower = np.clip(angle - SENSITIVITY_DEG, *ANGLE_OF_REACH_RANGE_DEG)
+        low = runout_reach(zp, sources, lower, dx=grid.dx_m, dy=grid.dy_m, strips=strips,
+                           continue_past_corridor=opts.continue_past_corridor,
+                           receivers=receivers)
+        sensitivity = {"angle_change_deg": -SENSITIVITY_DEG,
+                       "segments_reached": int(np.unique(reach.pair_segment).size),
+                       "segments_reached_lower_angle": int(np.unique(low.pair_segment).size),
+                       "sources_reaching": int(np.unique(reach.pair_source).size),
+                       "sources_reaching_lower_angle": int(np.unique(low.pair_source).size)}
+        del low
     del receivers
     lines = path_lines(sources, reach, grid)
     reached = np.bincount(reach.pair_source, minlength=len(sources))
@@ -104,7 +123,8 @@ def runout_stage(scenario, inputs, conditioned, cells, slope, stability, probabi
     return RunoutCase(case=case, count=reach.count, volume_m3=reach.volume_m3,
                       records=tuple(records), lines=MappingProxyType(dict(enumerate(lines))),
                       sources=sources, reach=reach,
-                      angle_note=source_volume_note(opts.angle_of_reach_deg))
+                      angle_note=source_volume_note(opts.angle_of_reach_deg),
+                      sensitivity=MappingProxyType(sensitivity))
 
 
 def path_lines(sources, reach, grid: Grid) -> list:

@@ -125,8 +125,14 @@ def _legend_handles(style: Style, outlines, lines, no_value):
     if outlines is not None:
         handles.append(Patch(facecolor="none", edgecolor="black", linewidth=1.2,
                              label="failure cluster outline"))
-    for line in lines or ():
-        from matplotlib.lines import Line2D
+    from matplotlib.lines import Line2D
 
-        handles.append(Line2D([], [], color="#1b1b1b", linewidth=2.0, label=line.get("label", "line")))
+    seen = set()
+    for line in lines or ():
+        label = line.get("label", "line")
+        if label in seen:
+            continue
+        seen.add(label)
+        handles.append(Line2D([], [], color=line.get("colour", "#1b1b1b"),
+                              linewidth=line.get("width", 2.0), label=label))
     return handles

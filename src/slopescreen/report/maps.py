@@ -87,8 +87,9 @@ def map_figure(values, key, *, frame: MapFrame, shade=None, title="", subtitle="
     outlines : array_like of int, optional
         Cluster labels (0 = none); drawn as outlines.
     lines : list of dict, optional
-        Lines drawn on top (a corridor): ``{"x": array, "y": array,
-        "label": str}`` in CRS units.
+        Lines drawn on top (a corridor, outlines of mapped landslides, runout
+        paths): ``{"x": array, "y": array, "label": str}`` in CRS units, with
+        optional ``"colour"`` and ``"width"`` (points); one legend entry per label.
     marks : list of (float, str), optional
         Values marked on the colour bar with a label (steady rain rates on
         the critical-recharge scale).
@@ -141,8 +142,11 @@ def map_figure(values, key, *, frame: MapFrame, shade=None, title="", subtitle="
         ax.add_collection(LineCollection(_outline_segments(outlines, extent), colors="black",
                                          linewidths=0.9, zorder=6))
     for line in lines or ():
-        ax.plot(line["x"], line["y"], color="white", linewidth=4.0, zorder=7, solid_capstyle="round")
-        ax.plot(line["x"], line["y"], color="#1b1b1b", linewidth=2.0, zorder=8, solid_capstyle="round")
+        width = line.get("width", 2.0)
+        ax.plot(line["x"], line["y"], color="white", linewidth=2.0 * width, zorder=7,
+                solid_capstyle="round")
+        ax.plot(line["x"], line["y"], color=line.get("colour", "#1b1b1b"), linewidth=width,
+                zorder=8, solid_capstyle="round")
     left, right, bottom, top = extent
     ax.set_xlim(left, right)
     ax.set_ylim(bottom, top)
@@ -253,7 +257,7 @@ def display_step(shape, max_pixels=MAP_PIXELS) -> int:
 
 
 def product_maps(products, read, *, z, grid, title="", rain_texts=None, marks=(),
-                 max_pixels=MAP_PIXELS, dpi=100):
+                 max_pixels=MAP_PIXELS, dpi=100, lines=(), extra_lines=None):
     """Render a map of every product that has a :data:`STYLES` entry.
 
     Parameters
@@ -278,6 +282,12 @@ def product_maps(products, read, *, z, grid, title="", rain_texts=None, marks=()
         Grids larger than this along a side are drawn at a stride (the
         products are not changed).
     dpi : float
+    lines : sequence of dict
+        Lines drawn on every map (the corridor centreline, mapped
+        landslides; see :func:`map_figure`).
+    extra_lines : dict, optional
+        ``(key, rain) -> list of line dicts`` drawn on that map only (the
+        runout paths that reach the corridor).
 
     Returns
     -------
@@ -311,6 +321,8 @@ def product_maps(products, read, *, z, grid, title="", rain_texts=None, marks=()
     for p in shown:
         key, rain = p["key"], p.get("rain")
         values = at_stride(read(p))
+        if values.dtype.kind in "iu":                  # counts: nodata is negative
+            values = np.where(values < 0, np.nan, values).astype(np.float32)
         classes = None
         no_value = valid & ~np.isfinite(values)
         if key == "critical_recharge" and ("critical_recharge_class", None) in by_key:
@@ -328,6 +340,7 @@ def product_maps(products, read, *, z, grid, title="", rain_texts=None, marks=()
         fig = map_figure(values, key, frame=frame, shade=shade, title=heading,
                          subtitle=title, rain_text=text, classes=classes, no_value=no_value,
                          outlines=outlines, marks=marks if key == "critical_recharge" else None,
+                         lines=list((extra_lines or {}).get((key, rain), [])) + list(lines),
                          dpi=dpi)
         out.append((p, png_bytes(fig, title=heading)))
     return out

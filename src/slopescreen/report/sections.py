@@ -36,11 +36,17 @@ def _glance(ctx, facts_by_case, terrain=None):
                            "sections), so it says nothing yet about where slopes can fail."))
         blocks.extend(_changes_blocks(ctx, terrain))
         return Section("glance", "What fails where", blocks)
+    corridor = ctx.tables.get("corridor_segments") or []
     for case in cases:
         f = facts_by_case.get(case["name"])
         if f is None:
             continue
         blocks.append(para(describe_case(case["name"], rain_text(case), f)))
+        mine = [r for r in corridor if r["rain"] == case["name"]]
+        if mine:
+            from .corridor import corridor_sentence
+
+            blocks.append(para(corridor_sentence(case["name"], mine)))
     rows = []
     for case in cases:
         f = facts_by_case.get(case["name"])
@@ -190,6 +196,28 @@ def _inputs_section(ctx):
         blocks.append(table("Rain cases", ["rain case", "kind", "values"],
                             [[c["name"], "storm (Iverson 2000)" if c.get("storm_mm_per_h") else
                               "steady recharge", rain_text(c)] for c in cases]))
+    ro = m.get("runout_settings")
+    if ro:
+        angle = ro.get("angle_of_reach_deg")
+        rows = [["angle of reach", f"{angle:g}° for every source" if angle is not None else
+                 "from each source's volume (Corominas 1996 debris-flow relation, coefficients "
+                 "from memory), 5–45°"],
+                ["sources", "failing clusters" if m.get("cluster_search") else (
+                    f"patches with P_f ≥ {ro['source_failure_probability']:g}"
+                    if ro.get("source_failure_probability") else "patches with FS < 1")],
+                ["at a corridor strip", "the path runs on" if ro.get("continue_past_corridor")
+                 else "the path stops (a road bench interrupts runout)"]]
+        blocks.append(table("Runout", ["setting", "value"], rows))
+    co = m.get("corridor")
+    if co:
+        rows = [["centreline", co["centreline"]], ["segment length", f"{co['segment_m']:g}{NBSP}m"],
+                ["strip half width", f"{co['half_width_m']:g}{NBSP}m"],
+                ["chainage at the first vertex", f"{co['start_chainage_m']:g}{NBSP}m"],
+                ["culverts", co.get("culverts") or "none given"],
+                ["engineered ground", co.get("engineered_ground") or "none given"]]
+        if co.get("engineered_soil_unit") is not None:
+            rows.append(["soil unit of the engineered ground", str(co["engineered_soil_unit"])])
+        blocks.append(table("Corridor", ["setting", "value"], rows))
     unc = m.get("uncertainty")
     if unc:
         blocks.append(table("Uncertainty", ["setting", "value"], [

@@ -130,10 +130,105 @@ def _cluster_blocks(ctx: ReportContext, entries):
     return blocks
 
 
+def _products_table(entries):
+    return table("Products of this stage", ["product", "rain case", "file", "units"],
+                 [[product_title(e["key"]), e.get("rain") or "—", e["path"],
+                   _units_text(e["units"])] for e in entries])
+
+
+def _runout_maps(ctx, entries):
+    out = []
+    for e in entries:
+        if e["key"] != "runout_count":
+            continue
+        m = ctx.map_of(e["key"], e.get("rain"))
+        if m is not None:
+            out.append(figure(m.png, _map_alt(e), _map_caption(ctx, e) + " Blue lines: runout "
+                              "paths that reach the corridor; black: the centreline."))
+    return out
+
+
+def _runout_blocks(ctx: ReportContext, entries):
+    import statistics
+
+    rows = ctx.tables.get("runout_paths", [])
+    notes = {r["rain"]: r for r in ctx.manifest.get("runout", [])}
+    blocks = [para(
+        "Each failure source (a failing cluster, or a connected patch of cells with FS < 1) "
+        "runs out from its crown down the steepest-descent path of the conditioned DEM until the "
+        "travel angle from the crown, atan(drop / horizontal path length), falls below the angle "
+        "of reach; the deposit keeps the source's width, and a corridor strip stops the path. "
+        "Angles of reach are empirical: the reach shown is a screening estimate, and a lower "
+        "angle reaches farther.", lead="Method:")]
+    if notes:
+        first = next(iter(notes.values()))
+        blocks.append(para(first.get("angle_of_reach", ""), lead="Angle of reach:"))
+    table_rows = []
+    for rain in dict.fromkeys(r["rain"] for r in rows):
+        mine = [r for r in rows if r["rain"] == rain]
+        travel = [r["travel_length_m"] for r in mine]
+        table_rows.append([
+            rain, f"{len(mine):,}", f"{statistics.median(travel):,.0f}{NBSP}m",
+            f"{max(travel):,.0f}{NBSP}m", f"{statistics.median(r['angle_of_reach_deg'] for r in mine):.1f}°",
+            f"{sum(1 for r in mine if r['segments_reached'] > 0):,}"])
+    if table_rows:
+        blocks.append(table("Runout of the failure sources per rain case",
+                            ["rain case", "sources", "median travel", "longest travel",
+                             "median angle of reach", "reaching the corridor"],
+                            table_rows, [False, True, True, True, True, True]))
+    else:
+        blocks.append(para("No rain case has a failure source, so nothing runs out."))
+    if not ctx.tables.get("corridor_segments"):
+        blocks += _runout_maps(ctx, entries)
+    blocks.append(_products_table(entries))
+    return blocks
+
+
+def _corridor_blocks(ctx: ReportContext, entries):
+    from .corridor import corridor_sentence, strip_chart, worst_table_rows
+
+    rows = ctx.tables.get("corridor_segments", [])
+    by_rain: dict = {}
+    for r in rows:
+        by_rain.setdefault(r["rain"], []).append(r)
+    blocks = [para(
+        "The centreline is cut into segments along its chainage; each segment covers a strip on "
+        "both sides. A segment is reached when the runout footprint of a failure source enters "
+        "its strip. Its hazard is the expected volume of failed soil reaching it, the sum over "
+        "reaching sources of probability of failure × volume (a source without a probability "
+        "counts as certain). Rank 1 is the worst segment of a rain case.", lead="Method:")]
+    blocks += [para(corridor_sentence(rain, mine)) for rain, mine in by_rain.items()]
+    for record in ctx.manifest.get("runout", []):
+        if "segments_reached_lower_angle" in record:
+            blocks.append(para(
+                f"under “{record['rain']}”, with every angle of reach "
+                f"{-record['angle_change_deg']:g}° lower, runout would reach "
+                f"{record['segments_reached_lower_angle']} segments from "
+                f"{record['sources_reaching_lower_angle']} sources, against "
+                f"{record['segments_reached']} segments from {record['sources_reaching']} sources "
+                "at the angles used.", lead="Sensitivity:"))
+    if rows:
+        blocks.append(figure(strip_chart(by_rain, title=ctx.manifest.get("title", "")),
+                             "Chart: expected failed volume reaching each corridor segment along "
+                             "the chainage, per rain case",
+                             "Hazard along the corridor: expected failed volume reaching each "
+                             "segment (m³), by chainage, one line per rain case."))
+    for rain, mine in by_rain.items():
+        worst = worst_table_rows(mine)
+        if worst:
+            blocks.append(table(f"Worst segments under “{rain}”",
+                                ["rank", "segment", "chainage", "hazard", "why"], worst,
+                                [True, True, True, True, False]))
+    runout_entries = [p for p in ctx.manifest.get("products", []) if p["key"] == "runout_count"]
+    blocks += _runout_maps(ctx, runout_entries)
+    blocks.append(_products_table(entries))
+    return blocks
+
+
 STAGE_SECTIONS = (
     StageSection("clusters", "Failure clusters", products_of_section("clusters"), _cluster_blocks),
-    StageSection("runout", "Runout", products_of_section("runout")),
-    StageSection("corridor", "Corridor", products_of_section("corridor")),
+    StageSection("runout", "Runout", products_of_section("runout"), _runout_blocks),
+    StageSection("corridor", "Corridor", products_of_section("corridor"), _corridor_blocks),
     StageSection("inventory", "Agreement with mapped landslides", products_of_section("inventory")),
 )
 """Optional stages and their sections, in report order; the products of each
@@ -146,9 +241,7 @@ def _generic_stage_blocks(ctx: ReportContext, entries):
         m = ctx.map_of(e["key"], e.get("rain"))
         if m is not None:
             blocks.append(figure(m.png, _map_alt(e), _map_caption(ctx, e)))
-    blocks.append(table("Products of this stage", ["product", "rain case", "file", "units"],
-                        [[product_title(e["key"]), e.get("rain") or "—",
-                          e["path"], _units_text(e["units"])] for e in entries]))
+    blocks.append(_products_table(entries))
     return blocks
 
 

@@ -99,6 +99,9 @@ WETNESS_STYLE = Style("ramp", "Wetness h/z (saturated fraction\nof the soil colu
 SLOPE_STYLE = Style("ramp", "Slope (degrees)", _EARTH, 0.0, 50.0, alpha=0.7)
 SCA_STYLE = Style("ramp", "Specific catchment area a = A/b (m)", _COOL, 5.0, 1.0e5, log=True,
                   alpha=0.8)
+_REACH = ("#e3b04b", "#b9742f", "#7f3f1d", "#3b190a")
+RUNOUT_STYLE = Style("ramp", "Failure sources whose runout\nreaches the cell (count)", _REACH,
+                     1.0, 10.0, transparent_below=1.0, alpha=0.9)
 """The styles of the products that get a map; the product registry
 (:mod:`slopescreen.products`) says which product is drawn in which."""
 

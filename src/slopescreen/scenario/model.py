@@ -184,9 +184,11 @@ class Corridor:
 
 @dataclass(frozen=True)
 class Inventory:
-    """``[inventory]``: mapped landslides to compare the map with."""
+    """``[inventory]``: mapped landslides to compare the map with (polygons or points;
+    ``landslides_crs`` names the CRS of a file that has none)."""
 
     landslides: Path
+    landslides_crs: str | None = None
 
 
 @dataclass(frozen=True)

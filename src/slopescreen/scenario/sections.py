@@ -209,8 +209,12 @@ def _parse_corridor(table, ctx: Ctx, base: Path):
 
 
 def _parse_inventory(table, ctx: Ctx, base: Path):
-    check_keys(table, ctx, {"landslides"}, required=("landslides",))
-    return {"inventory": Inventory(landslides=get_path(table, "landslides", ctx, required=True))}
+    check_keys(table, ctx, {"landslides", "landslides_crs"}, required=("landslides",))
+    path = get_path(table, "landslides", ctx, required=True)
+    if not path.is_file():
+        raise ctx.child("landslides").fail(f"{path.name} is not a file")
+    return {"inventory": Inventory(landslides=path,
+                                   landslides_crs=get_crs(table, "landslides_crs", ctx))}
 
 
 SECTION_PARSERS: dict[str, Callable[[Any, Ctx, Path], dict]] = {
