@@ -142,7 +142,7 @@ def segment_rows(segments, *, rain, sources, reach, factor_of_safety, cell_area_
                          minlength=n)
     nearest = np.full(n, nan)
     if grid is not None and len(sources):
-        r, c = np.divmod(np.flatnonzero(sources.labels.reshape(-1) > 0), grid.shape[1])
+        r, c = np.divmod(sources.cell_indices(), grid.shape[1])
         x, y = grid.transform * (c + 0.5, r + 0.5)
         nearest = nearest_distances(segments.lines, np.column_stack([x, y]),
                                     spacing=min(grid.dx_m, grid.dy_m) / grid.linear_unit_m / 2,

@@ -252,7 +252,7 @@ class RunoutCase:
     def kept(self):
         from dataclasses import replace
 
-        return replace(self, count=None, volume_m3=None,
+        return replace(self, count=None, volume_m3=None, sources=self.sources.sparse(),
                        reach=replace(self.reach, count=None, volume_m3=None))
 
     def manifest_record(self):

@@ -46,11 +46,10 @@ def _vertical_depth(scenario, cells, stability):
     """Vertical failure depth per cell, m: the storm's depth of least FS, or the unit depth."""
     if stability.storm is not None:
         return stability.storm.depth_m
-    depth = cells.soil.cell_map("depth_m")
-    depth = np.broadcast_to(np.asarray(depth, dtype=np.float64), cells.slope_deg.shape)
+    depth = np.asarray(cells.soil.cell_map("depth_m"), dtype=np.float32)
     if cells.soil.depth_measured == "slope_normal":
-        depth = depth / np.cos(np.radians(cells.slope_deg.astype(np.float64)))
-    return depth
+        return depth / np.cos(np.radians(cells.slope_deg, dtype=np.float32))
+    return np.broadcast_to(depth, cells.slope_deg.shape)       # one unit: no per-cell copy
 
 
 def runout_stage(scenario, inputs, conditioned, cells, slope, stability, probability=None,
@@ -72,10 +71,11 @@ def runout_stage(scenario, inputs, conditioned, cells, slope, stability, probabi
         p = None if probability is None else probability.p_f
         t = opts.source_failure_probability
         if t is not None and p is not None:
-            mask, kind = np.nan_to_num(p, nan=0.0) >= t, "failure_probability"
+            mask, kind = p >= t, "failure_probability"            # NaN compares False
         else:
-            mask, kind = np.nan_to_num(fs, nan=np.inf) < 1.0, "fs_below_1"
-        sources = patch_sources(mask & grid.valid, z, _vertical_depth(scenario, cells, stability),
+            mask, kind = fs < 1.0, "fs_below_1"
+        mask &= grid.valid
+        sources = patch_sources(mask, z, _vertical_depth(scenario, cells, stability),
                                 fs, slope.aspect_deg, dx=grid.dx_m, dy=grid.dy_m,
                                 failure_probability=p, kind=kind, first_id=first_id)
     angle = angle_of_reach_deg(sources.volume_m3, opts.angle_of_reach_deg)

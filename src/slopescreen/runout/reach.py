@@ -105,7 +105,8 @@ def d8_receivers(zp, dx, dy) -> np.ndarray:
 
     codes, _frac, _width, _offsets, _nb = _receiver_codes(zp, dx, dy, 2, 0.0)
     del _frac, _width
-    return np.where(codes == 255, 255, codes.astype(np.int16) - 8).astype(np.uint8)
+    np.subtract(codes, np.uint8(8), out=codes, where=codes != 255)    # 8 + k -> k, in place
+    return codes
 
 
 def runout_reach(zp, sources: Sources, angle_deg, *, dx, dy, strips: Strips | None = None,
@@ -187,17 +188,21 @@ def runout_reach(zp, sources: Sources, angle_deg, *, dx, dy, strips: Strips | No
         bool(continue_past_corridor))
     count, vmax, travel, drop, tip, stop, path_ptr, path_cells, ps, pg = out
 
-    def unpadded(a):
-        return np.ascontiguousarray(a.reshape(rows + 2, cols + 2)[1:-1, 1:-1])
-
     def unpad_index(p):
         r, c = np.divmod(p, cols + 2)
         return (r - 1) * cols + (c - 1)
 
-    valid = ~np.isnan(unpadded(zp.reshape(-1)))
-    count = np.where(valid, unpadded(count), -1).astype(np.int32)
-    vol = unpadded(vmax)
-    vol = np.where(valid & (count > 0), vol, np.nan).astype(np.float32)
+    # nodata and "none" set in place on the padded arrays, then one unpadded copy of each
+    nodata = np.isnan(zp[1:-1, 1:-1])
+    count_view = count.reshape(rows + 2, cols + 2)[1:-1, 1:-1]
+    vol_view = vmax.reshape(rows + 2, cols + 2)[1:-1, 1:-1]
+    vol_view[nodata | (count_view == 0)] = np.nan
+    count_view[nodata] = -1
+    del nodata
+    count = np.ascontiguousarray(count_view)
+    del count_view
+    vol = np.ascontiguousarray(vol_view)
+    del vol_view, vmax
     return Reach(count=count, volume_m3=vol, angle_deg=angle, travel_m=travel, drop_m=drop,
                  tip=unpad_index(tip), stop=stop, path_ptr=path_ptr,
                  path_cells=unpad_index(path_cells), pair_source=ps, pair_segment=pg)

@@ -24,8 +24,9 @@ class Sources:
 
     Attributes
     ----------
-    labels : numpy.ndarray of int32, shape (rows, cols)
-        ``i + 1`` on the cells of source ``i``, 0 elsewhere.
+    labels : numpy.ndarray of int32, shape (rows, cols), or None
+        ``i + 1`` on the cells of source ``i``, 0 elsewhere (None after
+        :meth:`sparse`).
     ids : numpy.ndarray of int64
         Id of each source, unique over the run (a cluster keeps its cluster id).
     kind : str
@@ -54,9 +55,23 @@ class Sources:
     width_m: np.ndarray
     fs: np.ndarray
     failure_probability: np.ndarray
+    cells: np.ndarray | None = None
+    """Flat indices of the source cells when ``labels`` was let go (:meth:`sparse`)."""
 
     def __len__(self) -> int:
         return int(self.ids.size)
+
+    def cell_indices(self) -> np.ndarray:
+        """Flat indices of every source cell (from ``labels``, or as kept by :meth:`sparse`)."""
+        if self.labels is None:
+            return self.cells
+        return np.flatnonzero(self.labels.reshape(-1) > 0)
+
+    def sparse(self) -> "Sources":
+        """The same sources without the label raster (its cells kept as flat indices)."""
+        from dataclasses import replace
+
+        return replace(self, labels=None, cells=self.cell_indices())
 
     def hazard_probability(self) -> np.ndarray:
         """P_f of each source for the corridor hazard: its own, or 1 where none was estimated."""
@@ -107,19 +122,26 @@ def patch_sources(mask, z, depth_m, fs, aspect_deg, *, dx, dy, failure_probabili
     from scipy import ndimage
 
     mask = np.asarray(mask, dtype=bool)
-    labels, n = ndimage.label(mask, structure=np.ones((3, 3), dtype=bool))
-    labels = labels.astype(np.int32)
-    p = (np.full(mask.shape, np.nan) if failure_probability is None
-         else np.asarray(failure_probability))
-    out = _patch_table(labels.reshape(-1), n, np.asarray(z).reshape(-1),
-                       np.asarray(depth_m).reshape(-1), np.asarray(fs).reshape(-1),
-                       p.reshape(-1), np.asarray(aspect_deg).reshape(-1), mask.shape[1],
-                       float(dx), float(dy))
+    labels = np.zeros(mask.shape, dtype=np.int32)
+    n = ndimage.label(mask, structure=np.ones((3, 3), dtype=bool), output=labels)
+    p = np.full(1, np.nan) if failure_probability is None else failure_probability
+    out = _patch_table(labels.reshape(-1), n, np.asarray(z).reshape(-1), _per_cell(depth_m),
+                       np.asarray(fs).reshape(-1), _per_cell(p),
+                       np.asarray(aspect_deg).reshape(-1), mask.shape[1], float(dx), float(dy))
     crown, toe, z_crown, z_toe, count, volume, width, fs_min, p_max = out
     return Sources(labels=labels, ids=np.arange(first_id, first_id + n, dtype=np.int64),
                    kind=kind, crown=crown, toe=toe, z_crown=z_crown, z_toe=z_toe,
                    area_m2=count * dx * dy, volume_m3=volume, width_m=width, fs=fs_min,
                    failure_probability=p_max)
+
+
+def _per_cell(values) -> np.ndarray:
+    """A flat view of a per-cell array, or a one-element array for one value everywhere
+    (a number or a broadcast array: no per-cell copy)."""
+    a = np.asarray(values)
+    if a.ndim == 0 or (a.size > 1 and all(st == 0 for st in a.strides)):
+        return np.asarray(a.reshape(-1)[:1] if a.ndim else a.reshape(1), dtype=np.float64)
+    return a.reshape(-1)
 
 
 def cluster_sources(labels, records, z) -> Sources:
@@ -153,9 +175,9 @@ def cluster_sources(labels, records, z) -> Sources:
                          0).astype(np.int32)
     n = ids.size
     zf = np.asarray(z).reshape(-1)
+    one = np.zeros(1)
     crown, toe, z_crown, z_toe, *_ = _patch_table(
-        local.reshape(-1), n, zf, np.zeros(zf.size), np.zeros(zf.size), np.full(zf.size, np.nan),
-        np.zeros(zf.size), lab.shape[1], 1.0, 1.0)
+        local.reshape(-1), n, zf, one, one, np.full(1, np.nan), one, lab.shape[1], 1.0, 1.0)
 
     def col(key):
         return np.array([float(r[key]) for r in records], dtype=np.float64)
@@ -172,7 +194,8 @@ def _patch_table(labels, n, z, depth, fs, p, aspect, ncols, dx, dy):
 
     Among cells of equal elevation the crown and the toe are the cells nearest
     the source's centroid (then the first in raster order), so that a path
-    leaves a level toe from its middle.
+    leaves a level toe from its middle. ``depth``, ``fs``, ``p`` and ``aspect``
+    hold one value per cell, or one value for every cell.
     """
     crown = np.full(n, -1, dtype=np.int64)
     toe = np.full(n, -1, dtype=np.int64)
@@ -196,12 +219,14 @@ def _patch_table(labels, n, z, depth, fs, p, aspect, ncols, dx, dy):
         count[k] += 1.0
         sr[k] += i // ncols
         sc[k] += i % ncols
-        volume[k] += depth[i] * dx * dy
-        if fs[i] < fs_min[k]:
-            fs_min[k] = fs[i]
-        if not np.isnan(p[i]) and (np.isnan(p_max[k]) or p[i] > p_max[k]):
-            p_max[k] = p[i]
-        a = aspect[i]
+        volume[k] += depth[i if depth.size > 1 else 0] * dx * dy
+        f = fs[i if fs.size > 1 else 0]
+        if f < fs_min[k]:
+            fs_min[k] = f
+        pi = p[i if p.size > 1 else 0]
+        if not np.isnan(pi) and (np.isnan(p_max[k]) or pi > p_max[k]):
+            p_max[k] = pi
+        a = aspect[i if aspect.size > 1 else 0]
         if not np.isnan(a):
             de[k] += np.sin(np.radians(a))
             dn[k] += np.cos(np.radians(a))
