@@ -299,3 +299,64 @@ def test_report_names_the_worst_stretches_and_the_sensitivity(run):
     assert "with every angle of reach 3° lower" in text
     assert manifest["corridor"]["segment_m"] == 25 and manifest["runout_settings"][
         "angle_of_reach_deg"] == 20
+
+
+def test_probability_threshold_sources_are_the_patches_scipy_labels(tmp_path):
+    from scipy import ndimage
+
+    text = SCENARIO.replace("angle_of_reach_deg = 20",
+                            "angle_of_reach_deg = 20\nsource_failure_probability = 0.5")
+    path = write_inputs(tmp_path, text=text)
+    assert main(["-q", "run", str(path)]) == 0
+    out = tmp_path / "out"
+    manifest = json.loads((out / "manifest.json").read_text())
+    [e] = [p for p in manifest["products"] if p["key"] == "failure_probability"]
+    pf = read_back(out / e["path"])[0]
+    _, n = ndimage.label(np.nan_to_num(pf) >= 0.5, structure=np.ones((3, 3)))   # scipy
+    _, paths, _ = read_layer(out / "runout_paths.gpkg")
+    assert len(paths["source"]) == n > 0
+    assert set(paths["source_kind"]) == {"failure_probability"}
+    assert (paths["source_failure_probability"] >= 0.5).all()
+
+
+def test_a_culvert_breaches_the_road_fill_before_routing(tmp_path):
+    # a ridge (road fill) 3 m high across the plane along the road row: without a culvert the
+    # fill ponds the slope above; with one, the run's catchment area equals the area routed on
+    # the DEM breached by the public functions (slopescreen.corridor.breach, then
+    # Priority-Flood and specific_catchment_area), and differs from the run without it
+    import rasterio
+
+    from slopescreen.corridor import breach, crossing_cells, culvert_crossings
+    from slopescreen.grid import Grid
+    from slopescreen.routing import specific_catchment_area
+    from slopescreen.terrain import fill_depressions
+
+    z = tilted_plane(rows=ROWS, cols=COLS, cell=CELL, gradient=0.75)
+    z[ROAD_ROW - 1:ROAD_ROW + 2] += 3.0
+    write_inputs(tmp_path)
+    write_tif(tmp_path / "dem.tif", z)
+    y = Y0 - (ROAD_ROW + 0.5) * CELL
+    straight = [[X0 + 2.5, y], [X0 + COLS * CELL - 2.5, y]]
+    write_line_geojson(tmp_path / "road.geojson", straight)
+    doc = {"type": "FeatureCollection",
+           "crs": {"type": "name", "properties": {"name": "urn:ogc:def:crs:EPSG::32633"}},
+           "features": [{"type": "Feature", "properties": {}, "geometry": {
+               "type": "Point", "coordinates": [X0 + 15.5 * CELL, y + 1.0]}}]}
+    (tmp_path / "culverts.geojson").write_text(json.dumps(doc))
+    plain = SCENARIO.replace("[uncertainty]\nsamples = 20\nseed = 5\n", "")
+    with_culvert = plain.replace("half_width_m = 6", 'half_width_m = 6\nculverts = "culverts.geojson"')
+    sca = {}
+    for name, text in (("plain", plain), ("culvert", with_culvert)):
+        (tmp_path / "s.toml").write_text(text.replace('output = "out"', f'output = "{name}"'))
+        assert main(["-q", "run", str(tmp_path / "s.toml")]) == 0
+        with rasterio.open(tmp_path / name / "specific_catchment_area.tif") as src:
+            sca[name] = src.read(1, masked=True).filled(np.nan)
+    import shapely
+
+    grid = Grid.regular(z.shape, west=X0, north=Y0, cell_m=CELL)
+    ends = culvert_crossings([(X0 + 15.5 * CELL, y + 1.0)], shapely.LineString(straight), 6.0,
+                             grid).ends
+    breached = breach(z, crossing_cells(ends, grid), dx=CELL, dy=CELL)
+    expected = specific_catchment_area(fill_depressions(breached), CELL, CELL, method="dinf")
+    np.testing.assert_allclose(sca["culvert"], np.asarray(expected, dtype=np.float32), rtol=1e-5)
+    assert not np.allclose(sca["plain"], sca["culvert"], equal_nan=True)

@@ -25,7 +25,10 @@ CAUTIONS = (
     "hydrology; suction, bedrock flow, spatial variability of soil and seismic loading are "
     "ignored. Results depend on DEM resolution and accuracy; depression filling can misroute "
     "flow at culverts and road fills. Parameters are estimates; a probability of failure is "
-    "per cell and conditional on the assumed parameter distributions.",
+    "per cell and conditional on the assumed parameter distributions. Runout reach uses an "
+    "empirical angle of reach along one steepest-descent path per source: real runout can "
+    "go farther, spread wider or follow other paths; a corridor segment not reached is not "
+    "shown to be safe.",
     "Inputs travel with the map: the parameter values, rain cases, conventions (vertical "
     "depth, transmissivity definition, flow width, routing method) and software version are "
     "recorded in manifest.json and the report.",
