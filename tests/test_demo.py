@@ -123,12 +123,13 @@ def test_demo_writes_a_report_a_new_user_can_read(demo):
     text = (result.output / "report.html").read_text(encoding="utf-8")
     assert "Verrow valley demo" in text
     assert "Under “wet season”" in text and "Under “design storm”" in text
-    assert "configures [inventory], but this stage did not run" in text
-    for section in ("runout", "corridor", "clusters"):
+    for section in ("runout", "corridor", "clusters", "inventory"):
         assert f"configures [{section}], but this stage did not run" not in text
     assert "Failing clusters per rain case" in text
     maps = [p for p in result.manifest["products"] if p["key"] == "map"]
     assert len(maps) == 13                                     # slope, SCA, q_cr, 5 per rain case
-    assert text.count("data:image/png;base64,") == len(maps) + 1     # and the corridor chart
+    # and the corridor chart and the agreement chart
+    assert text.count("data:image/png;base64,") == len(maps) + 2
+    assert "mapped landslides (" in text and "Agreement with mapped landslides" in text
     assert "Hazard along the corridor" in text and "Along the corridor under “wet season”" in text
     assert "colluvium, clear-cut" in text

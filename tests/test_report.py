@@ -66,6 +66,7 @@ centreline = "road.geojson"
 
 [inventory]
 landslides = "slides.geojson"
+score_part = "whole"                  # the polygon is a scar
 """
 
 
@@ -214,7 +215,9 @@ def test_manifest_lists_maps_and_report(run):
         Image.open(out / p["path"]).verify()
     [report] = [p for p in products if p["key"] == "report"]
     assert report["kind"] == "html" and report["path"] == "report.html"
-    assert [n["section"] for n in manifest["not_run"]] == ["inventory"]
+    assert manifest["not_run"] == []                            # every configured stage ran
+    assert [p["path"] for p in products if p["key"] == "inventory_scores"] == [
+        "inventory_scores.json"]
     assert not list(out.glob(".slopescreen-partial-*"))
 
 
@@ -297,7 +300,8 @@ def test_critical_recharge_agrees_with_steady_fs(run):
 def test_report_names_stages_that_did_not_run_and_provenance(run):
     folder, _, manifest, text = run
     assert "configures [corridor], but this stage did not run" not in text
-    assert "configures [inventory], but this stage did not run" in text
+    assert "configures [inventory], but this stage did not run" not in text
+    assert "Agreement with mapped landslides</h2>" in text
     assert "Failure clusters</h2>" not in text                  # not configured, not shown
     assert manifest["scenario_sha256"] in text
     for digest in manifest["inputs_sha256"].values():
@@ -305,6 +309,21 @@ def test_report_names_stages_that_did_not_run_and_provenance(run):
     assert "random seed" in text and ">11<" in text
     assert "Run time per stage" in text and "probability of failure: storm" in text
     assert "kN/m³" in text and "uniform, 0.8 to 1.6 m" in text
+
+
+def test_a_configured_stage_that_cannot_run_is_named_with_its_reason(tmp_path, capsys):
+    # a terrain-only scenario (no [soil], no [[rain]]) with an [inventory]: nothing to score
+    write_case(tmp_path)
+    (tmp_path / "t.toml").write_text('dem = "dem.tif"\noutput = "out"\n[inventory]\n'
+                                     'landslides = "slides.geojson"\nscore_part = "whole"\n',
+                                     encoding="utf-8")
+    assert main(["run", str(tmp_path / "t.toml")]) == 0
+    assert "skipped (the report says so)" in capsys.readouterr().err
+    manifest = json.loads((tmp_path / "out" / "manifest.json").read_text())
+    assert manifest["not_run"] == [{"section": "inventory", "reason": "the inventory stage needs "
+                                    "a [soil] section and at least one [[rain]] case"}]
+    text = (tmp_path / "out" / "report.html").read_text(encoding="utf-8")
+    assert "configures [inventory], but this stage did not run" in text
 
 
 def test_stage_section_appears_when_its_product_exists():
@@ -368,7 +387,6 @@ def test_cli_shows_each_planned_stage_and_quiet_hides_them(tmp_path, capsys):
     plan = pipeline.planned_stages(load_scenario(path))
     lines = [ln for ln in err.splitlines() if ln.startswith("  [")]
     assert [ln.split("] ", 1)[1] for ln in lines] == plan       # the plan matches the run
-    assert "skipped (the report says so)" in err                # configured stages not built
     assert main(["-q", "run", str(path)]) == 0
     captured = capsys.readouterr()
     assert captured.err == "" and captured.out == ""

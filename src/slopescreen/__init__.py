@@ -1,5 +1,5 @@
 """slopescreen: screening of rainfall-triggered shallow landslides (see docs/cautions.md)."""
 
-__version__ = "0.3.0"
+__version__ = "0.4.0"
 
 __all__ = ["__version__"]

@@ -1,4 +1,4 @@
-"""Command line: ``slopescreen run|check|demo``.
+"""Command line: ``slopescreen run|check|demo|sweep``.
 
 A thin layer: it parses arguments, calls the library and turns package errors
 into exit status 2 with one line of text. Exit 0 on success, 2 on bad input,
@@ -44,6 +44,21 @@ def _parser() -> argparse.ArgumentParser:
     c = sub.add_parser("check", help="validate a scenario and its inputs; compute nothing",
                        parents=[common])
     c.add_argument("scenario", metavar="SCENARIO", help="scenario file (TOML)")
+    w = sub.add_parser("sweep", parents=[common],
+                       help="score one or two parameters against the mapped landslides "
+                            "(calibration on held-out landslides)")
+    w.add_argument("scenario", metavar="SCENARIO", help="scenario file (TOML) with [inventory]")
+    w.add_argument("--vary", metavar="KEY=LOW:HIGH:N", action="append", required=True,
+                   help="a number of the scenario's [soil] or [[rain]] and its range, e.g. "
+                        "soil.units.1.friction_deg=30:38:5 (give one or two)")
+    w.add_argument("--rain", metavar="NAME", help="rain case scored (default: the first)")
+    w.add_argument("--split", choices=("blocks", "random"), default="blocks",
+                   help="split the landslides by spatial blocks (default) or at random")
+    w.add_argument("--block-m", type=float, metavar="M",
+                   help="block side of the spatial split, m (default: a quarter of the DEM)")
+    w.add_argument("--seed", type=int, default=0, help="seed of the split (default 0)")
+    w.add_argument("--output", metavar="FOLDER",
+                   help="folder of the sweep's files (default: the scenario's output + -sweep)")
     d = sub.add_parser("demo", help="write the built-in demo inputs and run them", parents=[common])
     d.add_argument("folder", metavar="FOLDER", nargs="?", default="slopescreen-demo",
                    help="where to write the demo (default: ./slopescreen-demo)")
@@ -175,6 +190,32 @@ def _summary(result, quiet: bool) -> None:
     print(f"done in {total:.1f} s. Screening result only: read the cautions in the report.")
 
 
+def _sweep(args) -> int:
+    from .inventory.sweep_keys import parse_vary
+    from .pipeline.sweep import OVERSTATE, run_sweep
+
+    varies = [parse_vary(text) for text in args.vary]
+    if args.block_m is not None and not args.block_m > 0:
+        raise InputError(f"--block-m: must be > 0, got {args.block_m:g}")
+    say = None if args.quiet else (lambda text: _write_line(f"sweep: {text}"))
+    result = run_sweep(args.scenario, varies, rain=args.rain, split=args.split, seed=args.seed,
+                       block_m=args.block_m, output=args.output, progress=say)
+    if not args.quiet:
+        best = result.best
+        chosen = ", ".join(f"{k} = {best[k]:g}" for k in result.keys)
+
+        def num(x):
+            return "n/a" if x is None else f"{x:.3f}"
+
+        print(f"chosen on the choosing half: {chosen} (TSS {num(best['tss_choose'])}, AUC "
+              f"{num(best['auc_choose'])}); on the held-out half: TSS {num(best['tss_test'])}, "
+              f"AUC {num(best['auc_test'])}")
+        print(OVERSTATE)
+        print(f"wrote sweep.csv, sweep.png, sweep.html and suggested.toml to {result.output} "
+              f"({len(result.rows)} points, {result.seconds_per_point:.2f} s a point)")
+    return 0
+
+
 def main(argv=None) -> int:
     """Entry point of the ``slopescreen`` command. Returns the exit status."""
     args = _parser().parse_args(argv)
@@ -202,6 +243,8 @@ def main(argv=None) -> int:
             result = pipeline.run(scenario, progress=_progress(args.quiet))
             _summary(result, args.quiet)
             return 0
+        if args.command == "sweep":
+            return _sweep(args)
         if args.command == "demo":
             from .demo import run_demo
 

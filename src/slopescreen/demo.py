@@ -319,6 +319,7 @@ DEMO_SCENARIO = """\
 # Forest and clear-cut ground are separate soil units because root cohesion differs.
 title = "Verrow valley demo"
 dem = "verrow_dem.tif"
+dem_date = 2023-08-15                # when the lidar was flown (before the landslides)
 output = "results"
 
 [routing]
@@ -413,7 +414,12 @@ segment_m = 100
 half_width_m = 8
 
 [inventory]
+# scars mapped after the January storms; the polygons hold no deposits, so every cell is scored
 landslides = "verrow_landslides.geojson"
+type_field = "type"
+types = ["shallow landslide scar"]
+score_part = "whole"
+date = 2024-01-20
 """
 
 

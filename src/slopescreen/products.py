@@ -41,7 +41,7 @@ class ProductSpec:
     ----------
     key : str
         Manifest key.
-    kind : {"raster", "vector", "png", "html"}
+    kind : {"raster", "vector", "json", "png", "html"}
         (a vector product may also be written as ``"csv"``: same key, ``KEY.csv``)
     units : str
         Units of the values (``"1"`` dimensionless).
@@ -101,7 +101,8 @@ class ProductSpec:
         'corridor_segments.csv'
         """
         kind = kind or self.kind
-        ext = {"raster": "tif", "vector": "gpkg", "png": "png", "html": "html", "csv": "csv"}[kind]
+        ext = {"raster": "tif", "vector": "gpkg", "json": "json", "png": "png", "html": "html",
+               "csv": "csv"}[kind]
         if self.file is not None:
             return self.file if kind == self.kind else f"{self.file.rsplit('.', 1)[0]}.{ext}"
         return f"{self.key}_{rain_slug}.{ext}" if rain_slug else f"{self.key}.{ext}"
@@ -170,6 +171,10 @@ PRODUCTS = (
                 "Corridor segments", "One row per corridor segment and rain case: reach, "
                 "sources and hazard (GeoPackage strips and a CSV table)", "corridor",
                 section="corridor", file="corridor_segments.gpkg", extra_kinds=("csv",)),
+    ProductSpec("inventory_scores", "json", "1", "Agreement with mapped landslides",
+                "ROC, AUC with its interval, success-rate curve and threshold scores of each "
+                "hazard product against the mapped landslides, per rain case and soil unit",
+                "inventory", section="inventory", file="inventory_scores.json"),
     ProductSpec("map", "png", "units of the product shown", "Map",
                 "A map of one product over a hillshade", "maps"),
     ProductSpec("report", "html", "n/a", "Report",
@@ -229,6 +234,6 @@ def products_of_section(section: str) -> tuple[str, ...]:
     >>> products_of_section("corridor")
     ('corridor_segments',)
     >>> products_of_section("inventory")
-    ()
+    ('inventory_scores',)
     """
     return tuple(p.key for p in PRODUCTS if p.section == section)

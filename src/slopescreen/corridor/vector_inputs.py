@@ -34,7 +34,7 @@ import numpy as np
 from ..errors import InputError, InputWarning
 from ..grid import Grid
 
-__all__ = ["read_vector", "chain_lines", "outside_length", "polygon_mask", "point_cells"]
+__all__ = ["read_vector", "read_features", "chain_lines", "outside_length", "polygon_mask", "point_cells"]
 
 log = logging.getLogger(__name__)
 
@@ -49,6 +49,8 @@ _FAMILIES = {
 def read_vector(path, grid: Grid, *, kinds, key: str, crs: str | None = None,
                 crs_key: str | None = None) -> list:
     """Read every feature of a vector file's first layer, in the DEM's CRS.
+
+    The geometries of :func:`read_features` without attributes.
 
     Parameters
     ----------
@@ -111,6 +113,49 @@ def read_vector(path, grid: Grid, *, kinds, key: str, crs: str | None = None,
     >>> geoms[0].wkt
     'LINESTRING (500005 5000005, 500095 5000095)'
     """
+    return read_features(path, grid, kinds=kinds, key=key, crs=crs, crs_key=crs_key)[0]
+
+
+def read_features(path, grid: Grid, *, kinds, key: str, crs: str | None = None,
+                  crs_key: str | None = None, columns=()) -> tuple[list, dict]:
+    """Geometries and named attributes of every feature of a file's first layer.
+
+    Parameters are those of :func:`read_vector`, and:
+
+    columns : sequence of str
+        Attribute names to read; each must exist in the layer.
+
+    Returns
+    -------
+    geometries : list of shapely geometries
+        As :func:`read_vector` returns them (empty features skipped).
+    attributes : dict
+        Name -> numpy array of the values of the returned features, in order.
+
+    Raises
+    ------
+    InputError
+        As :func:`read_vector`, and when a named attribute is not in the layer
+        (the message lists those that are).
+
+    Examples
+    --------
+    >>> import json, tempfile
+    >>> from pathlib import Path
+    >>> grid = Grid.regular((10, 10), west=500000, north=5000100, cell_m=10, crs="EPSG:32610")
+    >>> point = {"type": "Point", "coordinates": [500005, 5000005]}
+    >>> doc = {"type": "FeatureCollection",
+    ...        "crs": {"type": "name", "properties": {"name": "urn:ogc:def:crs:EPSG::32610"}},
+    ...        "features": [{"type": "Feature", "properties": {"event": "2021 storm"},
+    ...                      "geometry": point}]}
+    >>> with tempfile.TemporaryDirectory() as folder:
+    ...     path = Path(folder) / "slides.geojson"
+    ...     _ = path.write_text(json.dumps(doc))
+    ...     geoms, attrs = read_features(path, grid, kinds=("Point",), key="[inventory] landslides",
+    ...                                  columns=("event",))
+    >>> attrs["event"].tolist()
+    ['2021 storm']
+    """
     import shapely
     from rasterio.crs import CRS
     from rasterio.errors import CRSError
@@ -118,7 +163,7 @@ def read_vector(path, grid: Grid, *, kinds, key: str, crs: str | None = None,
     path = Path(path)
     where = f"{path.name}: {key}"
     accepted = _accepted_types(kinds)
-    geoms, file_crs = _read_first_layer(path, where)
+    geoms, file_crs, table = _read_first_layer(path, where, tuple(columns))
     if not geoms:
         raise InputError(f"{where}: holds no features; draw the features and save the file again")
     kept = [(i, g) for i, g in enumerate(geoms) if g is not None and not g.is_empty]
@@ -131,6 +176,8 @@ def read_vector(path, grid: Grid, *, kinds, key: str, crs: str | None = None,
     if len(kept) < len(geoms):
         log.info("%s: %d features with an empty geometry skipped", where, len(geoms) - len(kept))
     out = shapely.force_2d(np.array([g for _, g in kept], dtype=object))
+    rows = np.array([i for i, _ in kept], dtype=np.int64)
+    table = {name: values[rows] for name, values in table.items()}
 
     named = None
     if crs is not None:
@@ -165,7 +212,7 @@ def read_vector(path, grid: Grid, *, kinds, key: str, crs: str | None = None,
                          "as WGS 84); save the file with its projected CRS")
     if source != grid.crs:
         out = _reprojected(out, source, grid.crs, where)
-    return list(out)
+    return list(out), table
 
 
 def _accepted_types(kinds) -> tuple:
@@ -177,8 +224,8 @@ def _accepted_types(kinds) -> tuple:
     return tuple(t for k in kinds for t in _FAMILIES[k])
 
 
-def _read_first_layer(path: Path, where: str) -> tuple[list, str | None]:
-    """Geometries (None where null) and CRS text of the first layer of ``path``."""
+def _read_first_layer(path: Path, where: str, columns=()) -> tuple[list, str | None, dict]:
+    """Geometries (None where null), CRS text and named attributes of the first layer."""
     import shapely
     from pyogrio import list_layers
     from pyogrio.errors import DataLayerError, DataSourceError
@@ -191,7 +238,7 @@ def _read_first_layer(path: Path, where: str) -> tuple[list, str | None]:
         raise InputError(f"{where}: file not found")
     try:
         layers = list_layers(str(path))
-        meta, _fids, geometry, _fields = read(str(path), layer=0, columns=[])
+        meta, _fids, geometry, values = read(str(path), layer=0, columns=list(columns))
     except (DataSourceError, DataLayerError, OSError) as exc:
         raise InputError(f"{where}: cannot be read as a vector file ({_short(exc)}); "
                          "use GeoJSON or GeoPackage") from None
@@ -201,8 +248,14 @@ def _read_first_layer(path: Path, where: str) -> tuple[list, str | None]:
                       InputWarning, stacklevel=3)
     if geometry is None:
         raise InputError(f"{where}: the first layer has no geometry column")
+    names = [str(f) for f in meta.get("fields", [])]
+    missing = [c for c in columns if c not in names]
+    if missing:
+        have = ", ".join(names) if names else "none"
+        raise InputError(f"{where}: has no attribute {missing[0]!r} (its attributes: {have})")
     geoms = [None if g is None else shapely.from_wkb(g) for g in geometry]
-    return geoms, meta.get("crs")
+    table = {name: np.asarray(values[names.index(name)], dtype=object) for name in columns}
+    return geoms, meta.get("crs"), table
 
 
 def _short(exc) -> str:

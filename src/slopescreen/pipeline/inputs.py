@@ -37,7 +37,10 @@ class Inputs:
     corridor: object = None
     """:class:`~slopescreen.pipeline.corridor_stage.CorridorInputs` of a ``[corridor]``."""
     landslides: tuple = ()
-    """Mapped landslides of an ``[inventory]`` (shapely polygons or points, DEM CRS)."""
+    """Mapped landslides of an ``[inventory]`` (shapely polygons or points, DEM CRS): the
+    features its ``event`` and ``types`` select."""
+    inventory: object = None
+    """:class:`~slopescreen.inventory.landslides.InventoryCells` of an ``[inventory]``."""
 
 
 @dataclass
@@ -83,16 +86,14 @@ def read_inputs(scenario: Scenario) -> Inputs:
         if unit is not None and soil is not None:
             soil_codes = _with_engineered_unit(scenario, grid, soil_codes, corridor.engineered,
                                                unit)
-    landslides = ()
+    inventory = None
     if scenario.inventory is not None:
-        from ..corridor.vector_inputs import read_vector
+        from ..inventory.landslides import read_inventory
 
-        inv = scenario.inventory
-        landslides = tuple(read_vector(inv.landslides, grid, kinds=("Polygon", "Point"),
-                                       key="[inventory] landslides", crs=inv.landslides_crs,
-                                       crs_key="[inventory] landslides_crs"))
+        inventory = read_inventory(scenario.inventory, grid, z)
     return Inputs(z=z, grid=grid, soil_codes=soil_codes, corridor=corridor,
-                  landslides=landslides)
+                  landslides=() if inventory is None else inventory.geometries,
+                  inventory=inventory)
 
 
 def _with_engineered_unit(scenario, grid, soil_codes, engineered, unit):

@@ -32,6 +32,7 @@ from .records import inputs_sha256
 from .records import manifest as manifest_of
 from .records import run_record
 from .corridor_stage import corridor_layers_stage, corridor_stage
+from .inventory_stage import inventory_case_stage, inventory_recharge_stage, inventory_scores_stage
 from .report_stage import maps_stage, report_stage
 from .runout_stage import effective_runout, runout_layers_stage, runout_stage
 from .stability_stage import (
@@ -94,7 +95,7 @@ def _stage(name, key, fn, needs=None, **kw) -> Stage:
 OPTIONAL_SECTIONS = ("clusters", "runout", "corridor", "inventory")
 """Optional scenario sections that turn a stage on, in report order."""
 
-BUILT_SECTIONS = ("clusters", "runout", "corridor")
+BUILT_SECTIONS = ("clusters", "runout", "corridor", "inventory")
 """Optional sections whose stage exists in this version."""
 
 
@@ -121,6 +122,12 @@ def plan(scenario: Scenario) -> tuple[Stage, ...]:
                    {"recharge": ("recharge",)}, show=False),
         ]
         report_needs["recharge"] = ("recharge figures",)
+        scores = []
+        if scenario.inventory is not None:
+            scores.append(("inventory", "critical recharge"))
+            stages.append(_stage("inventory: critical recharge", scores[0],
+                                 inventory_recharge_stage, {"recharge": ("recharge",)},
+                                 section="inventory", show=False))
         sampled = effective_uncertainty(scenario) is not None
         earlier, figures = [], []
         reach = effective_runout(scenario) is not None
@@ -142,6 +149,8 @@ def plan(scenario: Scenario) -> tuple[Stage, ...]:
                                      ("probability", case.name), probability_stage,
                                      {"cells": soil}, case=case))
                 case_needs["probability"] = ("probability", case.name)
+            if scenario.inventory is not None:
+                stages.append(_case_inventory_stage(scenario, case, sampled, scores))
             stages.append(_stage(f"figures: {case.name}", ("figures", case.name),
                                  case_figures_stage, case_needs, case=case, show=False))
             figures.append(("figures", case.name))
@@ -154,12 +163,30 @@ def plan(scenario: Scenario) -> tuple[Stage, ...]:
             report_needs["clusters"] = ("cluster layers",)
         if reach:
             stages += _reach_layer_stages(scenario, runs, corridors, report_needs)
+        if scores:
+            stages.append(_stage("write inventory scores", ("inventory scores",),
+                                 inventory_scores_stage, {"cases": Many(tuple(scores))},
+                                 section="inventory", show=False))
+            report_needs["inventory"] = ("inventory scores",)
     map_needs = {"written": WRITTEN}
     if "runout" in report_needs:
         map_needs["runout"] = report_needs["runout"]
     stages += [_stage("maps", ("maps",), maps_stage, map_needs),
                _stage("report", ("report",), report_stage, report_needs)]
     return tuple(stages)
+
+
+def _case_inventory_stage(scenario: Scenario, case, sampled: bool, scores: list) -> Stage:
+    """The products of one rain case scored against the mapped landslides."""
+    needs = {"stability": ("stability", case.name)}
+    if sampled:
+        needs["probability"] = ("probability", case.name)
+    if scenario.clusters is not None:
+        needs["clusters"] = ("clusters", case.name)
+    key = ("inventory", case.name)
+    scores.append(key)
+    return _stage(f"inventory: {case.name}", key, inventory_case_stage, needs, case=case,
+                  section="inventory")
 
 
 def _case_reach_stages(scenario: Scenario, case, sampled: bool, runs: list,

@@ -10,7 +10,7 @@ import numpy as np
 
 from .. import __version__
 from ..grid import Grid
-from ..report.cautions import CAUTIONS
+from ..report.cautions import run_cautions
 from ..scenario import Scenario
 from .stability_stage import effective_uncertainty
 
@@ -85,7 +85,7 @@ def manifest(scenario: Scenario, grid: Grid, products, timings, started, inputs=
         "created": started.isoformat(timespec="seconds"),
         "title": scenario.title,
         "products": [p.as_dict() for p in products],
-        "cautions": list(CAUTIONS),
+        "cautions": list(run_cautions(scenario)),
         "inputs_sha256": inputs,
         "grid": {"rows": grid.shape[0], "cols": grid.shape[1], "dx_m": grid.dx_m,
                  "dy_m": grid.dy_m, "crs": grid.crs.to_string(),

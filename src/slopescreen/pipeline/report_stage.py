@@ -86,7 +86,7 @@ def maps_stage(scenario, inputs, written: Written, runout=None) -> MapsResult:
 
 def report_stage(scenario, inputs, written: Written, manifest: dict, maps: MapsResult, terrain,
                  recharge=None, cases=(), clusters=None, runout=None,
-                 corridor=None) -> ReportResult:
+                 corridor=None, inventory=None) -> ReportResult:
     """The self-contained report: maps embedded, every parameter, the cautions.
 
     Every number it quotes was computed by the figures stages while the
@@ -107,5 +107,6 @@ def report_stage(scenario, inputs, written: Written, manifest: dict, maps: MapsR
         tables={"clusters": [] if clusters is None else list(clusters.records),
                 "size_resolved": [] if clusters is None else list(clusters.size_records),
                 "runout_paths": [] if runout is None else list(runout.records),
-                "corridor_segments": [] if corridor is None else list(corridor.records)})
+                "corridor_segments": [] if corridor is None else list(corridor.records),
+                "inventory_scores": {} if inventory is None else dict(inventory.document)})
     return ReportResult(html.render_report(ctx).encode("utf-8"))

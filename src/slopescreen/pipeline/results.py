@@ -290,6 +290,31 @@ class CorridorCase:
 
 
 @dataclass(frozen=True)
+class InventoryCase:
+    """Scores of the products of one rain case (or of the critical recharge) against the
+    mapped landslides."""
+
+    rain: str | None
+    scores: tuple
+
+    def products(self):
+        return ()
+
+
+@dataclass(frozen=True)
+class InventoryScores:
+    """Every score against the mapped landslides: ``inventory_scores.json`` and the report."""
+
+    document: MappingProxyType
+
+    def products(self):
+        import json
+
+        text = json.dumps(dict(self.document), indent=1, allow_nan=False) + "\n"
+        return (Emit("inventory_scores", text.encode("utf-8")),)
+
+
+@dataclass(frozen=True)
 class MapsResult:
     """The PNG maps: (manifest entry shown, file name, bytes) per map."""
 

@@ -34,3 +34,21 @@ CAUTIONS = (
     "recorded in manifest.json and the report.",
 )
 """Full cautions, in the order they are shown."""
+
+
+def run_cautions(scenario) -> tuple[str, ...]:
+    """:data:`CAUTIONS` and the cautions that only some runs need, in the order shown.
+
+    A run whose DEM was made after its mapped landslides (``dem_date`` later
+    than ``[inventory] date``) adds that its scars are in the DEM.
+    """
+    extra = []
+    inv = getattr(scenario, "inventory", None)
+    made = getattr(scenario, "dem_date", None)
+    if inv is not None and inv.date is not None and made is not None and made > inv.date:
+        extra.append(
+            f"DEM after the landslides: the DEM ({made.isoformat()}) was made after the mapped "
+            f"landslides ({inv.date.isoformat()}), so their scars and deposits are in it; the "
+            "slope, flow paths and wetness at those landslides are of the ground after failure, "
+            "and the agreement with them may be over- or understated.")
+    return CAUTIONS + tuple(extra)

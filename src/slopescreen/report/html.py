@@ -109,5 +109,5 @@ def render_report(ctx: ReportContext) -> str:
     template = _environment().get_template("report.html.j2")
     created = str(m.get("created", "")).replace("T", " ").replace("+00:00", " UTC")
     return template.render(title=m.get("title") or "slopescreen run", manifest=m, short=SHORT,
-                           cautions=CAUTIONS, glance=glance, sections=body, toc=toc,
+                           cautions=tuple(m.get("cautions") or CAUTIONS), glance=glance, sections=body, toc=toc,
                            created=created, version=m.get("version", ""))

@@ -47,6 +47,13 @@ def _glance(ctx, facts_by_case, terrain=None):
             from .corridor import corridor_sentence
 
             blocks.append(para(corridor_sentence(case["name"], mine)))
+    scores = ctx.tables.get("inventory_scores")
+    if scores:
+        from .inventory import agreement_sentence
+
+        sentence = agreement_sentence(scores)
+        if sentence:
+            blocks.append(para(sentence))
     rows = []
     for case in cases:
         f = facts_by_case.get(case["name"])

@@ -225,11 +225,78 @@ def _corridor_blocks(ctx: ReportContext, entries):
     return blocks
 
 
+def _inventory_blocks(ctx: ReportContext, entries):
+    from .blocks import bullets
+    from .inventory import (
+        SCORE_HEADER, agreement_chart, agreement_sentence, dates_caution, score_rows, unit_rows,
+    )
+
+    doc = ctx.tables.get("inventory_scores") or {}
+    inv = doc.get("inventory", {})
+    blocks = [para(
+        "Each hazard product ranks the cells from most to least hazardous (lower factor of "
+        "safety, higher probability of failure, lower critical recharge, inside a failing "
+        "cluster). The ROC curve and its area (AUC) say how often a cell of a mapped landslide "
+        "ranks above a cell outside the landslides; the success-rate curve, what share of the "
+        "landslide cells lies in the most hazardous share of the area. Threshold scores say "
+        "what the map flags as failing: the share of landslide cells and of the area it flags, "
+        "the share of landslides with at least one flagged cell, and the true skill statistic "
+        "(true-positive rate minus false-positive rate).", lead="Method:")]
+    if inv:
+        part = ("the upper half of each polygon's relief (so that mapped deposits do not count "
+                "as sources)" if inv.get("score_part") == "scar" else "every cell")
+        blocks.append(para(
+            f"{inv['file']}: {inv['features']:,} features ({inv['kind']}), {inv['selected']:,} "
+            f"selected, {inv['landslides_scored']:,} on the DEM's data"
+            + (f" ({inv['off_dem']:,} off it, not scored)" if inv.get("off_dem") else "")
+            + f"; {inv['cells']:,} cells scored, from {part}; polygons rasterised by "
+            f"{inv['rasterised_by']}.", lead="Inventory:"))
+    sentence = agreement_sentence(doc)
+    if sentence:
+        blocks.append(para(sentence))
+    caution = dates_caution(doc)
+    if caution:
+        blocks.append(note(caution, lead="Dates:"))
+    rows = score_rows(doc)
+    if rows:
+        blocks.append(figure(agreement_chart(doc, title=ctx.manifest.get("title", "")),
+                             "Chart: ROC and success-rate curves of the hazard products against "
+                             "the mapped landslides",
+                             "ROC (left) and success-rate (right) curves; the diagonal is a "
+                             "ranking no better than chance."))
+        blocks.append(table("Agreement with the mapped landslides", SCORE_HEADER, rows,
+                            [False, False, True, True, True, False, True, True, True, True,
+                             True]))
+    units = unit_rows(doc)
+    if units:
+        blocks.append(table("Agreement per soil unit",
+                            ["soil unit", "product", "rain case", "AUC (95 % interval)",
+                             "success-rate area", "landslides / their cells / other cells"],
+                            units, [False, False, False, True, True, True]))
+    skipped = {(u["unit"], u["label"], u["reason"]) for r in doc.get("scores", [])
+               for u in r.get("units_not_scored", [])}
+    if skipped:
+        blocks.append(para("; ".join(f"{label} ({code}): {reason}"
+                                     for code, label, reason in sorted(skipped)) + ".",
+                           lead="Soil units without scores of their own:"))
+    blocks.append(note(
+        "These scores test the map on the landslides it is compared with. Parameters chosen "
+        "to fit this inventory (by hand or by a sweep) make the scores overstate the map's "
+        "skill on landslides it has not seen; only scores on landslides held out of the choice "
+        "are a fair test.", lead="Over-fitting:"))
+    notes = doc.get("notes", [])
+    if notes:
+        blocks.append(bullets(notes))
+    blocks.append(_products_table(entries))
+    return blocks
+
+
 STAGE_SECTIONS = (
     StageSection("clusters", "Failure clusters", products_of_section("clusters"), _cluster_blocks),
     StageSection("runout", "Runout", products_of_section("runout"), _runout_blocks),
     StageSection("corridor", "Corridor", products_of_section("corridor"), _corridor_blocks),
-    StageSection("inventory", "Agreement with mapped landslides", products_of_section("inventory")),
+    StageSection("inventory", "Agreement with mapped landslides", products_of_section("inventory"),
+                 _inventory_blocks),
 )
 """Optional stages and their sections, in report order; the products of each
 are the registry's entries of that section."""

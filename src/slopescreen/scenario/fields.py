@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import datetime as _dt
 import math
 import warnings
 from pathlib import Path
@@ -135,6 +136,41 @@ def get_string(table, key, ctx: Ctx, *, default=None, choices=None, required=Fal
     if choices is not None and value not in choices:
         raise c.fail(f"expected one of {', '.join(choices)}; got {value!r}")
     return value
+
+
+def get_date(table, key, ctx: Ctx) -> _dt.date | None:
+    """Read a calendar date: a TOML date (``2021-01-15``) or a text ``"YYYY-MM-DD"``."""
+    c, value = _entry(table, key, ctx, False)
+    if value is _ABSENT:
+        return None
+    if isinstance(value, _dt.datetime):
+        return value.date()
+    if isinstance(value, _dt.date):
+        return value
+    if isinstance(value, str):
+        try:
+            return _dt.date.fromisoformat(value.strip())
+        except ValueError:
+            pass
+    raise c.fail(f"expected a date such as 2021-01-15, got {_describe(value)}")
+
+
+def get_texts(table, key, ctx: Ctx) -> tuple[str, ...]:
+    """Read one text or a list of texts (whole numbers are taken as their digits)."""
+    c, value = _entry(table, key, ctx, False)
+    if value is _ABSENT:
+        return ()
+    items = value if isinstance(value, list) else [value]
+    out = []
+    for i, item in enumerate(items):
+        if isinstance(item, bool) or not isinstance(item, (str, int)) or (
+                isinstance(item, str) and not item.strip()):
+            where = c.child(i) if isinstance(value, list) else c
+            raise where.fail(f"expected a non-empty text, got {_describe(item)}")
+        out.append(str(item))
+    if not out:
+        raise c.fail("expected at least one text, got an empty list")
+    return tuple(out)
 
 
 def get_path(table, key, ctx: Ctx, *, must_exist=True, required=False) -> Path | None:

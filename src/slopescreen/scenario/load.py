@@ -22,14 +22,14 @@ from pathlib import Path
 from typing import Any
 
 from ..errors import ScenarioError
-from .fields import Ctx, check_keys, get_path, get_string
+from .fields import Ctx, check_keys, get_date, get_path, get_string
 from .model import VERTICAL_UNITS, Routing, Scenario
 from .sections import SECTION_PARSERS
 
-__all__ = ["TOP_LEVEL_KEYS", "load_scenario"]
+__all__ = ["TOP_LEVEL_KEYS", "load_scenario", "scenario_from_data"]
 
 
-TOP_LEVEL_KEYS = ("title", "dem", "output", "dem_vertical_unit")
+TOP_LEVEL_KEYS = ("title", "dem", "output", "dem_vertical_unit", "dem_date")
 
 
 def load_scenario(path) -> Scenario:
@@ -62,7 +62,6 @@ def load_scenario(path) -> Scenario:
     'dinf'
     """
     path = Path(path)
-    ctx = Ctx(path)
     if not path.is_file():
         raise ScenarioError(f"{path}: scenario file not found")
     try:
@@ -75,7 +74,22 @@ def load_scenario(path) -> Scenario:
         raise ScenarioError(f"{path.name}: not a text file; a scenario is a TOML text file") from None
     except tomllib.TOMLDecodeError as exc:
         raise ScenarioError(f"{path.name}: not valid TOML ({exc})") from None
-    path = path.resolve()
+    return scenario_from_data(data, path.resolve(), sha256=hashlib.sha256(raw).hexdigest())
+
+
+def scenario_from_data(data: dict, path: Path, *, sha256: str) -> Scenario:
+    """Validate the parsed TOML ``data`` of the scenario file at ``path``.
+
+    :func:`load_scenario` without the reading: the calibration sweep
+    validates each changed copy of a scenario this way (paths stay relative
+    to ``path``; nothing is read from ``path`` itself).
+
+    Raises
+    ------
+    ScenarioError
+        As :func:`load_scenario`.
+    """
+    path = Path(path)
     ctx = Ctx(path)
     check_keys(data, ctx, set(TOP_LEVEL_KEYS) | set(SECTION_PARSERS), required=("dem", "output"))
     title = get_string(data, "title", ctx, default=path.stem)
@@ -83,11 +97,11 @@ def load_scenario(path) -> Scenario:
     output_text = get_string(data, "output", ctx, required=True)
     output = (path.parent / output_text).resolve()
     vertical = get_string(data, "dem_vertical_unit", ctx, choices=tuple(VERTICAL_UNITS))
-    kwargs: dict[str, Any] = {"routing": Routing()}
+    kwargs: dict[str, Any] = {"routing": Routing(), "dem_date": get_date(data, "dem_date", ctx)}
     for key, parser in SECTION_PARSERS.items():
         if key in data:
             kwargs.update(parser(data[key], ctx.child(key), path.parent))
-    scenario = Scenario(path=path, sha256=hashlib.sha256(raw).hexdigest(), title=title, dem=dem,
+    scenario = Scenario(path=path, sha256=sha256, title=title, dem=dem,
                         output=output, dem_vertical_unit=vertical, **kwargs)
     _check_combination(scenario, ctx)
     return scenario

@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import datetime as _dt
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
@@ -184,11 +185,30 @@ class Corridor:
 
 @dataclass(frozen=True)
 class Inventory:
-    """``[inventory]``: mapped landslides to compare the map with (polygons or points;
-    ``landslides_crs`` names the CRS of a file that has none)."""
+    """``[inventory]``: mapped landslides to compare the map with.
+
+    ``landslides`` is a GeoJSON or GeoPackage file of polygons or points
+    (``landslides_crs`` names the CRS of a file that has none). Points mark
+    source cells, widened to a disc of ``point_buffer_m``; polygons are
+    rasterised by cell centre, or every cell they touch with
+    ``all_touched``. ``event_field``/``event`` and ``type_field``/``types``
+    keep a subset of the features by their attributes. ``score_part``
+    ``"scar"`` scores only the upper part of each polygon (the cells in the
+    upper half of its relief), ``"whole"`` every cell. ``date`` is when the
+    landslides happened (compared with the scenario's ``dem_date``).
+    See docs/methods.md, "Agreement with mapped landslides".
+    """
 
     landslides: Path
     landslides_crs: str | None = None
+    point_buffer_m: float = 0.0
+    all_touched: bool = False
+    event_field: str | None = None
+    event: str | None = None
+    type_field: str | None = None
+    types: tuple = ()
+    score_part: str = "scar"
+    date: _dt.date | None = None
 
 
 @dataclass(frozen=True)
@@ -209,6 +229,7 @@ class Scenario:
     runout: Runout | None = None
     corridor: Corridor | None = None
     inventory: Inventory | None = None
+    dem_date: _dt.date | None = None
     extra: dict = field(default_factory=dict)
 
     def input_files(self) -> list[Path]:

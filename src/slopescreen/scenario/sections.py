@@ -11,10 +11,12 @@ from .fields import (
     check_keys,
     get_bool,
     get_crs,
+    get_date,
     get_int,
     get_number,
     get_path,
     get_string,
+    get_texts,
     parse_parameter,
 )
 from .model import (
@@ -209,12 +211,34 @@ def _parse_corridor(table, ctx: Ctx, base: Path):
 
 
 def _parse_inventory(table, ctx: Ctx, base: Path):
-    check_keys(table, ctx, {"landslides", "landslides_crs"}, required=("landslides",))
+    check_keys(table, ctx, {"landslides", "landslides_crs", "point_buffer_m", "all_touched",
+                            "event_field", "event", "type_field", "types", "score_part", "date"},
+               required=("landslides",))
     path = get_path(table, "landslides", ctx, required=True)
     if not path.is_file():
         raise ctx.child("landslides").fail(f"{path.name} is not a file")
-    return {"inventory": Inventory(landslides=path,
-                                   landslides_crs=get_crs(table, "landslides_crs", ctx))}
+    event = get_texts(table, "event", ctx)
+    if len(event) > 1:
+        raise ctx.child("event").fail("expected one event (a text), got a list")
+    fields = {}
+    for field_key, value_key, value in (("event_field", "event", event),
+                                        ("type_field", "types", get_texts(table, "types", ctx))):
+        fields[field_key] = get_string(table, field_key, ctx)
+        if bool(value) != (fields[field_key] is not None):
+            missing, given = (field_key, value_key) if value else (value_key, field_key)
+            raise ctx.child(given).fail(f"needs {missing} as well ({field_key} names the "
+                                        f"attribute, {value_key} the value(s) to keep)")
+        fields[value_key] = value
+    return {"inventory": Inventory(
+        landslides=path, landslides_crs=get_crs(table, "landslides_crs", ctx),
+        point_buffer_m=get_number(table, "point_buffer_m", ctx, default=0.0, low=0.0,
+                                  high=1000.0),
+        all_touched=get_bool(table, "all_touched", ctx),
+        event_field=fields["event_field"], event=event[0] if event else None,
+        type_field=fields["type_field"], types=fields["types"],
+        score_part=get_string(table, "score_part", ctx, default="scar",
+                              choices=("scar", "whole")),
+        date=get_date(table, "date", ctx))}
 
 
 SECTION_PARSERS: dict[str, Callable[[Any, Ctx, Path], dict]] = {

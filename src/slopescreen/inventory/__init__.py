@@ -1,0 +1,3 @@
+"""Agreement of the hazard maps with mapped landslides (docs/methods.md, "Agreement with mapped landslides")."""
+
+__all__ = []
