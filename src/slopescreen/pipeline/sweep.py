@@ -170,8 +170,8 @@ def run_sweep(path, varies, *, rain: str | None = None, split: str = "blocks", s
         del cells, fields
         row = {"point": i} | {v.key: x for v, x in zip(varies, values)}
         row |= _half_scores(fs, choose, "choose") | _half_scores(fs, test, "test")
-        have = np.isfinite(fs)
-        row["area_flagged_share"] = float(np.count_nonzero(fs[have] < 1.0) / max(1, have.sum()))
+        row["area_flagged_share"] = float(np.count_nonzero(fs < 1.0)      # NaN < 1 is False
+                                          / max(1, np.count_nonzero(np.isfinite(fs))))
         rows.append(row)
         del fs
     per_point = (time.perf_counter() - start) / len(points)
@@ -221,7 +221,7 @@ def _half_scores(fs: np.ndarray, half, tag: str) -> dict:
         auc = success = None
     scored = np.isfinite(values)
     try:
-        t = threshold_agreement((values < 1.0) & scored, half.positive_index,
+        t = threshold_agreement(values < 1.0, half.positive_index,
                                 half.landslide_cells, scored=scored)
     except ValueError:                  # no landslide cell of this half has a value
         t = {}
