@@ -100,6 +100,7 @@ def test_sweep_finds_the_true_friction_on_the_held_out_half(known, capsys):
     assert tss_test.max() == pytest.approx(1.0)                # exactly the generating field
     manifest = json.loads((out / "manifest.json").read_text())
     assert manifest["best"]["soil.units.1.friction_deg"] == 34.0
+    assert manifest["best_at_edge"] == []
     assert manifest["warning"].startswith("Scores on the choosing half overstate skill")
     suggested = tomllib.loads((out / "suggested.toml").read_text(encoding="utf-8"))
     assert suggested["soil"]["units"]["1"]["friction_deg"] == 34.0
@@ -140,13 +141,31 @@ def test_bad_sweep_keys_exit_2_and_write_nothing(known, capsys, vary, message):
     assert not out.exists()
 
 
-def test_a_distribution_cannot_be_swept(known, capsys):
-    text = (SCENARIO.format(phi="{ normal = [34.0, 2.0] }") + INVENTORY)
+def test_a_distribution_is_swept_through_its_parameters(known, capsys):
+    text = (SCENARIO.format(phi="{ normal = [30.0, 2.0] }") + INVENTORY)
     (known / "dist.toml").write_text(text, encoding="utf-8")
     assert main(["sweep", str(known / "dist.toml"), "--vary",
                  "soil.units.1.friction_deg=30:38:5"]) == 2
     err = capsys.readouterr().err.strip().splitlines()
-    assert len(err) == 1 and "is a distribution (normal), not a number" in err[0]
+    assert len(err) == 1 and "is a distribution (normal), not a number; sweep one of its " \
+        "parameters: soil.units.1.friction_deg.mean or soil.units.1.friction_deg.sd" in err[0]
+    # the median of a normal is its mean: the maps at mean 34 are the maps at friction 34
+    out = known / "dist-sweep"
+    assert main(["sweep", str(known / "dist.toml"), "--vary",
+                 "soil.units.1.friction_deg.mean=30:38:5", "--output", str(out), "-q"]) == 0
+    best = json.loads((out / "manifest.json").read_text())["best"]
+    assert best["soil.units.1.friction_deg.mean"] == 34.0
+    suggested = tomllib.loads((out / "suggested.toml").read_text(encoding="utf-8"))
+    assert suggested["soil"]["units"]["1"]["friction_deg"] == {"normal": [34.0, 2.0]}
+    out = known / "edge-sweep"
+    assert main(["sweep", str(known / "dist.toml"), "--vary",
+                 "soil.units.1.friction_deg.mean=30:34:3", "--output", str(out)]) == 0
+    assert "lies at the end of the swept range" in capsys.readouterr().out
+    assert json.loads((out / "manifest.json").read_text())["best_at_edge"] == [
+        "soil.units.1.friction_deg.mean"]
+    assert main(["sweep", str(known / "dist.toml"), "--vary",
+                 "soil.units.1.friction_deg.low=30:38:5"]) == 2
+    assert "is not a distribution with a parameter 'low'" in capsys.readouterr().err
 
 
 def test_a_sweep_needs_an_inventory(known, capsys):

@@ -192,7 +192,7 @@ def _summary(result, quiet: bool) -> None:
 
 def _sweep(args) -> int:
     from .inventory.sweep_keys import parse_vary
-    from .pipeline.sweep import OVERSTATE, run_sweep
+    from .pipeline.sweep import OVERSTATE, edge_text, run_sweep
 
     varies = [parse_vary(text) for text in args.vary]
     if args.block_m is not None and not args.block_m > 0:
@@ -211,6 +211,8 @@ def _sweep(args) -> int:
               f"{num(best['auc_choose'])}); on the held-out half: TSS {num(best['tss_test'])}, "
               f"AUC {num(best['auc_test'])}")
         print(OVERSTATE)
+        if result.best_at_edge:
+            print(edge_text(result.best_at_edge))
         print(f"wrote sweep.csv, sweep.png, sweep.html and suggested.toml to {result.output} "
               f"({len(result.rows)} points, {result.seconds_per_point:.2f} s a point)")
     return 0

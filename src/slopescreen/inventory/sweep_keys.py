@@ -3,9 +3,11 @@
 A key is a dotted path to a number in the scenario file. Rain cases are
 named by their ``name`` (or by their position, from 1):
 ``soil.units.1.friction_deg``, ``soil.units.2.root_cohesion_kpa``,
-``rain.wet season.steady_mm_per_day``, ``rain.1.steady_mm_per_day``. The sweep reruns
-the per-cell stages only, so it varies ``[soil]`` and ``[[rain]]`` values;
-a value given as a distribution is not a number and cannot be swept.
+``rain.wet season.steady_mm_per_day``, ``rain.1.steady_mm_per_day``. A parameter given as a
+distribution is swept through one of its numbers, named as in docs/scenario-format.md:
+``soil.units.1.friction_deg.mean`` (``normal``: ``mean``, ``sd``; ``uniform``: ``low``,
+``high``; ``lognormal``: ``median``, ``sd_of_log``). The sweep reruns the per-cell stages
+only, so it varies ``[soil]`` and ``[[rain]]`` values.
 """
 
 from __future__ import annotations
@@ -90,21 +92,49 @@ def _locate(data: dict, key: str, scenario_name: str):
             names = ", ".join(repr(c.get("name")) for c in cases if isinstance(c, dict))
             raise InputError(f"{where}: no rain case named {name!r} (the cases: {names})")
         node, rest = match[0], rest[1:]
-    for i, part in enumerate(rest[:-1]):
-        if not isinstance(node, dict) or part not in node:
-            raise InputError(f"{where}: the scenario has no {'.'.join(parts[:len(parts) - len(rest) + i + 1])}")
-        node = node[part]
-    last = rest[-1] if rest else None
-    if last is None or not isinstance(node, dict) or last not in node:
-        raise InputError(f"{where}: not a key of the scenario; give the full path of a number "
-                         "that the scenario sets")
-    value = node[last]
+    if len(rest) >= 2 and rest[-1] in _PARAMETER_SLOTS:      # a distribution's parameter
+        table, value = _walk(node, rest[:-1], where)
+        dist = value
+        if isinstance(dist, dict) and len(dist) == 1:
+            (family, params), = dist.items()
+            slots = _DISTRIBUTIONS.get(family, ())
+            if rest[-1] in slots and isinstance(params, list) and len(params) == len(slots):
+                return params, slots.index(rest[-1])
+        raise InputError(f"{where}: {'.'.join(parts[:-1])} is not a distribution with a "
+                         f"parameter {rest[-1]!r}")
+    table, value = _walk(node, rest, where)
     if isinstance(value, dict):
-        raise InputError(f"{where}: is a distribution ({', '.join(value)}), not a number; fix it "
-                         "to a number in a copy of the scenario to sweep it")
+        (family, _), = value.items() if len(value) == 1 else ((None, None),)
+        names = " or ".join(f"{key}.{n}" for n in _DISTRIBUTIONS.get(family, ()))
+        raise InputError(f"{where}: is a distribution ({', '.join(value)}), not a number; "
+                         + (f"sweep one of its parameters: {names}" if names else
+                            "fix it to a number in a copy of the scenario to sweep it"))
     if isinstance(value, bool) or not isinstance(value, (int, float)):
         raise InputError(f"{where}: is {value!r}, not a number")
-    return node, last
+    return table, rest[-1]
+
+
+_DISTRIBUTIONS = {"uniform": ("low", "high"), "normal": ("mean", "sd"),
+                  "lognormal": ("median", "sd_of_log")}
+"""Names of the parameters of each distribution table, in the order of its list."""
+
+_PARAMETER_SLOTS = {n for names in _DISTRIBUTIONS.values() for n in names}
+
+
+def _walk(node, rest, where):
+    """(table holding the last key, its value) along the keys ``rest`` from ``node``."""
+    if not rest:
+        raise InputError(f"{where}: not a key of the scenario; give the full path of a number "
+                         "that the scenario sets")
+    for part in rest[:-1]:
+        if not isinstance(node, dict) or part not in node:
+            raise InputError(f"{where}: not a key of the scenario (no {part!r}); give the full "
+                             "path of a number that the scenario sets")
+        node = node[part]
+    if not isinstance(node, dict) or rest[-1] not in node:
+        raise InputError(f"{where}: not a key of the scenario; give the full path of a number "
+                         "that the scenario sets")
+    return node, node[rest[-1]]
 
 
 def set_value(data: dict, key: str, value: float, *, scenario_name: str) -> dict:
@@ -123,6 +153,9 @@ def set_value(data: dict, key: str, value: float, *, scenario_name: str) -> dict
     {'soil': {'units': {'1': {'friction_deg': 30.0}}}}
     >>> data["soil"]["units"]["1"]["friction_deg"]
     34.0
+    >>> d = {"soil": {"units": {"1": {"friction_deg": {"normal": [34.0, 2.0]}}}}}
+    >>> set_value(d, "soil.units.1.friction_deg.mean", 31.0, scenario_name="s.toml")["soil"]
+    {'units': {'1': {'friction_deg': {'normal': [31.0, 2.0]}}}}
     """
     out = copy.deepcopy(data)
     table, name = _locate(out, key, scenario_name)

@@ -44,7 +44,7 @@ from .. import __version__
 from ..errors import InputError
 from ..report.cautions import CAUTIONS, SHORT
 
-__all__ = ["SweepResult", "run_sweep", "OVERSTATE"]
+__all__ = ["SweepResult", "run_sweep", "OVERSTATE", "edge_text"]
 
 OVERSTATE = ("Scores on the choosing half overstate skill: the values were picked to fit those "
              "landslides. Judge the choice by the held-out (test) half.")
@@ -70,6 +70,7 @@ class SweepResult:
     rain: str
     split: str
     seconds_per_point: float
+    best_at_edge: tuple = ()
     timings_s: dict = field(default_factory=dict)
 
 
@@ -179,7 +180,8 @@ def run_sweep(path, varies, *, rain: str | None = None, split: str = "blocks", s
     best_i = max(range(len(rows)), key=lambda j: (_num(rows[j]["tss_choose"]),
                                                    _num(rows[j]["auc_choose"]), -j))
     best = rows[best_i]
-    meta = {"scenario": name, "rain": rain, "split": split, "seed": seed,
+    edge = [v.key for v in varies if best[v.key] in (float(v.values[0]), float(v.values[-1]))]
+    meta = {"scenario": name, "rain": rain, "split": split, "seed": seed, "best_at_edge": edge,
             "block_m": block_m, "landslides_choose": choose.n_landslides,
             "landslides_test": test.n_landslides,
             "cells_choose": int(choose.positive_index.size),
@@ -187,6 +189,7 @@ def run_sweep(path, varies, *, rain: str | None = None, split: str = "blocks", s
     _write(out, scenario, data, points[best_i][1], varies, rows, best, meta, timings)
     return SweepResult(output=out, keys=tuple(v.key for v in varies), rows=tuple(rows),
                        best=best, rain=rain, split=split, seconds_per_point=per_point,
+                       best_at_edge=tuple(edge),
                        timings_s=timings)
 
 
@@ -310,7 +313,7 @@ def _plot(varies, rows, best, meta, title) -> bytes:
     fig.text(0.07, 0.93, "Calibration sweep", fontsize=11, fontweight="bold", parse_math=False)
     fig.text(0.30, 0.93, f"{title}: rain case “{meta['rain']}”", fontsize=8.5, color="#333333",
              parse_math=False)
-    fig.text(0.07, 0.08, OVERSTATE, fontsize=7.5, color="#333333", parse_math=False, wrap=True)
+    fig.text(0.07, 0.10, OVERSTATE, fontsize=7.5, color="#333333", parse_math=False, wrap=True)
     fig.text(0.07, 0.03, SHORT, fontsize=7, color="#8a1c1c", fontweight="bold",
              parse_math=False, wrap=True)
     return png_bytes(fig, title="Calibration sweep")
@@ -355,12 +358,23 @@ change that scales FS everywhere).</p>
 AUC {cell(best['auc_test'])}; on the choosing half TSS {cell(best['tss_choose'])},
 AUC {cell(best['auc_choose'])}. The scenario with these values is <code>suggested.toml</code>;
 {e(scenario.path.name)} is unchanged.</p>
+{_edge_html(meta["best_at_edge"])}
 <img alt="Scores of every point of the sweep" src="data:image/png;base64,{base64.b64encode(png).decode()}">
 <table><thead><tr>{head}</tr></thead><tbody>{body}</tbody></table>
 <h2>Cautions</h2><ol>{cautions}</ol>
 <p>slopescreen {e(__version__)}</p></body></html>
 """
     return text.encode("utf-8")
+
+
+def edge_text(keys) -> str:
+    """What to do when the chosen value lies at the end of its swept range."""
+    return (f"The chosen {' and '.join(keys)} lies at the end of the swept range: the best value "
+            "may lie outside it; widen the range before trusting the choice.")
+
+
+def _edge_html(keys) -> str:
+    return f"<p class=\"warn\">{html.escape(edge_text(keys))}</p>" if keys else ""
 
 
 def _write(out: Path, scenario, data, best_data, varies, rows, best, meta, timings) -> None:
