@@ -129,10 +129,22 @@ def test_undeclared_float_sentinel_is_nodata(tmp_path):
     assert not grid.valid[0].any() and grid.valid[1:].all()
 
 
-def test_implausible_elevations_warn(tmp_path):
+def test_unusual_elevations_warn(tmp_path):
     from slopescreen.errors import InputWarning
 
     z = tilted_plane()
-    z[5, 5] = -9999.0  # a nodata value the file does not declare
+    z[5, 5] = -700.0  # below any land surface, but not impossible
     with pytest.warns(InputWarning, match="check the nodata value"):
+        read_dem(write_tif(tmp_path / "d.tif", z, nodata=None))
+
+
+@pytest.mark.parametrize("bad", [-9999.0, 1.0e30, 3.4e38])
+def test_an_undeclared_nodata_value_is_refused_naming_the_file(tmp_path, bad):
+    # found by fuzzing: such DEMs passed check and failed mid-run naming neither file nor key
+    from slopescreen.errors import RasterError
+
+    z = tilted_plane()
+    z[5, 5] = bad
+    with pytest.raises(RasterError, match=r"d\.tif: elevation .* outside the plausible range "
+                                          r".*declare it in the file"):
         read_dem(write_tif(tmp_path / "d.tif", z, nodata=None))

@@ -247,3 +247,21 @@ def test_friction_tangent_series():
     deg = np.linspace(0.0, 60.0, 6001)
     got = np.array([_tan_friction(d) for d in deg])
     np.testing.assert_allclose(got, np.tan(np.radians(deg)), rtol=2e-15, atol=1e-300)
+
+
+def test_fosm_in_blocks_equals_one_call(monkeypatch):
+    # the kernel is called over blocks of cells so that Ctrl-C is seen between calls; each
+    # cell is computed on its own, so the blocks change nothing (compared bit for bit)
+    from slopescreen.probability import fosm
+
+    slope, sca = _grid((9, 13))
+    unit = np.zeros(slope.shape, dtype=np.int16)
+    table = encode_table([{**UNIT, "friction_deg": normal(33.0, 2.0)}])
+    storm = StormRain(intensity_mm_per_h=20.0, duration_h=6.0, water_table_depth_m=1.0)
+    for rain, depths in ((SteadyRain(10.0), 1), (storm, 5)):
+        whole = fosm_reliability(slope, sca, unit, table, rain, n_depths=depths)
+        monkeypatch.setattr(fosm, "_CALL_CELLS", 7)
+        blocks = fosm_reliability(slope, sca, unit, table, rain, n_depths=depths)
+        monkeypatch.undo()
+        assert np.array_equal(whole.mean_fs, blocks.mean_fs, equal_nan=True)
+        assert np.array_equal(whole.sd_fs, blocks.sd_fs, equal_nan=True)

@@ -353,7 +353,8 @@ def test_failed_report_leaves_nothing_behind(tmp_path, monkeypatch):
     with pytest.raises(RuntimeError):
         pipeline.run(load_scenario(path))
     out = tmp_path / "out"
-    assert sorted(p.name for p in out.iterdir()) == []          # no product, no staging folder
+    # no product, no staging folder: only the hidden lock file
+    assert sorted(p.name for p in out.iterdir()) == [".slopescreen.lock"]
 
 
 # ---------------------------------------------------------------------------

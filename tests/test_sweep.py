@@ -108,8 +108,9 @@ def test_sweep_finds_the_true_friction_on_the_held_out_half(known, capsys):
     assert s.dem == (known / "dem.tif").resolve()
     assert s.inventory.landslides == (known / "slides.geojson").resolve()
     assert "overstate skill" in (out / "sweep.html").read_text(encoding="utf-8")
-    assert sorted(p.name for p in out.iterdir()) == ["manifest.json", "suggested.toml",
-                                                     "sweep.csv", "sweep.html", "sweep.png"]
+    assert sorted(p.name for p in out.iterdir()) == [".slopescreen.lock", "manifest.json",
+                                                     "suggested.toml", "sweep.csv", "sweep.html",
+                                                     "sweep.png"]
 
 
 def test_two_keys_and_a_random_split(known):

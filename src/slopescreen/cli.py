@@ -10,6 +10,7 @@ from __future__ import annotations
 import argparse
 import logging
 import os
+import signal
 import sys
 import threading
 import warnings
@@ -124,6 +125,10 @@ class StageProgress:
     def stream(self):
         return self._stream if self._stream is not None else sys.stderr
 
+    def output(self, folder) -> None:
+        """Say where the run writes (its first line; called once the inputs are checked)."""
+        print(f"slopescreen: writing into {folder}", file=self.stream, flush=True)
+
     def begin(self, names) -> None:
         """Start showing progress over the planned stage names."""
         self._names = list(names)
@@ -218,8 +223,33 @@ def _sweep(args) -> int:
     return 0
 
 
+class _Terminated(KeyboardInterrupt):
+    """SIGTERM, raised like Ctrl-C so that every clean-up of the run happens."""
+
+
+def _raise_terminated(signum, frame):
+    signal.signal(signal.SIGTERM, signal.SIG_IGN)  # a second one must not cut the clean-up short
+    raise _Terminated
+
+
+def _catch_sigterm():
+    """Make SIGTERM raise :class:`_Terminated`; return the handler to restore (None: unchanged).
+
+    Only the main thread can set a handler (and only it is interrupted).
+    """
+    if threading.current_thread() is not threading.main_thread():
+        return None
+    previous = signal.signal(signal.SIGTERM, _raise_terminated)
+    return signal.SIG_DFL if previous is None else previous  # None: set outside Python
+
+
 def main(argv=None) -> int:
-    """Entry point of the ``slopescreen`` command. Returns the exit status."""
+    """Entry point of the ``slopescreen`` command. Returns the exit status.
+
+    For the duration of the command SIGTERM is handled like Ctrl-C (every
+    clean-up runs, nothing half-written is left): exit status 143, and 130
+    for Ctrl-C, with one line on stderr.
+    """
     args = _parser().parse_args(argv)
     _setup_logging(args.verbose, args.quiet)
     if args.quiet:
@@ -227,7 +257,9 @@ def main(argv=None) -> int:
     else:
         warnings.simplefilter("always", InputWarning)
         warnings.showwarning = lambda msg, cat, *a, **k: _write_line(f"warning: {msg}")
+    previous = None
     try:
+        previous = _catch_sigterm()
         from . import pipeline
         from .scenario import load_scenario
 
@@ -256,9 +288,14 @@ def main(argv=None) -> int:
     except InputError as exc:
         print(f"slopescreen: error: {exc}", file=sys.stderr)
         return 2
-    except KeyboardInterrupt:
-        print("slopescreen: interrupted; no product was written", file=sys.stderr)
-        return 130
+    except KeyboardInterrupt as exc:               # Ctrl-C, or SIGTERM (_Terminated)
+        what = "terminated" if isinstance(exc, _Terminated) else "interrupted"
+        if getattr(exc, "committed", False):
+            print(f"slopescreen: {what} after the run was committed: its products are complete",
+                  file=sys.stderr)
+        else:
+            print(f"slopescreen: {what}; no product was written", file=sys.stderr)
+        return 143 if isinstance(exc, _Terminated) else 130
     except Exception as exc:  # an internal fault: say so in one line, details with -v
         if args.verbose:
             log.exception("internal fault")
@@ -266,6 +303,9 @@ def main(argv=None) -> int:
         print(f"slopescreen: internal fault: {type(exc).__name__}: {first} "
               "(rerun with -v for the traceback; please report it)", file=sys.stderr)
         return 1
+    finally:
+        if previous is not None:
+            signal.signal(signal.SIGTERM, previous)
     return 1  # pragma: no cover - argparse requires a command
 
 

@@ -33,6 +33,7 @@ from pathlib import Path
 
 import numpy as np
 
+from .errors import InputError
 from .scenario import load_scenario
 
 __all__ = ["DEMO_CRS", "DEMO_ORIGIN", "DEMO_SCENARIO", "Valley", "build_valley", "valley_dem",
@@ -277,6 +278,12 @@ def write_demo_inputs(folder) -> Path:
     from rasterio.transform import from_origin
 
     folder = Path(folder)
+    probe = folder
+    while not probe.exists() and probe != probe.parent:
+        probe = probe.parent
+    if not probe.is_dir():
+        raise InputError(f"{folder}: demo: {probe.name} is a file, not a folder; name a folder "
+                         "for the demo (it is created if absent)")
     folder.mkdir(parents=True, exist_ok=True)
     valley = build_valley()
     z = valley.z

@@ -182,14 +182,21 @@ def read_dem(path, *, vertical_unit_m: float | None = None) -> tuple[np.ndarray,
                       InputWarning, stacklevel=2)
         z[sentinel] = np.nan
     valid = np.isfinite(z)
-    if valid.any():
-        low, high = float(np.nanmin(z)), float(np.nanmax(z))
-        if low < -500.0 or high > 9000.0:
-            warnings.warn(f"{path.name}: elevations range from {low:g} to {high:g} (file units); "
-                          "check the nodata value and the vertical unit", InputWarning, stacklevel=2)
     if not valid.any():
         raise RasterError(f"{path.name}: every cell is nodata; nothing to compute")
     vunit = unit if vertical_unit_m is None else float(vertical_unit_m)
+    low, high = float(np.nanmin(z)), float(np.nanmax(z))
+    low_m, high_m = low * vunit, high * vunit
+    if low_m < ELEVATION_RANGE_M[0] or high_m > ELEVATION_RANGE_M[1]:
+        bad = low if low_m < ELEVATION_RANGE_M[0] else high
+        raise RasterError(
+            f"{path.name}: elevation {bad:g} (file units, {bad * vunit:g} m) lies outside the "
+            f"plausible range {ELEVATION_RANGE_M[0]:,.0f} to {ELEVATION_RANGE_M[1]:,.0f} m: "
+            "probably a nodata value the file does not declare; declare it in the file (for "
+            "example gdal_edit.py -a_nodata VALUE dem.tif) or check dem_vertical_unit")
+    if low_m < -500.0 or high_m > 9000.0:
+        warnings.warn(f"{path.name}: elevations range from {low:g} to {high:g} (file units); "
+                      "check the nodata value and the vertical unit", InputWarning, stacklevel=2)
     if vunit != 1.0:
         z *= np.float32(vunit)
     if abs(unit - 1.0) > 1e-12:
@@ -197,6 +204,13 @@ def read_dem(path, *, vertical_unit_m: float | None = None) -> tuple[np.ndarray,
     grid = Grid(shape=z.shape, transform=transform, crs=crs, dx_m=abs(transform.a) * unit,
                 dy_m=abs(transform.e) * unit, valid=valid, path=path, linear_unit_m=unit)
     return z, grid
+
+
+ELEVATION_RANGE_M = (-1000.0, 10000.0)
+"""Elevations outside this range (m) are refused: an undeclared nodata value, not ground."""
+
+NO_CODE = -(2**31)
+"""Code of the cells of a code raster that hold none (no unit can have it)."""
 
 
 def read_codes(path, grid: Grid, *, name: str) -> np.ndarray:
@@ -214,14 +228,16 @@ def read_codes(path, grid: Grid, *, name: str) -> np.ndarray:
     Returns
     -------
     codes : numpy.ndarray of int64
-        Codes; ``-1`` where the raster is nodata.
+        Codes (any sign); :data:`NO_CODE` where the raster is nodata.
     has_code : numpy.ndarray of bool
         True where the raster holds a code.
 
     Raises
     ------
     RasterError
-        Unreadable, another grid or CRS, non-integer values.
+        Unreadable, another grid or CRS, non-integer values, infinite values,
+        or codes outside the 32-bit range (NaN in a float raster is taken as
+        no code).
     """
     path = Path(path)
     try:
@@ -240,10 +256,16 @@ def read_codes(path, grid: Grid, *, name: str) -> np.ndarray:
     except RasterioIOError as exc:
         raise RasterError(f"{path.name}: cannot be read as a raster ({_short(exc)})") from None
     data = np.ma.filled(band.astype(np.float64), np.nan)
+    if np.isinf(data).any():
+        raise RasterError(f"{path.name}: {name} holds infinite values; it must hold whole-number "
+                          "codes (declare the raster's nodata value for cells without one)")
     finite = np.isfinite(data)
     if np.any(finite & (data != np.round(data))):
         raise RasterError(f"{path.name}: {name} holds non-integer values; it must hold unit codes")
-    codes = np.where(finite, data, -1).astype(np.int64)
+    if np.any(finite & ((data <= NO_CODE) | (data >= 2**31))):
+        raise RasterError(f"{path.name}: {name} holds codes outside the 32-bit range "
+                          f"({NO_CODE + 1} to {2**31 - 1})")
+    codes = np.where(finite, data, NO_CODE).astype(np.int64)
     return codes, finite
 
 

@@ -171,8 +171,9 @@ def soil_fields(units, codes, valid, *, depth_measured="vertical") -> SoilFields
     units : sequence of SoilUnit
         Sorted by code.
     codes : numpy.ndarray of int or None
-        Unit code per cell from the soil map (-1 = none), or None without a
-        map (exactly one unit).
+        Unit code per cell from the soil map, of any sign
+        (:data:`slopescreen.grid.NO_CODE` or any code without a unit = none),
+        or None without a map (exactly one unit).
     valid : numpy.ndarray of bool
         Valid DEM cells.
     depth_measured : {"vertical", "slope_normal"}, keyword-only
@@ -208,7 +209,7 @@ def soil_fields(units, codes, valid, *, depth_measured="vertical") -> SoilFields
                           table, varies, depth_measured)
     sorted_codes = np.array([u.code for u in units], dtype=np.int64)
     pos = np.clip(np.searchsorted(sorted_codes, codes), 0, len(units) - 1)
-    ok = valid & (codes >= 0) & (sorted_codes[pos] == codes)
+    ok = valid & (sorted_codes[pos] == codes)
     if len(units) == 1:
         return SoilFields(units, None, ok, MappingProxyType(central), table, varies,
                           depth_measured)

@@ -219,7 +219,7 @@ def _polygon_cells(geom, grid: Grid, all_touched: bool) -> np.ndarray:
     if r1 <= r0 or c1 <= c0:
         return np.zeros(0, dtype=np.int64)
     mask = rasterize([(geom, 1)], out_shape=(r1 - r0, c1 - c0),
-                     transform=grid.transform * Affine.translation(c0, r0),
+                     transform=grid.transform @ Affine.translation(c0, r0),
                      all_touched=all_touched, fill=0, dtype="uint8")
     rr, cc = np.nonzero(mask)
     return (rr.astype(np.int64) + r0) * grid.shape[1] + cc + c0

@@ -167,7 +167,7 @@ def score_product(values: np.ndarray, inventory, scored: Scored, *, rain=None, f
     codes = None if soil_codes is None else np.asarray(soil_codes)
     if codes is not None and len(unit_labels or {}) > 1:
         present = [int(c) for c in np.unique(codes.reshape(-1)[inventory.positive_index])
-                   if c >= 0]
+                   if int(c) in unit_labels]
         flat_codes = codes.reshape(-1)
         for code in present:
             label = (unit_labels or {}).get(code, str(code))

@@ -8,7 +8,7 @@ from pathlib import Path
 import numpy as np
 
 from ..errors import InputError
-from ..grid import Grid, read_codes, read_dem, warn_unusual_cells
+from ..grid import NO_CODE, Grid, read_codes, read_dem, warn_unusual_cells
 from ..scenario import VERTICAL_UNITS, Scenario
 
 
@@ -61,6 +61,10 @@ def read_inputs(scenario: Scenario) -> Inputs:
     InputError
         A raster cannot be used, or a soil map holds a code without a table.
     """
+    from .guard import check_memory, check_output
+
+    check_output(scenario)
+    check_memory(scenario, _dem_shape(scenario.dem))
     vunit = None if scenario.dem_vertical_unit is None else VERTICAL_UNITS[scenario.dem_vertical_unit]
     z, grid = read_dem(scenario.dem, vertical_unit_m=vunit)
     warn_unusual_cells(grid)
@@ -76,7 +80,7 @@ def read_inputs(scenario: Scenario) -> Inputs:
                 f"table [soil.units.CODE] in {scenario.path.name}; add a table for each code")
         if not (grid.valid & has_code).any():
             raise InputError(f"{soil.map.name}: soil map has no code on any valid DEM cell")
-        soil_codes = np.where(grid.valid & has_code, codes, -1).astype(_code_dtype(codes))
+        soil_codes = np.where(grid.valid & has_code, codes, NO_CODE).astype(np.int32)
     corridor = None
     if scenario.corridor is not None:
         from .corridor_stage import read_corridor
@@ -100,9 +104,8 @@ def _with_engineered_unit(scenario, grid, soil_codes, engineered, unit):
     """Soil codes with the engineered ground's own unit on its cells (a new array)."""
     if soil_codes is None:  # no soil map: the one other unit everywhere
         base = next(c for c in sorted(scenario.soil.units) if c != unit)
-        soil_codes = np.where(grid.valid, base, -1).astype(np.int64)
-    codes = np.where(engineered & grid.valid, unit, soil_codes)
-    return codes.astype(_code_dtype(codes))
+        soil_codes = np.where(grid.valid, base, NO_CODE).astype(np.int32)
+    return np.where(engineered & grid.valid, unit, soil_codes).astype(np.int32)
 
 
 def check(scenario: Scenario) -> Inputs:
@@ -119,7 +122,13 @@ def soil_of(scenario: Scenario, inputs: Inputs):
                        depth_measured=scenario.soil.depth_measured)
 
 
-def _code_dtype(codes: np.ndarray):
-    """int32 when every code fits (a soil map rarely needs more), else int64."""
-    info = np.iinfo(np.int32)
-    return np.int32 if codes.size == 0 or (codes.min() >= info.min and codes.max() <= info.max) else np.int64
+def _dem_shape(path) -> tuple[int, int]:
+    """Rows and columns of the DEM from its header (read_dem reports an unreadable file)."""
+    import rasterio
+    from rasterio.errors import RasterioIOError
+
+    try:
+        with rasterio.open(path) as src:
+            return src.height, src.width
+    except RasterioIOError:
+        return 0, 0

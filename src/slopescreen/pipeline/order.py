@@ -8,8 +8,10 @@ progress bar (:func:`planned_stages`) and the report's notes on configured
 stages that did not run (:func:`stages_not_run`) are derived from the plan.
 
 Products are written into a hidden staging folder inside the output folder
-and moved into place only when every stage has succeeded, with
-``manifest.json`` last: a failed run leaves no half-written product, and
+and committed as a whole only when every stage has succeeded
+(:mod:`slopescreen.pipeline.commit`: a journal, the manifest last, the
+earlier run's unreplaced products removed when unchanged), under a lock
+held for the whole run: a failed run leaves no half-written product, and
 the inputs are only ever read.
 """
 
@@ -39,7 +41,8 @@ from .stability_stage import (
     effective_uncertainty, probability_stage, recharge_stage, soil_cells_stage, soil_fields_stage,
     stability_stage,
 )
-from .staging import _commit, _release_memory, _Stages, _Writer
+from .commit import STAGING_PREFIX, commit, output_lock, recover
+from .staging import _release_memory, _Stages, _Writer
 from .terrain_stage import conditioning_stage, routing_stage, slope_stage
 
 log = logging.getLogger("slopescreen.pipeline")
@@ -278,7 +281,9 @@ def run(scenario: Scenario, *, progress=None) -> RunResult:
         Called with the name of each stage as it starts. If it also has a
         ``begin(stage_names)`` method, that is called once the inputs have
         been read (never on bad input), with :func:`planned_stages`; an
-        ``end()`` method is called when the run finishes or fails.
+        ``output(folder)`` method, when it has one, just before, once the
+        output folder's lock is held; an ``end()`` method is called when the
+        run finishes or fails.
 
     Returns
     -------
@@ -289,19 +294,31 @@ def run(scenario: Scenario, *, progress=None) -> RunResult:
     InputError
         Bad input; nothing is written.
     """
-    from ..report.maps import display_step
-
     timer = _Stages(progress)
     started = _dt.datetime.now(_dt.timezone.utc)
     with timer.stage("read inputs", show=False):  # silent: bad input must print one line only
         inputs = read_inputs(scenario)
     _release_memory()
-    grid = inputs.grid
     stages = plan(scenario)
     not_run = stages_not_run(scenario)
     out = scenario.output
     out.mkdir(parents=True, exist_ok=True)
-    staging = out / f".slopescreen-partial-{uuid.uuid4().hex[:8]}"
+    protected = {p.resolve() for p in scenario.input_files()}
+    with output_lock(out, scenario.path.name):
+        recover(out, protected=protected)
+        _progress_call(progress, "output", out)
+        return _run_locked(scenario, inputs, stages, not_run, timer, started, progress,
+                           protected)
+
+
+def _run_locked(scenario, inputs, stages, not_run, timer, started, progress,
+                protected) -> RunResult:
+    """The stages and the commit of a run, with the output folder's lock held."""
+    from ..report.maps import display_step
+
+    grid = inputs.grid
+    out = scenario.output
+    staging = out / f"{STAGING_PREFIX}{uuid.uuid4().hex[:8]}"
     staging.mkdir()
     _progress_call(progress, "begin", [s.name for s in stages if s.show])
     for item in not_run:
@@ -349,9 +366,7 @@ def run(scenario: Scenario, *, progress=None) -> RunResult:
             _release_memory()
         with timer.stage("write products", show=False):
             writer.finish()
-        manifest = manifest_now()
-        _commit(staging, out, writer.products, manifest,
-                protected={p.resolve() for p in scenario.input_files()})
+        manifest = commit(staging, out, writer.products, manifest_now(), protected=protected)
     finally:
         if writer is not None:
             writer.close()

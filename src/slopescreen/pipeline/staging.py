@@ -3,15 +3,13 @@
 :class:`_Writer` writes each :class:`~slopescreen.pipeline.results.Emit` of a
 stage by its registry entry (:mod:`slopescreen.products`), lists it for the
 manifest and keeps a decimated copy of each raster that a map shows, so the
-maps never read a full product back. :func:`_commit` moves the staged files
-into the output folder, the manifest last, only when every stage succeeded.
+maps never read a full product back. :mod:`slopescreen.pipeline.commit` moves the
+staged files into the output folder as a whole.
 """
 
 from __future__ import annotations
 
-import json
 import logging
-import os
 import time
 from contextlib import contextmanager
 from pathlib import Path
@@ -19,7 +17,6 @@ from types import MappingProxyType
 
 import numpy as np
 
-from ..errors import InputError
 from ..grid import Grid, write_raster
 from ..products import STYLES, spec
 from ..report.cautions import SHORT
@@ -158,16 +155,3 @@ def _release_memory() -> None:
     """
     if _TRIM is not None:
         _TRIM(0)
-
-
-def _commit(staging: Path, out: Path, products, manifest: dict, *, protected=frozenset()) -> None:
-    """Move staged products into the output folder; the manifest goes last."""
-    for p in products:
-        target = out / p.path
-        if target.exists() and target.resolve() in protected:
-            raise InputError(f"{p.path}: a product would overwrite an input file; choose another output folder")
-    for p in products:
-        os.replace(staging / p.path, out / p.path)
-    tmp = staging / "manifest.json"
-    tmp.write_text(json.dumps(manifest, indent=2) + "\n", encoding="utf-8")
-    os.replace(tmp, out / "manifest.json")

@@ -391,16 +391,20 @@ def _write(out: Path, scenario, data, best_data, varies, rows, best, meta, timin
                 "files": [{"path": p, "kind": kinds[p],
                            "sha256": hashlib.sha256(b).hexdigest()} for p, b in files.items()],
                 "stage_seconds": timings} | meta
+    from .commit import STAGING_PREFIX, output_lock, recover
+
     out.mkdir(parents=True, exist_ok=True)
-    staging = out / f".slopescreen-partial-{uuid.uuid4().hex[:8]}"
-    staging.mkdir()
-    try:
-        for p, b in files.items():
-            (staging / p).write_bytes(b)
-        (staging / "manifest.json").write_text(json.dumps(manifest, indent=1) + "\n",
-                                               encoding="utf-8")
-        for p in files:
-            os.replace(staging / p, out / p)
-        os.replace(staging / "manifest.json", out / "manifest.json")
-    finally:
-        shutil.rmtree(staging, ignore_errors=True)
+    with output_lock(out, scenario.path.name):
+        recover(out, protected={p.resolve() for p in scenario.input_files()})
+        staging = out / f"{STAGING_PREFIX}{uuid.uuid4().hex[:8]}"
+        staging.mkdir()
+        try:
+            for p, b in files.items():
+                (staging / p).write_bytes(b)
+            (staging / "manifest.json").write_text(json.dumps(manifest, indent=1) + "\n",
+                                                   encoding="utf-8")
+            for p in files:
+                os.replace(staging / p, out / p)
+            os.replace(staging / "manifest.json", out / "manifest.json")
+        finally:
+            shutil.rmtree(staging, ignore_errors=True)

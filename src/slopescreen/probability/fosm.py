@@ -100,9 +100,10 @@ def _fs_of_vector(x, sin_t, cos_t, inflow, rain_kind, rain, n_depths, z_min, slo
 
 @njit_parallel
 def _fosm_kernel(slope, sca, unit, means, sds, x_lo, x_hi, rain_kind, rain, n_depths, z_min,
-                 slope_normal, mean_out, sd_out):
+                 slope_normal, start, stop, mean_out, sd_out):
     n_par = means.shape[1]
-    for i in prange(slope.size):
+    for j in prange(stop - start):
+        i = start + j
         u = unit[i]
         th = slope[i]
         a = sca[i] if rain_kind == _STEADY or rain[2] < 0.0 else 0.0
@@ -134,6 +135,11 @@ def _fosm_kernel(slope, sca, unit, means, sds, x_lo, x_hi, rain_kind, rain, n_de
                 var += d * d
         mean_out[i] = f0
         sd_out[i] = math.sqrt(var)
+
+
+_CALL_CELLS = 2_000_000
+"""Cells of a steady case per kernel call (a storm's: this / (8 x depths)), so that Ctrl-C,
+which a compiled kernel does not see, is acted on between calls within about a second."""
 
 
 def fosm_reliability(slope_deg, sca_m, unit_index, table, rain, *, n_depths=1,
@@ -227,8 +233,11 @@ def fosm_reliability(slope_deg, sca_m, unit_index, table, rain, *, n_depths=1,
     size = slope.size
     mean_out = np.empty(size, dtype=np.float64)
     sd_out = np.empty(size, dtype=np.float64)
-    _fosm_kernel(slope, sca, unit, means, sds, lo, hi, rain_kind, rain_vec, nd, z_min,
-                 _validate.depth_measured(depth_measured), mean_out, sd_out)
+    slope_normal = _validate.depth_measured(depth_measured)
+    cells = _CALL_CELLS if rain_kind == _STEADY else max(1024, _CALL_CELLS // (8 * nd))
+    for start in range(0, size, cells):  # a pending Ctrl-C is raised between two calls
+        _fosm_kernel(slope, sca, unit, means, sds, lo, hi, rain_kind, rain_vec, nd, z_min,
+                     slope_normal, start, min(size, start + cells), mean_out, sd_out)
     valid = np.isfinite(mean_out)
     beta = np.full(size, np.nan)
     p_f = np.full(size, np.nan)

@@ -22,6 +22,7 @@ P_f of a cell is not the probability that some landslide occurs in an area.
 
 import math
 
+import numba
 import numpy as np
 
 from .. import _validate
@@ -40,7 +41,12 @@ from ._inputs import _grid_inputs
 
 
 _BLOCK = 128  # samples evaluated together (vectorised loops)
-_CHUNK = 512  # cells per parallel task
+_CHUNK = 512  # cells per parallel task (at most)
+_CALL_SAMPLES = 20_000_000
+"""Cell-samples of a steady case per kernel call: about 0.3 s on 2 cores."""
+_STORM_COST = 4
+"""A storm sample costs about 4-5 steady ones (its search over depths)."""
+_MIN_TASK = 8  # cells per parallel task (at least)
 
 
 @njit
@@ -98,16 +104,20 @@ def _count_failures(src, row, first, nb, sin_t, cos_t, inflow, rain_kind, intens
 @njit_parallel
 def _failure_probability_kernel(slope, sca, unit, prep, draws, unit_mode, rain_kind, rain,
                                 samples, n_depths, z_min, slope_normal, table, x0, inv_h, eps,
-                                run_key, p_out, se_out):
+                                run_key, start, stop, chunk, p_out, se_out):
+    """P_f and its standard error of the cells start .. stop - 1, ``chunk`` cells per task.
+
+    Each cell's draws are keyed by its own flat index, so a cell's result does
+    not depend on the range or the task it is computed in.
+    """
     n_par = prep.shape[1]
-    n = slope.size
     q = _area_rate(rain_kind, rain)
     needs_area = rain_kind == _STEADY or rain[2] < 0.0
-    n_chunks = (n + _CHUNK - 1) // _CHUNK
+    n_chunks = (stop - start + chunk - 1) // chunk
     for c in prange(n_chunks):
         vals = np.empty((1, n_par + 1, _BLOCK), dtype=np.float64)
         ubuf = np.empty(_BLOCK, dtype=np.float64)
-        for i in range(c * _CHUNK, min(n, (c + 1) * _CHUNK)):
+        for i in range(start + c * chunk, min(stop, start + (c + 1) * chunk)):
             u = unit[i]
             th = slope[i]
             a = sca[i] if needs_area else 0.0
@@ -255,7 +265,33 @@ def failure_probability(
     size = slope.size
     p_out = np.empty(size, dtype=np.float32)
     se_out = np.empty(size, dtype=np.float32)
-    _failure_probability_kernel(slope, sca, unit, prep, draws, correlation == "unit", rain_kind,
-                                rain_vec, n, nd, z_min, _validate.depth_measured(depth_measured),
-                                *peak_table(), run_key, p_out, se_out)
+    slope_normal = _validate.depth_measured(depth_measured)
+    peak = peak_table()
+    cells, chunk = _call_size(n, rain_kind, numba.get_num_threads())
+    for start in range(0, size, cells):  # a pending Ctrl-C is raised between two calls
+        _failure_probability_kernel(slope, sca, unit, prep, draws, correlation == "unit",
+                                    rain_kind, rain_vec, n, nd, z_min, slope_normal, *peak, run_key,
+                                    start, min(size, start + cells), chunk, p_out, se_out)
     return p_out.reshape(shape), se_out.reshape(shape)
+
+
+def _call_size(samples, rain_kind, threads):
+    """Cells per kernel call and per parallel task of :func:`failure_probability`.
+
+    A compiled kernel does not see Ctrl-C: Python raises the KeyboardInterrupt
+    only once the kernel returns. The cells are therefore handed to the kernel
+    in blocks of about :data:`_CALL_SAMPLES` cell-samples (a quarter of that
+    for a storm), about 0.3 s each on 2 cores, and never fewer than
+    ``_MIN_TASK`` cells per thread, so every thread has work. The results do
+    not depend on the blocks (the draws are keyed by cell).
+
+    Examples
+    --------
+    >>> _call_size(400, _STEADY, 2)
+    (50000, 512)
+    >>> _call_size(100_000, _STEADY, 2)
+    (200, 100)
+    """
+    work = _CALL_SAMPLES // (1 if rain_kind == _STEADY else _STORM_COST)
+    cells = max(work // samples, _MIN_TASK * threads)
+    return cells, min(_CHUNK, -(-cells // threads))

@@ -83,8 +83,9 @@ def _parse_soil(table, ctx: Ctx, base: Path):
             code = int(key)
         except ValueError:
             raise c.fail("unit code must be a whole number (the value in the soil map)") from None
-        if not -2**31 <= code < 2**31:
-            raise c.fail("unit code is out of the 32-bit integer range")
+        if not -2**31 < code < 2**31:
+            raise c.fail(f"unit code is out of the 32-bit integer range ({-2**31 + 1} to "
+                         f"{2**31 - 1})")
         units[code] = _parse_soil_unit(unit_table, c, code)
     return {"soil": Soil(map=soil_map, units=units, depth_measured=depth_measured,
                          min_failure_depth_m=min_depth)}
