@@ -357,8 +357,14 @@ def test_ctrl_c_during_the_commit_is_held_until_the_commit_is_complete(tmp_path,
         return real(*args, **kwargs)
 
     monkeypatch.setattr(commit_mod, "_roll_forward", interrupted)
-    with pytest.raises(KeyboardInterrupt) as caught:
-        commit_mod.commit(staging, out, products, {"products": [p.as_dict() for p in products]})
+    # a process started in the background by a shell ignores SIGINT; a terminal's does not
+    previous = signal.signal(signal.SIGINT, signal.default_int_handler)
+    try:
+        with pytest.raises(KeyboardInterrupt) as caught:
+            commit_mod.commit(staging, out, products,
+                              {"products": [p.as_dict() for p in products]})
+    finally:
+        signal.signal(signal.SIGINT, previous)
     assert caught.value.committed is True
     assert not (out / JOURNAL).exists()
     assert folder_problems(out, ignore=("keep.txt",)) == []
