@@ -5,16 +5,49 @@ none), traced along cell edges with :func:`rasterio.features.shapes` and
 merged per id with shapely. Files are written with pyogrio (GDAL's OGR) to a
 temporary name and renamed when complete; the screening caution goes into the
 layer metadata.
+
+A file holds no time of writing: GDAL stamps the ``last_change`` of
+``gpkg_contents`` and the ``timestamp`` of ``gpkg_metadata_reference`` with the
+current time unless its ``OGR_CURRENT_DATE`` option says otherwise, so every
+write sets that option to :data:`FIXED_TIMESTAMP` for its own duration. Two
+runs of one scenario then write byte-identical GeoPackages.
 """
 
 from __future__ import annotations
 
 import os
+import threading
+from contextlib import contextmanager
 from pathlib import Path
 
 import numpy as np
 
 from .grid import Grid
+
+FIXED_TIMESTAMP = "1970-01-01T00:00:00.000Z"
+"""The time every GeoPackage records as its tables' last change: the Unix epoch, which no
+file was really written at, in the form the GeoPackage standard asks for (ISO 8601, UTC,
+milliseconds). The time of a run is in ``manifest.json`` (``created``), not in its products."""
+
+_DATE_LOCK = threading.Lock()
+
+
+@contextmanager
+def _fixed_gdal_date():
+    """Set GDAL's ``OGR_CURRENT_DATE`` for one write, then put back what was there.
+
+    The option is process-wide in GDAL, so writes hold a lock while it is set
+    (another thread's write cannot restore it in the middle of this one).
+    """
+    from pyogrio import get_gdal_config_option, set_gdal_config_options
+
+    with _DATE_LOCK:
+        before = get_gdal_config_option("OGR_CURRENT_DATE")
+        set_gdal_config_options({"OGR_CURRENT_DATE": FIXED_TIMESTAMP})
+        try:
+            yield
+        finally:
+            set_gdal_config_options({"OGR_CURRENT_DATE": before})
 
 
 def label_polygons(labels: np.ndarray, grid: Grid) -> dict[int, object]:
@@ -130,13 +163,15 @@ def write_features(path, geometries: dict, records: list[dict], grid: Grid, *, l
             columns.append(np.array(["" if v is None else str(v) for v in values], dtype=object))
     meta = {"CAUTION": caution} | {k: str(v) for k, v in (metadata or {}).items()}
     if add_layer:
-        write(str(path), wkb, columns, names, layer=layer, driver="GPKG",
-              geometry_type=geometry_type, crs=grid.crs.to_wkt(), layer_metadata=meta)
+        with _fixed_gdal_date():
+            write(str(path), wkb, columns, names, layer=layer, driver="GPKG",
+                  geometry_type=geometry_type, crs=grid.crs.to_wkt(), layer_metadata=meta)
         return path
     tmp = path.with_name(f".{path.stem}.partial{path.suffix}")
     try:
-        write(str(tmp), wkb, columns, names, layer=layer, driver="GPKG",
-              geometry_type=geometry_type, crs=grid.crs.to_wkt(), layer_metadata=meta)
+        with _fixed_gdal_date():
+            write(str(tmp), wkb, columns, names, layer=layer, driver="GPKG",
+                  geometry_type=geometry_type, crs=grid.crs.to_wkt(), layer_metadata=meta)
         os.replace(tmp, path)
     finally:
         if tmp.exists():

@@ -27,8 +27,10 @@ the cluster that the cut replaced by their modular lower bound)."""
 SIZE_FIELDS = ("id", "rain", "band_min_m2", "band_max_m2", "fs", "failure_probability",
                "lower_bound", "relaxation_bound", "heuristic_fs", "proven", "method", "area_m2",
                "volume_m3", "mean_depth_m", "length_m", "width_m", "n_cells", "min_cell_fs",
-               "seconds", "centroid_easting", "centroid_northing")
-"""Attributes of the ``size_resolved`` layer: the least-stable cluster per window and area band."""
+               "centroid_easting", "centroid_northing")
+"""Attributes of the ``size_resolved`` layer: the least-stable cluster per window and area band
+(the search times go to the manifest, ``cluster_search``, so that the layer is the same on
+every run)."""
 
 
 _TABLE_NAMES = {"failure_probability": "probability"}
@@ -121,7 +123,9 @@ def clusters_stage(scenario, inputs, cells: SoilCells, slope, stability, earlier
                        polygons=MappingProxyType(polygons), size_records=tuple(size_records),
                        size_polygons=MappingProxyType(size_polygons),
                        modular_faces=int(result.modular_faces),
-                       undecided_cells=int(result.undecided_cells))
+                       undecided_cells=int(result.undecided_cells),
+                       size_search_seconds=0.0 if sizes is None else round(
+                           float(np.nansum(np.asarray(sizes.table["seconds"], dtype=float))), 3))
 
 
 @dataclass(frozen=True)

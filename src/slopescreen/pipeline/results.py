@@ -172,6 +172,7 @@ class ClusterCase:
     size_polygons: MappingProxyType = _empty()
     modular_faces: int = 0
     undecided_cells: int = 0
+    size_search_seconds: float = 0.0
     cells: tuple = ()
     """After :meth:`kept`: (flat cell indices, cluster ids) of the cluster cells."""
 
@@ -180,7 +181,8 @@ class ClusterCase:
         return "cluster_search", {
             "rain": self.case.name, "clusters": len(self.records),
             "not_proven": sum(1 for r in self.records if not r["proven"]),
-            "modular_faces": self.modular_faces, "undecided_cells": self.undecided_cells}
+            "modular_faces": self.modular_faces, "undecided_cells": self.undecided_cells,
+            "size_search_seconds": self.size_search_seconds}
 
     def kept(self):
         """What later stages read: the rows, outlines and cluster cells, not the rasters."""

@@ -7,6 +7,8 @@ import math
 import warnings
 from pathlib import Path
 
+import numpy as np
+
 from ..errors import InputWarning, ScenarioError
 
 
@@ -178,8 +180,14 @@ def get_path(table, key, ctx: Ctx, *, must_exist=True, required=False) -> Path |
     text = get_string(table, key, ctx, required=required)
     if text is None:
         return None
+    if "\0" in text:
+        raise ctx.child(key).fail(f"a path cannot hold a NUL character, got {_describe(text)}")
     path = (ctx.file.parent / text).resolve()
-    if must_exist and not path.exists():
+    try:
+        found = path.exists()
+    except OSError as exc:  # a name too long for the file system, say
+        raise ctx.child(key).fail(f"not a usable path: {_describe(text)} ({exc.strerror})") from None
+    if must_exist and not found:
         raise ctx.child(key).fail(f"file not found: {text} (paths are relative to the scenario file)")
     return path
 
@@ -195,6 +203,10 @@ def slugify(name: str) -> str:
     slug = "".join(out).strip("-")
     return slug or "case"
 
+
+_TINY32 = float(np.finfo(np.float32).tiny)
+"""Smallest normal 32-bit float: an open lower bound of a soil property is exceeded by at least
+this much, so the property is not 0 (or a denormal) in the float32 soil table and products."""
 
 SOIL_PROPERTIES = {
     "depth_m": (0.0, 20.0, True, None, 5.0, True, None),
@@ -222,6 +234,9 @@ def parse_parameter(value, ctx: Ctx, *, low, high, low_open=False, warn_low=None
         if x < low or (low_open and x == low) or x > high:
             op = ">" if low_open else ">="
             raise ctx.fail(f"{what} must be {op} {low:g} and <= {high:g}, got {x:g}")
+        if low_open and x - low < _TINY32:   # the soil table and the products are float32
+            raise ctx.fail(f"{what} must be > {low:g}, got {x:g}: below {_TINY32:.3g}, the "
+                           "least the computations hold (32-bit floats)")
         if (warn_low is not None and x < warn_low) or (warn_high is not None and x > warn_high):
             warnings.warn(
                 f"{ctx.where()}: {what} {x:g} is outside the usual range "

@@ -94,8 +94,7 @@ def scenario_from_data(data: dict, path: Path, *, sha256: str) -> Scenario:
     check_keys(data, ctx, set(TOP_LEVEL_KEYS) | set(SECTION_PARSERS), required=("dem", "output"))
     title = get_string(data, "title", ctx, default=path.stem)
     dem = get_path(data, "dem", ctx, required=True)
-    output_text = get_string(data, "output", ctx, required=True)
-    output = (path.parent / output_text).resolve()
+    output = get_path(data, "output", ctx, must_exist=False, required=True)
     vertical = get_string(data, "dem_vertical_unit", ctx, choices=tuple(VERTICAL_UNITS))
     kwargs: dict[str, Any] = {"routing": Routing(), "dem_date": get_date(data, "dem_date", ctx)}
     for key, parser in SECTION_PARSERS.items():
