@@ -129,7 +129,8 @@ def test_two_keys_and_a_random_split(known):
 @pytest.mark.parametrize("vary, message", [
     ("soil.units.1.cohesion=1:3:3", "soil.units.1.cohesion: not a key of the scenario"),
     ("soil.units.1.friction_deg=38:30:5", "LOW must be below HIGH"),
-    ("soil.units.1.friction_deg=30:38", "expected KEY=LOW:HIGH:N"),
+    ("soil.units.1.friction_deg=30:38", "s.toml: --vary soil.units.1.friction_deg=30:38: "
+                                        "expected KEY=LOW:HIGH:N"),
     ("routing.mfd_exponent=1:2:3", "a sweep varies [soil] and [[rain]] values only"),
     ("rain.storm.steady_mm_per_day=1:2:3", "no rain case named 'storm'"),
     ("soil.units.1.friction_deg=10:70:4", "friction_deg"),
@@ -167,6 +168,20 @@ def test_a_distribution_is_swept_through_its_parameters(known, capsys):
     assert main(["sweep", str(known / "dist.toml"), "--vary",
                  "soil.units.1.friction_deg.low=30:38:5"]) == 2
     assert "is not a distribution with a parameter 'low'" in capsys.readouterr().err
+
+
+@pytest.mark.parametrize("args, message", [
+    (["--output", "s.toml/x"], "s.toml: --output: s.toml is a file, not a folder"),
+    (["--output", "/usr/lib/sweep"], "s.toml: --output: /usr/lib/sweep lies inside the system"),
+    (["--block-m", "0"], "s.toml: --block-m: must be > 0"),
+    (["--rain", "storm"], "s.toml: --rain: no rain case named 'storm'"),
+])
+def test_bad_sweep_options_exit_2_naming_the_scenario(known, capsys, args, message):
+    args = [a.replace("s.toml/x", str(known / "s.toml" / "x")) for a in args]
+    assert main(["sweep", str(known / "s.toml"), "--vary",
+                 "soil.units.1.friction_deg=30:38:3"] + args) == 2
+    err = capsys.readouterr().err.strip().splitlines()
+    assert len(err) == 1 and message in err[0], err
 
 
 def test_a_sweep_needs_an_inventory(known, capsys):

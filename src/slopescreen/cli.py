@@ -199,9 +199,13 @@ def _sweep(args) -> int:
     from .inventory.sweep_keys import parse_vary
     from .pipeline.sweep import OVERSTATE, edge_text, run_sweep
 
-    varies = [parse_vary(text) for text in args.vary]
+    name = os.path.basename(args.scenario)
+    try:
+        varies = [parse_vary(text) for text in args.vary]
+    except InputError as exc:
+        raise InputError(f"{name}: {exc}") from None
     if args.block_m is not None and not args.block_m > 0:
-        raise InputError(f"--block-m: must be > 0, got {args.block_m:g}")
+        raise InputError(f"{name}: --block-m: must be > 0, got {args.block_m:g}")
     say = None if args.quiet else (lambda text: _write_line(f"sweep: {text}"))
     result = run_sweep(args.scenario, varies, rain=args.rain, split=args.split, seed=args.seed,
                        block_m=args.block_m, output=args.output, progress=say)

@@ -13,7 +13,7 @@ from pathlib import Path
 
 from ..errors import InputError
 
-__all__ = ["SYSTEM_FOLDERS", "SYSTEM_TREES", "check_output", "writable_names",
+__all__ = ["SYSTEM_FOLDERS", "SYSTEM_TREES", "check_output", "folder_problem", "writable_names",
            "memory_needed_bytes", "check_memory"]
 
 SYSTEM_FOLDERS = ("/", "/bin", "/boot", "/dev", "/etc", "/home", "/lib", "/lib32", "/lib64",
@@ -65,6 +65,26 @@ def _system_refusal(out: Path) -> str | None:
     return None
 
 
+def folder_problem(out: Path, where: str) -> None:
+    """Refuse an output folder that is a system or home folder, lies in a file or is not writable.
+
+    ``where`` starts the message (``"s.toml: output"``).
+    """
+    out = Path(out).resolve()
+    why = _system_refusal(out)
+    if why:
+        raise InputError(f"{where}: {why}; write into a folder of its own")
+    probe = out
+    while not probe.exists():
+        probe = probe.parent
+    if not probe.is_dir():
+        raise InputError(f"{where}: {probe.name} is a file, not a folder; the output "
+                         f"folder {out} cannot be made inside it")
+    if not os.access(probe, os.W_OK | os.X_OK):
+        raise InputError(f"{where}: cannot write into {probe} (no permission); choose "
+                         "another output folder")
+
+
 def check_output(scenario) -> None:
     """Refuse an output folder the run cannot or must not write, before anything is computed.
 
@@ -78,18 +98,7 @@ def check_output(scenario) -> None:
 
     name = scenario.path.name
     out = Path(scenario.output).resolve()
-    why = _system_refusal(out)
-    if why:
-        raise InputError(f"{name}: output: {why}; write into a folder of its own")
-    probe = out
-    while not probe.exists():
-        probe = probe.parent
-    if not probe.is_dir():
-        raise InputError(f"{name}: output: {probe.name} is a file, not a folder; the output "
-                         f"folder {out} cannot be made inside it")
-    if not os.access(probe, os.W_OK | os.X_OK):
-        raise InputError(f"{name}: output: cannot write into {probe} (no permission); choose "
-                         "another output folder")
+    folder_problem(out, f"{name}: output")
     names = writable_names(scenario)
     for p in scenario.input_files():
         p = Path(p).resolve()

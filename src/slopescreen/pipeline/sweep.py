@@ -202,6 +202,9 @@ def _check_output(out: Path, scenario) -> None:
     inputs = {p.resolve() for p in scenario.input_files()}
     if out in inputs or out.is_file():
         raise InputError(f"{name}: --output: {out.name} must be a folder, not an input or a file")
+    from .guard import folder_problem
+
+    folder_problem(out, f"{name}: --output")
     if out == scenario.output.resolve():
         raise InputError(f"{name}: --output: the sweep needs a folder of its own, not the run's "
                          f"output folder {out.name}")
