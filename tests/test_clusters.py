@@ -50,7 +50,7 @@ def test_bound_at_least_one_means_no_failure():
 
 
 @pytest.mark.parametrize("kw, match", [
-    (dict(friction_deg=60.0), "friction_deg"),
+    (dict(friction_deg=60.5), "friction_deg"),
     (dict(lateral_root_cohesion_kpa=-1.0), "lateral_root_cohesion_kpa"),
     (dict(passive_fraction=1.5), "passive_fraction"),
 ])

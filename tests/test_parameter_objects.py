@@ -288,7 +288,7 @@ def test_storm_inputs_name_the_field_as_the_loose_call_does(field, value):
     (SoilStrength, "saturated_unit_weight_kn_m3", 9.0),
     (SoilStrength, "saturated_unit_weight_kn_m3", 17.0),   # lighter than the moist weight
     (ClusterStrength, "lateral_root_cohesion_kpa", -0.5),
-    (ClusterStrength, "friction_deg", 60.0),
+    (ClusterStrength, "friction_deg", 60.5),
 ])
 def test_strength_objects_name_the_field(cls, field, value):
     extra = {"lateral_root_cohesion_kpa": 1.0} if cls is ClusterStrength else {}

@@ -17,12 +17,12 @@ bands, three rain cases, segments of at least 1 m.
 
 import contextlib
 import datetime as dt
-import functools
 import io
 import json
 import math
 import posixpath
 import re
+import warnings
 
 import numpy as np
 import pytest
@@ -136,21 +136,21 @@ def numbers(low, high, *, low_open=False):
 
 texts = st.text(st.characters(blacklist_categories=("Cs",)), min_size=1, max_size=12).filter(
     str.strip)
-names = st.text(  # drawn on the maps: characters of the map font (see known_failure)
-    st.characters(min_codepoint=0x20, max_codepoint=0x17F, blacklist_categories=("Cc", "Cs")),
-    min_size=1, max_size=12).filter(str.strip)
+names = st.one_of(  # drawn on the maps, also with characters the map font lacks
+    st.text(st.characters(min_codepoint=0x20, max_codepoint=0x17F, blacklist_categories=("Cs",)),
+            min_size=1, max_size=12).filter(str.strip), texts)
 dates = st.dates(dt.date(1900, 1, 1), dt.date(2100, 1, 1))
 crs_texts = st.sampled_from([f"EPSG:{EPSG}", "EPSG:4326", "EPSG:3857"])
 
 SOIL = {  # key: (low, high, low is excluded, required)
-    "depth_m": (0.0, 20.0, True, True),
+    "depth_m": (0.01, 20.0, False, True),
     "cohesion_kpa": (0.0, 500.0, False, True),
     "root_cohesion_kpa": (0.0, 500.0, False, False),
     "lateral_root_cohesion_kpa": (0.0, 500.0, False, False),
     "friction_deg": (0.0, 60.0, True, True),
     "unit_weight_kn_m3": (10.0, 25.0, False, True),
     "conductivity_m_per_day": (0.0, 1.0e4, True, True),
-    "diffusivity_m2_per_s": (0.0, 1.0, True, False),
+    "diffusivity_m2_per_s": (1.0e-12, 1.0, False, False),
 }
 
 
@@ -187,7 +187,7 @@ def rain_case(draw, name):
         case["steady_mm_per_day"] = draw(numbers(0.0, 5000.0))
         return case
     case["storm_mm_per_h"] = draw(numbers(0.0, 1000.0, low_open=True))
-    case["duration_h"] = draw(numbers(0.0, 720.0, low_open=True))
+    case["duration_h"] = draw(numbers(0.01, 720.0))
     if draw(st.booleans()):
         case["water_table_depth_m"] = draw(numbers(0.0, 20.0))
     else:
@@ -326,7 +326,6 @@ SLOW = {  # key: (is the value slow?, a small value in range instead)
     "size_windows": (lambda v: _number(v) and 1 < v <= 1000, 1),
     "size_bands": (lambda v: _number(v) and 2 < v <= 8, 2),
     "size_time_limit_s": (lambda v: _number(v) and 1 < v <= 3600, 1.0),
-    "segment_m": (lambda v: _number(v) and 0 < v < 1, 1.0),
 }
 
 
@@ -371,97 +370,6 @@ def fast_enough(doc) -> bool:
     rain = doc.get("rain")
     return not (drawn and "uncertainty" not in doc) and not (isinstance(rain, list)
                                                              and len(rain) > 3)
-
-
-def known_failure(doc) -> str | None:
-    """Why ``doc`` has an input shape of a known bug, left to the lead (None: none known)."""
-    rain = doc.get("rain")
-    for case in rain if isinstance(rain, list) else ():
-        d = case.get("duration_h") if isinstance(case, dict) else None
-        # Known failure (bug: the storm kernel on storms of a few microseconds): a storm whose
-        # duration_h is positive but tiny (below about 1e-160 h) stops the run with
-        # "time_s: holds infinite values" (no file, no key; exit 2) and below about 1e-280 h
-        # with a ZeroDivisionError inside _storm_minimum_kernel (exit 1).
-        if _number(d) and 0 < d < 1e-6 and "storm_mm_per_h" in case:
-            return "storm duration_h below 1e-6 h"
-    storm = any(isinstance(c, dict) and "storm_mm_per_h" in c
-                for c in (rain if isinstance(rain, list) else ()))
-    units = doc.get("soil", {}).get("units") if isinstance(doc.get("soil"), dict) else None
-    for unit in units.values() if isinstance(units, dict) else ():
-        depth = unit.get("depth_m") if isinstance(unit, dict) else None
-        # Known failure (bug: kernels on a film of soil): a soil depth_m below about 1e-20 m
-        # (fixed, or a parameter of its distribution) stops a storm case with a
-        # ZeroDivisionError inside _head_kernel (storm_pressure_head; exit 1), and a run with
-        # [clusters] and the size-resolved search with "SolverError: HiGHS returned status
-        # 'infeasible'" (exit 1).
-        if any(0 < v < 1e-6 for v in _numbers_in(depth)):
-            return "soil depth_m below 1e-6 m"
-        diffusivity = unit.get("diffusivity_m2_per_s") if isinstance(unit, dict) else None
-        # Known failure (bug: storm times beyond the range of float32): a storm case with a
-        # diffusivity_m2_per_s so small that the time of the least FS (about Z^2 / D0) passes
-        # 3.4e38 s (D0 = 1.2e-38 m2/s with depth_m = 2) stops the run with "time_s: holds
-        # infinite values" (no file, no key; exit 2) where check said OK.
-        if storm and any(0 < v < 1e-30 for v in _numbers_in(diffusivity)):
-            return "storm with a diffusivity_m2_per_s below 1e-30 m2/s"
-        friction = unit.get("friction_deg") if isinstance(unit, dict) else None
-        # Known failure (bug: [clusters] refuses the top of the friction range at run time):
-        # friction_deg = 60 (the top of its documented range; also 59.9999999, 60 as a 32-bit
-        # float) with a [clusters] section passes check, then stops the run with "friction_deg:
-        # must be < 60 degrees (K_p grows without bound)" (no file, no key; exit 2).
-        if "clusters" in doc and any(v >= 59.999 for v in _numbers_in(friction)):
-            return "[clusters] with friction_deg 60"
-    u = doc.get("uncertainty")
-    if isinstance(u, dict) and u.get("method") == "fosm" and isinstance(units, dict):
-        # Known failure (bug: FOSM on a spread below the precision of the mean): a { normal =
-        # [mean, sd] } property with 0 < sd < about 1e-16 x mean (friction_deg = { normal =
-        # [17.3, 1e-16] }) under method = "fosm" stops the run with "mean_fs and sd_fs must be
-        # finite, sd_fs >= 0" (no file, no key; exit 2) where check said OK.
-        for unit in units.values():
-            for value in unit.values() if isinstance(unit, dict) else ():
-                pair = value.get("normal") if isinstance(value, dict) else None
-                if (isinstance(pair, list) and len(pair) == 2 and all(map(_number, pair))
-                        and 0 < pair[1] < 1e-12 * max(abs(pair[0]), 1e-300)):
-                    return "fosm with a normal spread below the precision of its mean"
-    c = doc.get("clusters")
-    if isinstance(c, dict) and c.get("size_windows", 5) != 0 and all(
-            _number(c.get(k)) and math.isfinite(c[k]) for k in ("min_area_m2", "max_area_m2")):
-        # Known failure (bug: an area band narrower than a cell is found only by computing):
-        # [clusters] with the size-resolved search on and min_area_m2..max_area_m2 holding no
-        # whole number of cells (1..1 m2 on 25 m2 cells) passes check, then stops the run with
-        # "min_area_m2, max_area_m2: the band [1, 1] m^2 holds no whole number of 25 m^2
-        # cells; widen it" (no file, no key; exit 2).
-        if math.floor(c["max_area_m2"] / CELL**2 + 1e-9) < max(
-                1, math.ceil(c["min_area_m2"] / CELL**2 - 1e-9)):
-            return "[clusters] area band narrower than a cell"
-    # Known failure (bug: text the map font cannot draw): a title or a rain case name with a
-    # character DejaVu Sans lacks (a control character, CJK) makes matplotlib warn "Glyph N
-    # missing from font(s)" while the maps are drawn: a stray warning line on stderr, and
-    # exit 1 where warnings are errors (as in this suite).
-    names = [doc.get("title")] + [c.get("name") for c in (rain if isinstance(rain, list) else ())
-                                  if isinstance(c, dict)]
-    if any(isinstance(t, str) and not _drawable(t) for t in names):
-        return "text the map font lacks"
-    return None
-
-
-def _numbers_in(value):
-    if _number(value):
-        yield value
-    elif isinstance(value, (list, dict)):
-        for v in value.values() if isinstance(value, dict) else value:
-            yield from _numbers_in(v)
-
-
-@functools.cache
-def _font_has(ch: str) -> bool:
-    from matplotlib import font_manager, ft2font
-
-    font = ft2font.FT2Font(font_manager.findfont("DejaVu Sans"))
-    return font.get_char_index(ord(ch)) != 0
-
-
-def _drawable(text: str) -> bool:
-    return all(_font_has(ch) for ch in text if ch not in "\n")
 
 
 def _at(doc, path):
@@ -520,8 +428,8 @@ def _copy(doc):
 
 
 any_documents = valid_document().flatmap(changed).map(capped)
-"""Documents for ``check``, which computes nothing (no cap on time, no known failure)."""
-documents = any_documents.filter(fast_enough).filter(lambda doc: known_failure(doc) is None)
+"""Documents for ``check``, which computes nothing (no cap on time)."""
+documents = any_documents.filter(fast_enough)
 """Documents for ``run``."""
 
 
@@ -588,3 +496,71 @@ def test_run_exits_0_or_2_and_agrees_with_check(inputs, doc):
         assert (code, lines) == (checked, check_lines), toml_document(doc)
     else:               # check passes: run computes
         assert code == 0, f"{lines}\n{toml_document(doc)}"
+
+
+# ---------------------------------------------------------------------------------------------
+# Shapes the fuzzing found, each once an exit 1 or a run-time error that check had passed
+# ---------------------------------------------------------------------------------------------
+
+def _unit(**kw):
+    return {"depth_m": 2.0, "cohesion_kpa": 2.0, "friction_deg": 30.0, "unit_weight_kn_m3": 18.0,
+            "conductivity_m_per_day": 1.0, "diffusivity_m2_per_s": 1e-4} | kw
+
+
+def _found(unit=None, rain=None, **sections):
+    return BASE | {"soil": {"units": {"1": unit or _unit()}},
+                   "rain": [rain or {"name": "w", "steady_mm_per_day": 10.0}]} | sections
+
+
+_SURGE = {"name": "s", "storm_mm_per_h": 10.0, "duration_h": 5.0, "antecedent_mm_per_day": 2.0}
+_BAND = {"min_area_m2": 50.0, "max_area_m2": 400.0, "size_windows": 1, "size_time_limit_s": 0.5}
+
+FOUND = {  # name: (document, exit status of check and run, what the one line names)
+    # ZeroDivisionError in the storm head kernel: Z^2 of a 32-bit depth underflowed
+    "storm_on_a_film_of_soil": (_found(_unit(depth_m=1e-25), _SURGE), 2, "depth_m: value must be >= 0.01"),
+    # HiGHS "infeasible" in the size-resolved search
+    "clusters_on_a_film_of_soil": (_found(_unit(depth_m=1e-21), clusters=_BAND), 2, "depth_m"),
+    # ZeroDivisionError in the storm minimum kernel
+    "storm_of_no_duration": (_found(rain=_SURGE | {"duration_h": 1e-290}), 2, "rain[0].duration_h"),
+    # "time_s: holds infinite values" after check passed
+    "storm_on_a_soil_that_barely_drains": (
+        _found(_unit(diffusivity_m2_per_s=1.2e-38), _SURGE), 2, "diffusivity_m2_per_s"),
+    # "friction_deg: must be < 60 degrees" from the cluster model after check passed; 60 is in
+    # the documented range and every model takes it
+    "clusters_at_the_top_of_the_friction_range": (
+        _found(_unit(friction_deg=60.0), clusters=_BAND), 0, None),
+    # "the band [1, 1] m^2 holds no whole number of 25 m^2 cells" after check passed
+    "clusters_band_narrower_than_a_cell": (
+        _found(clusters=_BAND | {"min_area_m2": 1.0, "max_area_m2": 1.0}), 2,
+        "[clusters].min_area_m2, max_area_m2: the band 1-1 m^2 holds no whole number"),
+    # "mean_fs and sd_fs must be finite" from FOSM after check passed (0/0 derivative)
+    "fosm_with_a_spread_below_the_precision_of_its_mean": (
+        _found(_unit(friction_deg={"normal": [17.3, 1e-16]}),
+               uncertainty={"method": "fosm", "samples": 1}), 0, None),
+    # "Glyph N missing from font(s)" warnings while the maps were drawn
+    "names_the_map_font_lacks": (
+        _found(rain={"name": "\u96e8 \x07", "steady_mm_per_day": 10.0})
+        | {"title": "\u5c71\u8c37 valley"}, 0, None),
+    # 55,000 segments of a millimetre on a 55 m road: minutes of work for no use
+    "corridor_segments_of_a_millimetre": (
+        BASE | {"corridor": {"centreline": "road.geojson", "segment_m": 0.001}}, 2,
+        "corridor.segment_m: must be >= 1"),
+    # the new floors together, in a storm with Monte Carlo: they run
+    "storm_at_every_floor": (
+        _found(_unit(depth_m={"uniform": [0.01, 0.02]}, diffusivity_m2_per_s=1e-12),
+               _SURGE | {"duration_h": 0.01}, uncertainty={"samples": 5}), 0, None),
+}
+
+
+@pytest.mark.parametrize("name", list(FOUND))
+def test_found_cases(inputs, name):
+    doc, expected, names = FOUND[name]
+    with warnings.catch_warnings(record=True) as caught:
+        warnings.simplefilter("always")
+        checked, check_lines = command(inputs, "check", doc)
+        code, lines = command(inputs, "run", doc)
+    assert not [w for w in caught if "missing from font" in str(w.message)]
+    assert (checked, code) == (0 if expected == 0 else 2, expected), (check_lines, lines)
+    if expected == 2:
+        assert check_lines == lines and len(lines) == 1 and ERROR.match(lines[0])
+        assert "fuzz.toml: " in lines[0] and names in lines[0], lines

@@ -144,7 +144,7 @@ def face_pressures(depth_m, wetness, *, cohesion_kpa, lateral_root_cohesion_kpa,
     lateral_root_cohesion_kpa : float
         Root cohesion across the side and head faces, kPa (>= 0), depth-uniform.
     friction_deg : float
-        phi', degrees in [0, 60).
+        phi', degrees in [0, 60].
     unit_weight_kn_m3 : float
         Moist unit weight gamma_m, kN/m^3.
     saturated_unit_weight_kn_m3 : float, optional
@@ -230,8 +230,8 @@ def face_pressures(depth_m, wetness, *, cohesion_kpa, lateral_root_cohesion_kpa,
     gs = vals["unit_weight_kn_m3"] if saturated_unit_weight_kn_m3 is None else float(
         _validate.field(saturated_unit_weight_kn_m3, "saturated_unit_weight_kn_m3", GAMMA_W,
                         30.0, allow_nan=False))
-    if vals["friction_deg"] >= 60.0 or gs < GAMMA_W and vals["wetness"] > 0.0:
-        raise InputError("friction_deg must be < 60 and the saturated unit weight >= 9.81 kN/m^3")
+    if gs < GAMMA_W and vals["wetness"] > 0.0:
+        raise InputError("saturated_unit_weight_kn_m3: must be >= 9.81 kN/m^3 under water")
     if vals["ground_slope_deg"] >= 90.0:
         raise InputError("ground_slope_deg: must be < 90 degrees")
     phi = math.radians(vals["friction_deg"])
@@ -287,7 +287,7 @@ def cluster_forces(slope_deg, aspect_deg, depth_m, wetness, *, dx, dy, strength=
         thickness"); ``depth_m`` of the result is z.
     strength : ClusterStrength
         c' (on the base, the sides and the toe), basal and lateral root
-        cohesion, phi' (< 60 degrees), gamma_m and the optional gamma_sat
+        cohesion, phi' (0-60 degrees), gamma_m and the optional gamma_sat
         (default gamma_m, then in [9.81, 30]); each per cell or one value.
     passive_fraction : float
         Share eta in [0, 1] of full Rankine passive resistance at the toe (default 0.5).

@@ -40,8 +40,7 @@ class ClusterStrength(SoilStrength):
     lateral_root_cohesion_kpa : array_like
         Root cohesion across the side and head faces, kPa (>= 0), depth-uniform.
 
-    The friction angle must also be below 60 degrees (K_p grows without
-    bound at 60). Fields are numbers or per-cell arrays that broadcast to the
+    Fields are numbers or per-cell arrays that broadcast to the
     grid of the call.
 
     Raises
@@ -56,11 +55,6 @@ class ClusterStrength(SoilStrength):
     ...     lateral_root_cohesion_kpa=2.0, friction_deg=34.0, unit_weight_kn_m3=18.5)
     >>> float(soil.lateral_root_cohesion_kpa)
     2.0
-    >>> ClusterStrength(cohesion_kpa=0.5, root_cohesion_kpa=0.5, lateral_root_cohesion_kpa=2.0,
-    ...     friction_deg=60.0, unit_weight_kn_m3=18.5)
-    Traceback (most recent call last):
-    ...
-    slopescreen.errors.InputError: friction_deg: must be < 60 degrees (K_p grows without bound)
     """
 
     lateral_root_cohesion_kpa: np.ndarray
@@ -69,8 +63,6 @@ class ClusterStrength(SoilStrength):
         super().__post_init__()
         self._store("lateral_root_cohesion_kpa", _validate.field(
             self.lateral_root_cohesion_kpa, "lateral_root_cohesion_kpa", 0.0, math.inf))
-        if np.nanmax(self.friction_deg) >= 60.0:
-            raise InputError("friction_deg: must be < 60 degrees (K_p grows without bound)")
 
 
 def _count(value, name, low):

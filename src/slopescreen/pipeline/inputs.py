@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import math
 from dataclasses import dataclass, field
 from pathlib import Path
 
@@ -68,6 +69,8 @@ def read_inputs(scenario: Scenario) -> Inputs:
     vunit = None if scenario.dem_vertical_unit is None else VERTICAL_UNITS[scenario.dem_vertical_unit]
     z, grid = read_dem(scenario.dem, vertical_unit_m=vunit)
     warn_unusual_cells(grid)
+    if scenario.clusters is not None:
+        _check_area_band(scenario, grid)
     soil = scenario.soil
     soil_codes = None
     if soil is not None and soil.map is not None:
@@ -98,6 +101,18 @@ def read_inputs(scenario: Scenario) -> Inputs:
     return Inputs(z=z, grid=grid, soil_codes=soil_codes, corridor=corridor,
                   landslides=() if inventory is None else inventory.geometries,
                   inventory=inventory)
+
+
+def _check_area_band(scenario, grid) -> None:
+    """Refuse a ``[clusters]`` area band that holds no whole number of the DEM's cells."""
+    c = scenario.clusters
+    cell = grid.dx_m * grid.dy_m
+    kmin = max(1, math.ceil(c.min_area_m2 / cell - 1e-9))
+    if math.floor(c.max_area_m2 / cell + 1e-9) < kmin:
+        raise InputError(
+            f"{scenario.path.name}: [clusters].min_area_m2, max_area_m2: the band "
+            f"{c.min_area_m2:g}-{c.max_area_m2:g} m^2 holds no whole number of the DEM's "
+            f"{cell:g} m^2 cells ({grid.dx_m:g} x {grid.dy_m:g} m); widen it to at least one cell")
 
 
 def _with_engineered_unit(scenario, grid, soil_codes, engineered, unit):

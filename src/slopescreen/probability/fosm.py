@@ -121,9 +121,10 @@ def _fosm_kernel(slope, sca, unit, means, sds, x_lo, x_hi, rain_kind, rain, n_de
         var = 0.0
         for p in range(n_par):
             sd = sds[u, p]
-            if sd > 0.0:
-                hi = x_hi[u, p]
-                lo = x_lo[u, p]
+            hi = x_hi[u, p]
+            lo = x_lo[u, p]
+            # a spread below the precision of the mean (x +- sd == x) adds nothing
+            if sd > 0.0 and hi > lo:
                 x[p] = hi
                 f_hi = _fs_of_vector(x, sin_t, cos_t, inflow, rain_kind, rain, n_depths, z_min,
                                      slope_normal)

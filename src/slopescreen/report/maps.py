@@ -227,7 +227,10 @@ def png_bytes(fig, *, title="", caution=SHORT) -> bytes:
 
     from .. import __version__
 
+    from ._glyphs import replace_missing_glyphs
+
     canvas = fig.canvas if isinstance(fig.canvas, FigureCanvasAgg) else FigureCanvasAgg(fig)
+    replace_missing_glyphs(fig)   # characters the font lacks are drawn as U+FFFD, no warning
     canvas.draw()
     rgba = np.asarray(canvas.buffer_rgba())
     if not (rgba[..., 3] == 255).all():

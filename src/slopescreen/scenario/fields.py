@@ -209,17 +209,20 @@ _TINY32 = float(np.finfo(np.float32).tiny)
 this much, so the property is not 0 (or a denormal) in the float32 soil table and products."""
 
 SOIL_PROPERTIES = {
-    "depth_m": (0.0, 20.0, True, None, 5.0, True, None),
+    "depth_m": (0.01, 20.0, False, None, 5.0, True, None),
     "cohesion_kpa": (0.0, 500.0, False, None, None, True, None),
     "root_cohesion_kpa": (0.0, 500.0, False, None, None, False, 0.0),
     "lateral_root_cohesion_kpa": (0.0, 500.0, False, None, None, False, 0.0),
     "friction_deg": (0.0, 60.0, True, None, None, True, None),
     "unit_weight_kn_m3": (10.0, 25.0, False, 14.0, 23.0, True, None),
     "conductivity_m_per_day": (0.0, 1.0e4, True, None, None, True, None),
-    "diffusivity_m2_per_s": (0.0, 1.0, True, None, None, False, None),
+    "diffusivity_m2_per_s": (1.0e-12, 1.0, False, None, None, False, None),
 }
 """Accepted range of each soil property: (low, high, low is excluded, warn below,
-warn above, required, default). Ranges follow common screening practice."""
+warn above, required, default). Ranges follow common screening practice; the floors of
+``depth_m`` (1 cm) and ``diffusivity_m2_per_s`` (1e-12 m^2/s, a time scale Z^2 / D0 of at most
+4e14 s for 20 m of soil) keep every storm time and force within the 32-bit floats of the
+products."""
 
 
 def parse_parameter(value, ctx: Ctx, *, low, high, low_open=False, warn_low=None, warn_high=None):

@@ -118,8 +118,8 @@ def _parse_rain(table, ctx: Ctx, base: Path):
                     raise c.child(key).fail("applies only to a storm case (storm_mm_per_h)")
             cases.append(RainCase(name=name, steady_mm_per_day=steady))
         else:
-            duration = get_number(item, "duration_h", c, low=0.0, high=24.0 * 30, low_open=True,
-                                  required=True)
+            # at least 36 s: a storm time t / (Z^2 / 4 D0) must stay a 32-bit float
+            duration = get_number(item, "duration_h", c, low=0.01, high=24.0 * 30, required=True)
             if ("water_table_depth_m" in item) == ("antecedent_mm_per_day" in item):
                 key = "antecedent_mm_per_day" if "antecedent_mm_per_day" in item else (
                     "water_table_depth_m")
@@ -198,7 +198,8 @@ def _parse_corridor(table, ctx: Ctx, base: Path):
             "applies only with engineered_ground = \"FILE\" (where the unit lies)")
     return {"corridor": Corridor(
         centreline=paths["centreline"],
-        segment_m=get_number(table, "segment_m", ctx, default=100.0, low=0.0, low_open=True),
+        # at least 1 m: a table row per metre of road is the finest a DEM supports
+        segment_m=get_number(table, "segment_m", ctx, default=100.0, low=1.0),
         half_width_m=get_number(table, "half_width_m", ctx, default=10.0, low=0.0,
                                 high=1000.0),
         start_chainage_m=get_number(table, "start_chainage_m", ctx, default=0.0),
