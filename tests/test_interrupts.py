@@ -5,6 +5,7 @@ once the kernel returns. The long kernels are therefore called over blocks of
 cells (or clusters); the blocks must not change a single bit of the results.
 """
 
+import os
 import queue
 import re
 import shutil
@@ -326,3 +327,150 @@ def test_cluster_probability_in_blocks_matches_one_whole_range_call(monkeypatch,
     assert len(calls) > 10
     assert np.array_equal(whole.fs_samples, blocks.fs_samples)
     assert np.array_equal(whole.p_f, blocks.p_f)
+
+
+# ---------------------------------------------------------------------------------------------
+# The global kernels (Priority-Flood filling, flats, receivers, accumulation, runout paths) run
+# once over the whole grid; they run on a worker thread and poll a stop flag that the main
+# thread sets when a signal's exception arrives (slopescreen._stoppable)
+# ---------------------------------------------------------------------------------------------
+
+ROWS = 400   # 160,000 cells: more steps than one poll interval (2^16) of every kernel
+
+
+def _pitted_noise(rows=ROWS, seed=3):
+    """Random relief: pits everywhere, so filling takes every cell through its queues."""
+    return np.random.default_rng(seed).random((rows, rows)).astype(np.float32) * 10.0
+
+
+@pytest.fixture
+def flag_up(monkeypatch):
+    """Every stoppable kernel starts with its stop flag already set."""
+    from slopescreen import _stoppable
+
+    monkeypatch.setattr(_stoppable, "new_flag", lambda: np.ones(1, dtype=np.uint8))
+
+
+def test_a_set_flag_stops_the_fill_kernel(flag_up):
+    from slopescreen.terrain import fill_depressions
+
+    z = _pitted_noise()
+    partial = fill_depressions(z)
+    assert (partial < _full(fill_depressions, z)).any()     # pits left unfilled
+    assert (partial >= z).all()                              # the input itself untouched
+
+
+def _full(fn, *args, **kw):
+    from slopescreen import _stoppable
+
+    with pytest.MonkeyPatch.context() as m:
+        m.setattr(_stoppable, "new_flag", lambda: np.zeros(1, dtype=np.uint8))
+        return fn(*args, **kw)
+
+
+def test_a_set_flag_stops_the_flats_kernel(flag_up):
+    from slopescreen.routing import drainage_over_flats
+
+    z = np.zeros((ROWS, ROWS), dtype=np.float32)
+    z[ROWS // 2, 1] = -1.0                      # a pit by the west edge of a flat grid
+    full = _full(drainage_over_flats, z)
+    # every interior cell of the flat drains (Barnes et al. 2014); the edge cells are outlets
+    assert (full != 255).sum() >= (ROWS - 2) ** 2 - 10
+    assert (drainage_over_flats(z) != full).any()
+
+
+def test_a_set_flag_stops_the_receiver_and_accumulation_kernels(flag_up):
+    from slopescreen.routing import accumulation as A
+    from slopescreen.routing.directions import _receiver_codes
+    from slopescreen._neighbours import pad_nan
+
+    zp = pad_nan(tilted_plane(ROWS, ROWS, gradient=0.4))
+    codes = _receiver_codes(zp, 5.0, 5.0, 0, 1.1)[0]
+    assert (codes == 255).all()                 # every row skipped
+    # the accumulation alone, on the receivers of a run without the flag
+    codes, frac, _, offsets, nb = _full(_receiver_codes, zp, 5.0, 5.0, 0, 1.1)
+    flat = zp.reshape(-1)
+    indeg = np.zeros(flat.size, dtype=np.uint8)
+    acc = np.empty(flat.size, dtype=np.float64)
+    A._indegree_kernel(flat, codes, frac, offsets, A._FACET_CARD, A._FACET_DIAG, 25.0, indeg,
+                       acc)
+    A._accumulate_kernel(flat, codes, frac, indeg.copy(), offsets, nb, A._FACET_CARD,
+                         A._FACET_DIAG, 1.1, acc, np.ones(1, dtype=np.uint8))
+    full = _full(A._route_padded, zp, 5.0, 5.0, 0, 1.1)[0].reshape(-1)
+    done = acc == full
+    assert done.sum() < 0.5 * np.isfinite(full).sum()   # stopped after one poll interval
+
+
+def test_a_set_flag_stops_the_runout_kernel(flag_up):
+    from slopescreen._neighbours import pad_nan
+    from slopescreen.runout import patch_sources, runout_reach
+
+    z = tilted_plane(60, 20, gradient=0.7).astype(np.float64)
+    mask = np.zeros(z.shape, bool)
+    mask[5, 10] = True
+    sources = patch_sources(mask, z, np.ones(z.shape), np.full(z.shape, 0.8),
+                            np.full(z.shape, 180.0), dx=5.0, dy=5.0)
+    kw = dict(dx=5.0, dy=5.0, receivers=_full(_d8, z))
+    assert _full(runout_reach, pad_nan(z), sources, [20.0], **kw).travel_m[0] > 0
+    assert runout_reach(pad_nan(z), sources, [20.0], **kw).travel_m[0] == 0   # never started
+
+
+def _d8(z):
+    from slopescreen._neighbours import pad_nan
+    from slopescreen.runout.reach import d8_receivers
+
+    return d8_receivers(pad_nan(z), 5.0, 5.0)
+
+
+def test_results_are_bit_identical_on_the_worker_thread():
+    # the kernels run on a worker thread from the main thread, directly from any other
+    from slopescreen.routing import flow_accumulation
+    from slopescreen.terrain import fill_depressions
+
+    z = _pitted_noise(200)
+    on_main = fill_depressions(z), flow_accumulation(z, 5.0, 5.0).area_m2
+    box = {}
+    t = threading.Thread(target=lambda: box.update(r=(fill_depressions(z),
+                                                        flow_accumulation(z, 5.0, 5.0).area_m2)))
+    t.start()
+    t.join()
+    for a, b in zip(on_main, box["r"]):
+        assert np.array_equal(a, b, equal_nan=True)
+
+
+def test_ctrl_c_stops_priority_flood_midway():
+    # Ctrl-C while the fill kernel runs on a 3000 x 3000 grid of pits (about 2 s of work on
+    # two cores): KeyboardInterrupt comes while the kernel is mid-way (the surface is left
+    # partly filled) and no kernel thread is left running
+    from slopescreen.terrain import _fill_depressions_padded
+    from slopescreen._neighbours import pad_nan
+
+    z = _pitted_noise(3000)
+    zp = pad_nan(z)
+    old = signal.signal(signal.SIGINT, signal.default_int_handler)
+
+    def send_when_started():
+        deadline = time.monotonic() + 30.0
+        while time.monotonic() < deadline:
+            if any(t.name == "slopescreen-kernel" for t in threading.enumerate()):
+                time.sleep(0.05)
+                os.kill(os.getpid(), signal.SIGINT)
+                return
+            time.sleep(0.001)
+
+    sender = threading.Thread(target=send_when_started)
+    try:
+        sender.start()
+        with pytest.raises(KeyboardInterrupt):
+            _fill_depressions_padded(zp)
+            time.sleep(5.0)     # a kernel that does not stop: the signal lands here, and the
+            #                     surface below is filled whole
+    finally:
+        sender.join()
+        signal.signal(signal.SIGINT, old)
+    for t in threading.enumerate():   # its kernel has returned: the thread ends at once
+        if t.name == "slopescreen-kernel":
+            t.join(timeout=2.0)
+    assert not any(t.name == "slopescreen-kernel" for t in threading.enumerate())
+    full = _fill_depressions_padded(pad_nan(z))
+    assert (zp[1:-1, 1:-1] < full[1:-1, 1:-1]).any()     # stopped before the end

@@ -17,6 +17,7 @@ pipeline can pad a large DEM once and avoid further copies.
 import numpy as np
 
 from . import _validate
+from ._stoppable import POLL, call
 from ._neighbours import DCOL, DROW, linear_offsets, pad_nan, unpad
 from ._numba import njit, njit_parallel, prange
 from .errors import InputError
@@ -187,10 +188,8 @@ def _fill_depressions_padded(zp, *, epsilon=False, return_heap_count=False):
         idx = np.empty(capacity, dtype=index_dtype)
     pit = np.empty(_PIT_MIN_CAPACITY, dtype=index_dtype)
     up = zp.dtype.type(np.inf)
-    heap_count = _fill_kernel(
-        flat, ncols, linear_offsets(ncols), bool(epsilon), up,
-        packed, bits, heap, keys, idx, pit, DROW, DCOL,
-    )
+    heap_count = call(_fill_kernel, flat, ncols, linear_offsets(ncols), bool(epsilon), up,
+                      packed, bits, heap, keys, idx, pit, DROW, DCOL, stop=True)
     if return_heap_count:
         return zp, int(heap_count)
     return zp
@@ -337,13 +336,15 @@ def _queue_grow(queue, head, count):
 
 
 @njit
-def _fill_kernel(zp, ncols, offsets, epsilon, up, packed, bits, heap, keys, idx, pit, drow, dcol):
+def _fill_kernel(zp, ncols, offsets, epsilon, up, packed, bits, heap, keys, idx, pit, drow, dcol,
+                 stop):
     """Priority-Flood + pit queue on a flat, NaN-padded grid, in place.
 
     With ``packed`` the heap is ``heap`` (uint64 keys from ``bits``, the
     uint32 view of ``zp``); otherwise it is the pair ``keys``/``idx``. ``pit``
     is the pit queue's storage (power-of-two length). All grow by doubling.
-    Returns the number of cells taken from the heap.
+    Returns the number of cells taken from the heap, or -1 when ``stop[0]``
+    was set (a signal; ``zp`` is then partly filled and not to be used).
     """
     n = zp.shape[0]
     nrows = n // ncols
@@ -377,7 +378,11 @@ def _fill_kernel(zp, ncols, offsets, epsilon, up, packed, bits, heap, keys, idx,
     phead = 0
     pcount = 0
     heap_pops = 0
+    steps = 0
     while True:
+        steps += 1
+        if steps % POLL == 0 and stop[0] != 0:
+            return -1
         # Without epsilon every queued pit cell sits at the level of the heap
         # cell that spilled into it, which is <= the heap top: the pit queue
         # always goes first. With epsilon pit values climb one ulp per step,

@@ -32,6 +32,7 @@ import numpy as np
 from .. import _validate
 from .._neighbours import NO_DIRECTION, linear_offsets, pad_nan, unpad
 from .._numba import njit, njit_parallel, prange
+from .._stoppable import POLL, call
 from ..errors import InputError
 from ._geometry import _DONE, _FACET_CARD, _FACET_DIAG, _MULTI, _NB_INV, _SINGLE
 from .directions import _mfd_weight, _receiver_codes
@@ -166,8 +167,8 @@ def _route_padded(zp, dx, dy, method_code, exponent):
     indeg = np.zeros(flat.size, dtype=np.uint8)
     acc = np.empty(flat.size, dtype=np.float64)
     _indegree_kernel(flat, codes, frac, offsets, _FACET_CARD, _FACET_DIAG, dx * dy, indeg, acc)
-    _accumulate_kernel(flat, codes, frac, indeg, offsets, nb, _FACET_CARD, _FACET_DIAG,
-                       exponent, acc)
+    call(_accumulate_kernel, flat, codes, frac, indeg, offsets, nb, _FACET_CARD, _FACET_DIAG,
+         exponent, acc, stop=True)
     return acc.reshape(zp.shape), width.reshape(zp.shape), codes.reshape(zp.shape)
 
 
@@ -203,14 +204,16 @@ def _indegree_kernel(zp, codes, frac, offsets, fcard, fdiag, area, indeg, acc):
 
 
 @njit
-def _accumulate_kernel(zp, codes, frac, indeg, offsets, nb, fcard, fdiag, exponent, acc):
+def _accumulate_kernel(zp, codes, frac, indeg, offsets, nb, fcard, fdiag, exponent, acc, stop):
     """Kahn's topological accumulation of ``acc`` (in place).
 
     A raster scan finds the sources (in-degree 0); each is processed from a
     ready stack, and every receiver whose donor count reaches zero is pushed
-    on it. A processed or stacked cell is marked 255 in ``indeg``.
+    on it. A processed or stacked cell is marked 255 in ``indeg``. Returns
+    early, ``acc`` unfinished, once ``stop[0]`` is set (a signal).
     """
     stack = np.empty(1024, dtype=np.int64)
+    done = 0
     link_k = np.empty(8, dtype=np.int64)
     link_w = np.empty(8, dtype=np.float64)
     for s in range(zp.size):
@@ -220,6 +223,9 @@ def _accumulate_kernel(zp, codes, frac, indeg, offsets, nb, fcard, fdiag, expone
         stack[0] = s
         top = 1
         while top > 0:
+            done += 1
+            if done % POLL == 0 and stop[0] != 0:
+                return
             top -= 1
             p = stack[top]
             cd = codes[p]

@@ -19,6 +19,7 @@ import numpy as np
 
 from .._neighbours import NO_DIRECTION, linear_offsets
 from .._numba import njit, njit_parallel, prange
+from .._stoppable import call
 from ._geometry import (
     _F_COS,
     _F_D1,
@@ -56,8 +57,8 @@ def _receiver_codes(zp, dx, dy, method_code, exponent):
     width = np.full(flat.size, np.nan, dtype=np.float32)
     lo = min(dx, dy) * math.cos(math.pi / 4.0)
     hi = math.hypot(dx, dy)
-    _directions_kernel(flat, nrows, ncols, method_code, exponent, offsets, nb, facet,
-                       _FACET_CARD, _FACET_DIAG, dx * dy, lo, hi, codes, frac, width)
+    call(_directions_kernel, flat, nrows, ncols, method_code, exponent, offsets, nb, facet,
+         _FACET_CARD, _FACET_DIAG, dx * dy, lo, hi, codes, frac, width, stop=True)
     flat_dirs, _ = _flat_directions_padded(zp)
     _no_descent_kernel(flat, nrows, ncols, offsets, nb, flat_dirs.reshape(-1), dx * dy,
                        min(dx, dy), codes, width)
@@ -98,14 +99,17 @@ def _clamped_width(area, advance, lo, hi):
 
 @njit_parallel
 def _directions_kernel(zp, nrows, ncols, method, exponent, offsets, nb, facet, fcard, fdiag,
-                       area, lo, hi, codes, frac, width):
+                       area, lo, hi, codes, frac, width, stop):
     """Receivers (codes, D-infinity fraction) and effective width of each sloping cell.
 
     Cells with no strictly lower valid neighbour are left at code 255 and
     width NaN for :func:`_no_descent_kernel`. The eight drops z0 - zk are
-    read once per cell (NaN for nodata neighbours).
+    read once per cell (NaN for nodata neighbours). Rows left once ``stop[0]``
+    is set (a signal) are skipped.
     """
     for r in prange(1, nrows - 1):
+        if stop[0] != 0:
+            continue
         for c in range(1, ncols - 1):
             p = r * ncols + c
             z0 = np.float64(zp[p])

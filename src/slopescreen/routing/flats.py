@@ -24,6 +24,7 @@ import numpy as np
 from .. import _validate
 from .._neighbours import NO_DIRECTION, linear_offsets, neighbour_distances, pad_nan, unpad
 from .._numba import njit, njit_parallel, prange
+from .._stoppable import POLL, call
 
 __all__ = ["drainage_over_flats"]
 
@@ -152,7 +153,7 @@ def _flat_directions_padded(zp):
     mask_type = np.int32 if 3 * flat.size < 2**31 else np.int64
     queue = np.empty(n_flat, dtype=index_type)
     mask = np.zeros(flat.size, dtype=mask_type)
-    drained = _flat_gradients_kernel(flat, cls, offsets, queue, mask, flat_dirs)
+    drained = call(_flat_gradients_kernel, flat, cls, offsets, queue, mask, flat_dirs, stop=True)
     del queue
     # Distances only break ties, so unit cells are enough and keep the
     # choice independent of the cell size.
@@ -221,14 +222,14 @@ def _low_edge_kernel(zp, cls, nrows, ncols, offsets, dirs):
 
 
 @njit
-def _flat_gradients_kernel(zp, cls, offsets, queue, mask, dirs):
+def _flat_gradients_kernel(zp, cls, offsets, queue, mask, dirs, stop):
     """Two breadth-first searches over the flats, combined into ``mask``.
 
     ``mask`` starts at zero. The away-from-higher search stores ``-h`` (h >= 1)
     on the cells it reaches; the toward-lower search then overwrites each
     cell it reaches with the combined value ``2 t + H + 1 - h`` (> 0), so a
     positive mask marks a drained flat cell. Returns the number of drained
-    flat cells.
+    flat cells, or -1 once ``stop[0]`` is set (a signal; ``mask`` unfinished).
     """
     # -- gradient away from higher terrain: BFS from the high edge --------
     tail = 0
@@ -244,6 +245,8 @@ def _flat_gradients_kernel(zp, cls, offsets, queue, mask, dirs):
         height = level
         level_end = tail
         while head < level_end:
+            if head % POLL == 0 and stop[0] != 0:
+                return -1
             p = queue[head]
             head += 1
             z0 = zp[p]
@@ -268,6 +271,8 @@ def _flat_gradients_kernel(zp, cls, offsets, queue, mask, dirs):
     while head < tail:
         level_end = tail
         while head < level_end:
+            if head % POLL == 0 and stop[0] != 0:
+                return -1
             p = queue[head]
             head += 1
             z0 = zp[p]

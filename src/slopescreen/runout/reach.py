@@ -31,6 +31,7 @@ import numpy as np
 
 from .._neighbours import DCOL, DROW, linear_offsets, neighbour_distances
 from .._numba import njit
+from .._stoppable import call
 from .sources import Sources
 
 STOP_REASONS = {0: "travel angle fell below the angle of reach", 1: "met a corridor strip",
@@ -178,14 +179,14 @@ def runout_reach(zp, sources: Sources, angle_deg, *, dx, dy, strips: Strips | No
     l0 = np.hypot((crown_r - toe_r) * dy, (crown_c - toe_c) * dx).astype(np.float64)
     strip_p = padded(strips.cell)
     sort = np.argsort(strip_p, kind="stable")
-    out = _reach_kernel(
-        zp.reshape(-1), receivers.reshape(-1), linear_offsets(cols + 2),
+    out = call(
+        _reach_kernel, zp.reshape(-1), receivers.reshape(-1), linear_offsets(cols + 2),
         neighbour_distances(dx, dy), DROW.astype(np.float64), DCOL.astype(np.float64), rows + 2, cols + 2, float(dx), float(dy),
         padded(order), ptr, padded(sources.toe), sources.z_crown.astype(np.float64), l0,
         np.tan(np.radians(angle)), sources.width_m.astype(np.float64) / 2.0,
         sources.volume_m3.astype(np.float64), strip_p[sort],
         strips.segment.astype(np.int32)[sort], int(strips.n_segments),
-        bool(continue_past_corridor))
+        bool(continue_past_corridor), stop=True)
     count, vmax, travel, drop, tip, stop, path_ptr, path_cells, ps, pg = out
 
     def unpad_index(p):
@@ -246,7 +247,8 @@ def _mark_reached(strip_cell, strip_seg, cell, k, seg_last, ps, pg, npair):
 
 @njit
 def _reach_kernel(z, recv, offsets, dist, drow, dcol, nrp, ncp, dx, dy, members, ptr, toe, z_crown, l0,
-                  tan_a, radius, volume, strip_cell, strip_seg, n_seg, keep_going):
+                  tan_a, radius, volume, strip_cell, strip_seg, n_seg, keep_going, halt):
+    # halt[0] set (a signal): the sources left are skipped; the result is not to be used
     n = toe.size
     count = np.zeros(z.size, dtype=np.int32)
     vmax = np.zeros(z.size, dtype=np.float32)
@@ -266,6 +268,8 @@ def _reach_kernel(z, recv, offsets, dist, drow, dcol, nrp, ncp, dx, dy, members,
     pg = np.empty(64, dtype=np.int64)
     npair = 0
     for k in range(n):
+        if halt[0] != 0:
+            break
         v = np.float32(volume[k])
         for m in range(ptr[k], ptr[k + 1]):           # the source's own cells
             c = members[m]
