@@ -43,9 +43,16 @@ from bench_run import make_dem, write_inputs  # noqa: E402
 STAGES = ("conditioning", "routing", "runout: autumn wet spell")
 
 
+def _default_sigint():
+    """In the child: Ctrl-C acts (a job started in the background by a shell ignores SIGINT,
+    and a child would inherit that)."""
+    signal.signal(signal.SIGINT, signal.SIG_DFL)
+
+
 def start(cli, scenario):
     proc = subprocess.Popen([str(cli), "-v", "run", str(scenario)], stdout=subprocess.DEVNULL,
-                            stderr=subprocess.PIPE, text=True, cwd=scenario.parent)
+                            stderr=subprocess.PIPE, text=True, cwd=scenario.parent,
+                            preexec_fn=_default_sigint)
     lines = queue.Queue()
 
     def read():

@@ -128,8 +128,8 @@ def test_demo_writes_a_report_a_new_user_can_read(demo):
     assert "Failing clusters per rain case" in text
     maps = [p for p in result.manifest["products"] if p["key"] == "map"]
     assert len(maps) == 13                                     # slope, SCA, q_cr, 5 per rain case
-    # and the corridor chart and the agreement chart
-    assert text.count("data:image/png;base64,") == len(maps) + 2
+    # and the corridor chart, the agreement chart
+    assert text.count("data:image/png;base64,") == len(maps) + 3   # and the overview map
     assert "mapped landslides (" in text and "Agreement with mapped landslides" in text
     assert "Hazard along the corridor" in text and "Along the corridor under “wet season”" in text
     assert "colluvium, clear-cut" in text

@@ -112,7 +112,8 @@ def test_fs_band_colours_separate_in_lightness():
     assert np.all(np.diff(L) >= 15.0), L
 
 
-@pytest.mark.parametrize("key", sorted(k for k, s in maps.STYLES.items() if s.kind != "bands"))
+@pytest.mark.parametrize("key", sorted(k for k, s in maps.STYLES.items()
+                                        if s.kind not in ("bands", "bound")))
 def test_ramps_are_monotonic_in_lightness(key):
     style = maps.STYLES[key]
     cmap = style.cmap()
@@ -232,10 +233,12 @@ def test_recharge_map_marks_classes_and_rain_rates():
     q[:5], cls[:5] = np.nan, 1
     q[-5:], cls[-5:] = np.nan, 3
     fig = maps.map_figure(q, "critical_recharge", frame=maps.MapFrame.from_grid(grid), classes=cls,
-                          marks=[(12.0, "wet season: 12 mm/day")], rain_text="none")
-    texts = [t.get_text() for ax in fig.axes for t in ax.texts]
-    assert any("wet season" in t for t in texts)
+                          rates=[("wet season", 12.0), ("dry spell", 3.0)], rain_text="none")
     legend_texts = [t.get_text() for ax in fig.axes if ax.get_legend() for t in ax.get_legend().get_texts()]
+    # the classes are the scenario's steady cases, wettest last (no fixed decade bins)
+    assert "fails under dry spell (up to 3)" in legend_texts
+    assert "fails under wet season (3-12), not dry spell" in legend_texts
+    assert any(t.startswith("more than twice the wettest case") for t in legend_texts)
     assert any("fails even when dry" in t for t in legend_texts)
     assert any("stable even when saturated" in t for t in legend_texts)
     _png(fig)

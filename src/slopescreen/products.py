@@ -117,13 +117,13 @@ PRODUCTS = (
     ProductSpec("specific_catchment_area", "raster", "m", "Specific catchment area",
                 "Specific catchment area a = A/b, m ({method})", "terrain",
                 dtype="float32", style=SCA_STYLE, no_rain_text=_TERRAIN),
-    ProductSpec("critical_recharge", "raster", "mm/day", "Critical steady recharge",
+    ProductSpec("critical_recharge", "raster", "mm/day", "Steady rain needed to fail",
                 "Critical steady recharge for FS = 1 (Montgomery-Dietrich), mm/day; nodata "
                 "where the class band says no rate applies", "critical recharge",
                 dtype="float32", style=RECHARGE_STYLE,
-                no_rain_text="none (the recharge each cell can take; steady cases are marked on "
-                             "the scale)"),
-    ProductSpec("critical_recharge_class", "raster", "class", "Critical-recharge class",
+                no_rain_text="none (the steady rain each cell can take; the classes are the "
+                             "scenario's steady rain cases)"),
+    ProductSpec("critical_recharge_class", "raster", "class", "Steady rain needed to fail: class",
                 "Stability class of the critical-recharge balance", "critical recharge",
                 dtype="uint8",
                 tags=MappingProxyType({f"CLASS_{k}": v for k, v in CLASS_LABELS.items()})),
@@ -175,6 +175,11 @@ PRODUCTS = (
                 "ROC, AUC with its interval, success-rate curve and threshold scores of each "
                 "hazard product against the mapped landslides, per rain case and soil unit",
                 "inventory", section="inventory", file="inventory_scores.json"),
+    ProductSpec("summary", "json", "attributes carry their units in their names",
+                "Summary per rain case",
+                "One row per rain case: area and share by factor-of-safety class and P_f "
+                "threshold, failing clusters, worst corridor stretches (JSON and a CSV table)",
+                "summary", file="summary.json", extra_kinds=("csv",)),
     ProductSpec("map", "png", "units of the product shown", "Map",
                 "A map of one product over a hillshade", "maps"),
     ProductSpec("report", "html", "n/a", "Report",

@@ -35,7 +35,7 @@ from .records import manifest as manifest_of
 from .records import run_record
 from .corridor_stage import corridor_layers_stage, corridor_stage
 from .inventory_stage import inventory_case_stage, inventory_recharge_stage, inventory_scores_stage
-from .report_stage import maps_stage, report_stage
+from .report_stage import maps_stage, report_stage, summary_stage
 from .runout_stage import effective_runout, runout_layers_stage, runout_stage
 from .stability_stage import (
     effective_uncertainty, probability_stage, recharge_stage, soil_cells_stage, soil_fields_stage,
@@ -171,7 +171,14 @@ def plan(scenario: Scenario) -> tuple[Stage, ...]:
                                  inventory_scores_stage, {"cases": Many(tuple(scores))},
                                  section="inventory", show=False))
             report_needs["inventory"] = ("inventory scores",)
+    if scenario.soil is not None:
+        stages.append(_stage("summary", ("summary",), summary_stage,
+                             {k: v for k, v in report_needs.items()
+                              if k in ("manifest", "cases", "clusters", "corridor")},
+                             show=False))
     map_needs = {"written": WRITTEN}
+    if scenario.clusters is not None and scenario.rain:
+        map_needs["clusters"] = Many(tuple(("clusters", c.name) for c in scenario.rain))
     if "runout" in report_needs:
         map_needs["runout"] = report_needs["runout"]
     stages += [_stage("maps", ("maps",), maps_stage, map_needs),

@@ -99,6 +99,8 @@ def manifest(scenario: Scenario, grid: Grid, products, timings, started, inputs=
         "uncertainty": _uncertainty_record(scenario),
         "runout_settings": _runout_record(scenario),
         "corridor": _corridor_record(scenario),
+        "clusters_settings": None if scenario.clusters is None else dict(vars(scenario.clusters)),
+        "project": None if scenario.project is None else scenario.project.record(),
         "stage_seconds": timings,
     }
 

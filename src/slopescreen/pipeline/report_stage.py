@@ -9,7 +9,7 @@ from __future__ import annotations
 
 from types import MappingProxyType
 
-from .results import MapsResult, ReportResult, Written
+from .results import MapsResult, ReportResult, SummaryResult, Written
 
 
 def _preview_reader(written: Written):
@@ -61,7 +61,47 @@ def path_lines_by_rain(runout) -> dict:
     return out
 
 
-def maps_stage(scenario, inputs, written: Written, runout=None) -> MapsResult:
+def _overview(scenario, inputs, written: Written, cases, clusters) -> dict | None:
+    """The first screen's map of the worst rain case, with its worst places numbered."""
+    from ..report import overview
+    from ..report.map_parts import MapFrame, hillshade
+    from ..report.maps import display_step
+
+    case = overview.worst_case({c.name: c.facts for c in cases})
+    fs = None if case is None else written.previews.get(("factor_of_safety", case))
+    if fs is None:
+        return None
+    grid = inputs.grid
+    step = display_step(grid.shape)
+    frame = MapFrame.from_grid(grid)
+    if clusters is not None and any(r["rain"] == case for r in clusters.records):
+        places, kind = overview.cluster_places(clusters.records, case), "cluster"
+    else:
+        places = overview.patch_places(fs, extent=frame.extent,
+                                       cell_area_m2=grid.cell_area_m2, step=step)
+        kind = "patch"
+    zs = inputs.z[::step, ::step]
+    png = overview.overview_png(fs, frame=frame, shade=hillshade(zs, grid.dx_m * step,
+                                                                 grid.dy_m * step),
+                                places=places, lines=map_lines(inputs),
+                                title=f"Factor of safety under “{case}”, worst places numbered")
+    return {"png": png, "case": case, "places": places, "kind": kind}
+
+
+def summary_stage(scenario, inputs, manifest: dict, cases=(), clusters=None,
+                  corridor=None) -> SummaryResult:
+    """``summary.json`` and ``summary.csv`` from the figures the report quotes."""
+    from ..report.cautions import SHORT
+    from ..report.memo import summary_csv, summary_json, summary_rows
+
+    rows = summary_rows(manifest.get("rain") or [], {c.name: c for c in cases},
+                        clusters=None if clusters is None else clusters.records,
+                        corridor=None if corridor is None else corridor.records)
+    return SummaryResult(json=summary_json(rows, project=manifest.get("project"), caution=SHORT),
+                         csv=summary_csv(rows, caution=SHORT))
+
+
+def maps_stage(scenario, inputs, written: Written, runout=None, clusters=()) -> MapsResult:
     """One map per product whose registry entry has a style, with the centreline and the
     mapped landslides on every map and the reaching runout paths on the runout maps."""
     from ..report import html, maps
@@ -70,12 +110,13 @@ def maps_stage(scenario, inputs, written: Written, runout=None) -> MapsResult:
     rain_records = [{k: v for k, v in vars(r).items() if v is not None} for r in scenario.rain]
     rain_texts = {r["name"]: html.rain_text(r) for r in rain_records}
     cases = {r.name: r for r in scenario.rain}
-    marks = [(r.steady_mm_per_day, f"{r.name}: {r.steady_mm_per_day:g} mm/day")
-             for r in scenario.rain if not r.is_storm]
+    rates = [(r.name, r.steady_mm_per_day) for r in scenario.rain if not r.is_storm]
+    extents = {c.bound_extent_cells for c in clusters}
     out = []
     for shown, png in maps.product_maps(written.entries(), _preview_reader(written),
                                         z=inputs.z, grid=inputs.grid, title=scenario.title,
-                                        rain_texts=rain_texts, marks=marks,
+                                        rain_texts=rain_texts, rates=rates,
+                                        extent_cells=extents.pop() if len(extents) == 1 else None,
                                         lines=map_lines(inputs),
                                         extra_lines=path_lines_by_rain(runout)):
         rain = shown.get("rain")
@@ -103,7 +144,7 @@ def report_stage(scenario, inputs, written: Written, manifest: dict, maps: MapsR
                             terrain=MappingProxyType(terrain.value))
     ctx = html.ReportContext(
         manifest=manifest, read=None, cell_area_m2=inputs.grid.cell_area_m2, maps=images,
-        figures=figures,
+        figures=figures, overview=_overview(scenario, inputs, written, cases, clusters),
         tables={"clusters": [] if clusters is None else list(clusters.records),
                 "size_resolved": [] if clusters is None else list(clusters.size_records),
                 "runout_paths": [] if runout is None else list(runout.records),

@@ -338,6 +338,17 @@ class ReportResult:
 
 
 @dataclass(frozen=True)
+class SummaryResult:
+    """``summary.json`` and ``summary.csv``: the run in one row per rain case."""
+
+    json: bytes
+    csv: bytes
+
+    def products(self):
+        return (Emit("summary", self.json), Emit("summary", self.csv, kind="csv"))
+
+
+@dataclass(frozen=True)
 class FiguresResult:
     """Numbers the report quotes, computed while the arrays are in memory (no product)."""
 

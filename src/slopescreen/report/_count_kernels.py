@@ -39,7 +39,7 @@ def _case_counts_kernel(fs, pf, wet, aspect, unit, unit_counts, sector_counts, o
 
     ``pf``, ``wet``, ``aspect`` and ``unit`` are empty when not given. ``out``
     receives [cells with FS, cells with FS < 1, cells with P_f, cells with
-    P_f > 0.5, failing cells with wetness >= 0.999]. ``unit_counts`` and
+    P_f >= 0.5, failing cells with wetness >= 0.999, cells with P_f >= 0.1]. ``unit_counts`` and
     ``sector_counts`` count the failing cells per unit row (rows outside the
     table are not counted) and per 45-degree sector of finite aspect.
     """
@@ -53,8 +53,10 @@ def _case_counts_kernel(fs, pf, wet, aspect, unit, unit_counts, sector_counts, o
             p = np.float64(pf[i])
             if not math.isnan(p):
                 out[2] += 1
-                if p > 0.5:
+                if p >= 0.5:
                     out[3] += 1
+                if p >= 0.1:
+                    out[5] += 1
         f = np.float64(fs[i])
         if math.isnan(f):
             continue
@@ -174,10 +176,10 @@ def case_counts(fs, *, pf=None, wetness=None, aspect_deg=None, unit_index=None, 
     >>> out, units, sectors = case_counts(np.array([0.8, 2.0, 0.9, 1.1]),
     ...                                   aspect_deg=np.array([10.0, 0.0, 200.0, 0.0]))
     >>> out.tolist(), sectors.tolist()
-    ([4, 2, 0, 0, 0], [1, 0, 0, 0, 1, 0, 0, 0])
+    ([4, 2, 0, 0, 0, 0], [1, 0, 0, 0, 1, 0, 0, 0])
     """
     f = _flat(fs)
-    out = np.zeros(5, dtype=np.int64)
+    out = np.zeros(6, dtype=np.int64)
     unit_counts = np.zeros(max(int(n_units), 0), dtype=np.int64)
     sector_counts = np.zeros(8, dtype=np.int64)
     _case_counts_kernel(f, _flat_or_empty(pf, f.size), _flat_or_empty(wetness, f.size),

@@ -27,8 +27,9 @@ class Block:
 
     ``kind`` is ``"p"`` (``text``, optional bold ``lead``), ``"list"``
     (``items``), ``"table"`` (``caption``, ``header``, ``rows``, ``numeric``:
-    which columns are numbers), ``"figure"`` (``src``, ``alt``, ``caption``)
-    or ``"note"`` (a highlighted paragraph).
+    which columns are numbers), ``"figure"`` (``src``, ``alt``, ``caption``),
+    ``"note"`` (a highlighted paragraph) or ``"details"`` (``caption`` shown,
+    ``items`` the blocks folded away until the reader opens them; not printed).
     """
 
     kind: str
@@ -41,6 +42,10 @@ class Block:
     numeric: list = field(default_factory=list)
     src: str = ""
     alt: str = ""
+    css: str = ""
+    """A figure's class in the page (``"overview"``; default a map or chart)."""
+    print_rows: int | None = None
+    """A table's rows printed (the rest show on screen only); None prints all."""
 
 
 def para(text, lead=""):
@@ -58,16 +63,22 @@ def bullets(items):
     return Block("list", items=list(items))
 
 
-def table(caption, header, rows, numeric=None):
-    """A table block; ``numeric`` flags right-aligned columns."""
+def table(caption, header, rows, numeric=None, *, print_rows=None):
+    """A table block; ``numeric`` flags right-aligned columns; only the first ``print_rows``
+    rows are printed (all show on screen)."""
     numeric = list(numeric) if numeric is not None else [False] * len(header)
     return Block("table", caption=caption, header=list(header), rows=[list(r) for r in rows],
-                 numeric=numeric)
+                 numeric=numeric, print_rows=print_rows)
 
 
-def figure(png: bytes, alt, caption):
-    """A figure block with the image embedded as a data URI."""
-    return Block("figure", src=data_uri(png), alt=alt, caption=caption)
+def details(summary, blocks):
+    """Blocks folded under a one-line ``summary`` (for the technical detail of a section)."""
+    return Block("details", caption=summary, items=list(blocks))
+
+
+def figure(png: bytes, alt, caption, *, css=""):
+    """A figure block with the image embedded as a data URI (``css``: its class)."""
+    return Block("figure", src=data_uri(png), alt=alt, caption=caption, css=css)
 
 
 @dataclass
@@ -78,6 +89,8 @@ class Section:
     title: str
     blocks: list = field(default_factory=list)
     level: int = 2
+    page_break: bool = False
+    """Printed from a new page."""
 
 
 def data_uri(png: bytes) -> str:
@@ -130,6 +143,9 @@ class ReportContext:
     maps: list = field(default_factory=list)
     tables: dict = field(default_factory=dict)
     """Attribute tables of vector products, e.g. ``{"clusters": [row dict, ...]}``."""
+    overview: object = None
+    """The first screen's map: ``{"png": bytes, "case": str, "places": [dict, ...],
+    "kind": "cluster" or "patch"}`` (:mod:`slopescreen.report.overview`), or None."""
     figures: object = None
     """The numbers the report quotes (:class:`~slopescreen.report.figures.ReportFigures`), as a
     run computes them; None computes them from the products through ``read``."""

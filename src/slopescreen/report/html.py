@@ -102,12 +102,56 @@ def render_report(ctx: ReportContext) -> str:
         if part is not None:
             body.append(part)
     body.extend(_stage_sections(ctx))
-    body.extend([_inputs_section(ctx), _methods_section(ctx), _products_section(ctx),
-                 _provenance_section(ctx)])
-    toc = [(s.id, s.title, s.level) for s in [glance] + body]
+    body.extend([_inputs_section(ctx), _methods_section(ctx, figures.terrain)])
+    appendix = [_products_section(ctx), _provenance_section(ctx)]
+    for letter, part in zip("AB", appendix):
+        part.title = f"Appendix {letter}: {part.title}"
+    body.extend(appendix)
     m = ctx.manifest
     template = _environment().get_template("report.html.j2")
     created = str(m.get("created", "")).replace("T", " ").replace("+00:00", " UTC")
     return template.render(title=m.get("title") or "slopescreen run", manifest=m, short=SHORT,
-                           cautions=tuple(m.get("cautions") or CAUTIONS), glance=glance, sections=body, toc=toc,
-                           created=created, version=m.get("version", ""))
+                           cautions=tuple(m.get("cautions") or CAUTIONS), glance=glance,
+                           sections=body, toc=contents([glance] + body),
+                           project=project_rows(m), created=created, version=m.get("version", ""))
+
+
+def contents(sections) -> list:
+    """The contents list: ``(id, title, [(id, title), ...])`` per level-2 section, its
+    level-3 sections nested under it (so that only the level-2 entries take numbers).
+
+    Examples
+    --------
+    >>> toc = contents([Section("a", "A"), Section("b", "B", level=3), Section("c", "C")])
+    >>> [(i, t, [x for x, _ in sub]) for i, t, sub in toc]
+    [('a', 'A', ['b']), ('c', 'C', [])]
+    """
+    out = []
+    for s in sections:
+        if s.level > 2 and out:
+            out[-1][2].append((s.id, s.title))
+        else:
+            out.append((s.id, s.title, []))
+    return out
+
+
+PROJECT_FIELDS = (("name", "Project"), ("number", "Project number"),
+                  ("prepared_by", "Prepared by"), ("checked_by", "Checked by"),
+                  ("data_date", "Date of the data"), ("notes", "Notes"))
+"""The ``[project]`` keys in the report's memo block, in order, with their labels."""
+
+
+def project_rows(manifest) -> list:
+    """(label, value) rows of the memo block: the ``[project]`` keys given, then the run.
+
+    Examples
+    --------
+    >>> project_rows({"project": {"name": "Ridge road"}, "created": "2026-01-02T03:04:05+00:00"})
+    [('Project', 'Ridge road'), ('Run started', '2026-01-02 03:04:05 UTC')]
+    """
+    given = manifest.get("project") or {}
+    rows = [(label, str(given[key])) for key, label in PROJECT_FIELDS if given.get(key)]
+    if manifest.get("created"):
+        rows.append(("Run started",
+                     str(manifest["created"]).replace("T", " ").replace("+00:00", " UTC")))
+    return rows

@@ -1,8 +1,10 @@
 """Drawing one product layer on map axes, with cluster outlines and legend entries.
 
 The layer is drawn from its :class:`~slopescreen.report.styles.Style`: FS
-bands as classes, other products as ramps; cells with a DEM value but no
-product value are laid over in grey.
+classes, the rain needed to fail in classes whose breaks are the scenario's
+steady rain cases, the cluster FS bound as "a failing cluster possible here"
+or not, other products as ramps; cells with a DEM value but no product value
+are laid over in grey.
 """
 
 from __future__ import annotations
@@ -12,7 +14,7 @@ from matplotlib.colors import BoundaryNorm, ListedColormap
 from matplotlib.figure import Figure
 from matplotlib.patches import Patch
 
-from .styles import FS_BANDS, NO_VALUE_COLOUR, Style, fs_band
+from .styles import FS_BANDS, NO_VALUE_COLOUR, Style, bound_labels, fs_band, recharge_breaks
 
 def _rgba(colour, alpha):
     from matplotlib.colors import to_rgba
@@ -21,7 +23,14 @@ def _rgba(colour, alpha):
     return (r, g, b, alpha)
 
 
-def draw_product(values, style: Style, *, extent, ax=None, classes=None, no_value=None):
+def recharge_colours(style: Style, n: int) -> list:
+    """``n`` class colours of the rain needed to fail, dark (little rain) to light."""
+    cmap = style.cmap()          # reversed: dark at the low end
+    return [cmap((i + 0.5) / n)[:3] for i in range(n)]
+
+
+def draw_product(values, style: Style, *, extent, ax=None, classes=None, no_value=None,
+                 rates=()):
     """Draw one product layer (no hillshade, no frame) on map axes.
 
     Parameters
@@ -35,9 +44,12 @@ def draw_product(values, style: Style, *, extent, ax=None, classes=None, no_valu
         Axes to draw on; a new figure's axes by default.
     classes : array_like of int, optional
         Critical-recharge class codes (``"recharge"`` style): 1 is drawn as
-        hatched dark red (fails even when dry), 3 is left uncoloured.
+        hatched crimson (fails even when dry), 3 is left uncoloured.
     no_value : array_like of bool, optional
         Cells with a DEM value but no product value; drawn in grey.
+    rates : sequence of (str, float)
+        Steady rain cases (name, mm/day): the class breaks of the
+        ``"recharge"`` style (:func:`~slopescreen.report.styles.recharge_breaks`).
 
     Returns
     -------
@@ -54,13 +66,18 @@ def draw_product(values, style: Style, *, extent, ax=None, classes=None, no_valu
         data = np.ma.masked_less(band, 0)
         ax.imshow(data, cmap=cmap, norm=BoundaryNorm(np.arange(-0.5, len(FS_BANDS)), len(FS_BANDS)),
                   **common)
-    else:
-        cmap = style.cmap().with_extremes(bad=(0, 0, 0, 0), under=(0, 0, 0, 0))
-        masked = np.ma.masked_invalid(v)
-        if style.transparent_below is not None:
-            masked = np.ma.masked_less(masked, style.transparent_below)
-        ax.imshow(masked, cmap=cmap, norm=style.norm(), alpha=style.alpha, **common)
-        if style.kind == "recharge" and classes is not None:
+    elif style.kind == "bound":
+        possible = np.ma.masked_where(~(v < 1.0), np.ones(v.shape, np.float32))
+        ax.imshow(possible, cmap=ListedColormap([_rgba(style.colours[0], style.alpha)]), **common)
+    elif style.kind == "recharge":
+        breaks, _labels = recharge_breaks(rates, v)
+        colours = [_rgba(c, style.alpha) for c in recharge_colours(style, len(breaks))]
+        edges = np.array((-np.inf,) + tuple(breaks[:-1]) + (np.inf,))
+        cls = np.searchsorted(edges[1:-1], v, side="left").astype(np.int16)  # q <= break
+        data = np.ma.masked_where(~np.isfinite(v), cls)
+        ax.imshow(data, cmap=ListedColormap(colours),
+                  norm=BoundaryNorm(np.arange(-0.5, len(breaks)), len(breaks)), **common)
+        if classes is not None:
             cls = np.asarray(classes)
             dry = np.ma.masked_not_equal(cls, 1).astype(np.float32)
             ax.imshow(dry, cmap=ListedColormap([_rgba(FS_BANDS[0][2], 0.9)]), **common)
@@ -71,6 +88,12 @@ def draw_product(values, style: Style, *, extent, ax=None, classes=None, no_valu
             if (cls == 1).any():
                 ax.contourf(xs, ys, (cls == 1).astype(np.float32), levels=[0.5, 1.5], colors="none",
                             hatches=["xxxx"], zorder=3)
+    else:
+        cmap = style.cmap().with_extremes(bad=(0, 0, 0, 0), under=(0, 0, 0, 0))
+        masked = np.ma.masked_invalid(v)
+        if style.transparent_below is not None:
+            masked = np.ma.masked_less(masked, style.transparent_below)
+        ax.imshow(masked, cmap=cmap, norm=style.norm(), alpha=style.alpha, **common)
     if no_value is not None and np.any(no_value):
         grey = np.ma.masked_where(~np.asarray(no_value, dtype=bool), np.ones(v.shape, np.float32))
         ax.imshow(grey, cmap=ListedColormap([_rgba(NO_VALUE_COLOUR, 0.75)]), **common)
@@ -103,7 +126,8 @@ def _outline_segments(labels, extent):
     return np.concatenate(segs, axis=0)
 
 
-def _legend_handles(style: Style, outlines, lines, no_value):
+def _legend_handles(style: Style, outlines, lines, no_value, *, rates=(), values=None,
+                    extent_cells=None):
     handles = []
     if style.kind == "bands":
         for _, label, colour in FS_BANDS:
@@ -111,7 +135,15 @@ def _legend_handles(style: Style, outlines, lines, no_value):
                 handles.append(Patch(facecolor="white", edgecolor="#555555", label=label))
             else:
                 handles.append(Patch(facecolor=colour, edgecolor="none", label=label))
+    elif style.kind == "bound":
+        possible, ruled_out = bound_labels(extent_cells)
+        handles.append(Patch(facecolor=_rgba(style.colours[0], style.alpha), edgecolor="none",
+                             label=possible))
+        handles.append(Patch(facecolor="white", edgecolor="#555555", label=ruled_out))
     elif style.kind == "recharge":
+        breaks, labels = recharge_breaks(rates, values)
+        for colour, label in zip(recharge_colours(style, len(breaks)), labels):
+            handles.append(Patch(facecolor=colour, edgecolor="none", label=label))
         handles.append(Patch(facecolor=FS_BANDS[0][2], hatch="xxxx", edgecolor="black",
                              label="fails even when dry"))
         handles.append(Patch(facecolor="white", edgecolor="#555555",

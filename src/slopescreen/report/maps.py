@@ -62,8 +62,8 @@ def _layout(extent, map_width_in=6.2, max_height_in=7.0):
 
 
 def map_figure(values, key, *, frame: MapFrame, shade=None, title="", subtitle="", rain_text="",
-               classes=None, no_value=None, outlines=None, lines=None, marks=None,
-               caution=SHORT, dpi=100):
+               classes=None, no_value=None, outlines=None, lines=None, rates=(),
+               extent_cells=None, caution=SHORT, dpi=100):
     """A complete map of one product: hillshade, layer, legend, scale, north, CRS, caution.
 
     Parameters
@@ -90,9 +90,11 @@ def map_figure(values, key, *, frame: MapFrame, shade=None, title="", subtitle="
         Lines drawn on top (a corridor, outlines of mapped landslides, runout
         paths): ``{"x": array, "y": array, "label": str}`` in CRS units, with
         optional ``"colour"`` and ``"width"`` (points); one legend entry per label.
-    marks : list of (float, str), optional
-        Values marked on the colour bar with a label (steady rain rates on
-        the critical-recharge scale).
+    rates : sequence of (str, float)
+        The scenario's steady rain cases (name, mm/day): the class breaks of
+        the rain needed to fail (:func:`~slopescreen.report.styles.recharge_breaks`).
+    extent_cells : int, optional
+        Window of the cluster FS bound, cells on a side (its legend states it).
     caution : str
         One-line caution for the footer.
     dpi : float
@@ -137,7 +139,8 @@ def map_figure(values, key, *, frame: MapFrame, shade=None, title="", subtitle="
     if shade is not None:
         ax.imshow(0.35 + 0.65 * np.asarray(shade, dtype=np.float32), cmap="gray", vmin=0.0, vmax=1.0,
                   extent=extent, origin="upper", interpolation="nearest", zorder=1)
-    draw_product(v, style, extent=extent, ax=ax, classes=classes, no_value=no_value)
+    draw_product(v, style, extent=extent, ax=ax, classes=classes, no_value=no_value,
+                 rates=rates)
     if outlines is not None and np.any(np.asarray(outlines) > 0):
         ax.add_collection(LineCollection(_outline_segments(outlines, extent), colors="black",
                                          linewidths=0.9, zorder=6))
@@ -172,8 +175,9 @@ def map_figure(values, key, *, frame: MapFrame, shade=None, title="", subtitle="
 
     # legend panel, right of the map
     px, py, pw, ph = lay["panel"]
-    handles = _legend_handles(style, outlines, lines, no_value)
-    if style.kind == "bands":
+    handles = _legend_handles(style, outlines, lines, no_value, rates=rates, values=v,
+                              extent_cells=extent_cells)
+    if style.kind in ("bands", "bound", "recharge"):
         lax = fig.add_axes(rect(px, py, pw, ph))
         lax.axis("off")
         lax.legend(handles=handles, loc="upper left", title=style.label, fontsize=7.5,
@@ -191,12 +195,6 @@ def map_figure(values, key, *, frame: MapFrame, shade=None, title="", subtitle="
             cb.ax.yaxis.set_major_locator(LogLocator(base=10.0))
             cb.ax.yaxis.set_major_formatter(FuncFormatter(lambda v, _pos: f"{v:g}"))
         cb.set_label(style.label, fontsize=8)
-        for value, text in marks or ():
-            if style.vmin <= value <= style.vmax:
-                cb.ax.axhline(value, color="black", linewidth=1.5)
-                cb.ax.text(-0.25, value, "\n".join(textwrap.wrap(text, 20)),
-                           transform=cb.ax.get_yaxis_transform(), ha="right", va="center",
-                           fontsize=6.5, parse_math=False)
         if handles:
             lax = fig.add_axes(rect(px, py, pw, ph - bar_h - 0.25))
             lax.axis("off")
@@ -213,7 +211,7 @@ def map_figure(values, key, *, frame: MapFrame, shade=None, title="", subtitle="
     return fig
 
 
-def png_bytes(fig, *, title="", caution=SHORT) -> bytes:
+def png_bytes(fig, *, title="", caution=SHORT, palette=False) -> bytes:
     """Render a figure to PNG bytes (Agg, the figure's own dpi, no tight crop).
 
     The figure is opaque (a white face), so the PNG is written as RGB without
@@ -221,7 +219,9 @@ def png_bytes(fig, *, title="", caution=SHORT) -> bytes:
     about twice as fast to encode as RGBA at the default level 6, with the same
     pixels. The PNG carries the caution in its ``Disclaimer`` text chunk (and
     the title in ``Title``), so the warning travels with the file as with the
-    rasters.
+    rasters. With ``palette`` (a classed map) it is written as an 8-bit palette
+    PNG of at most 256 colours (median-cut, no dithering): the classes keep
+    their colours exactly when there are few of them, and the file is smaller.
     """
     from PIL import Image, PngImagePlugin
 
@@ -243,8 +243,11 @@ def png_bytes(fig, *, title="", caution=SHORT) -> bytes:
         info.add_text(key, text)
     dpi = float(fig.dpi)
     buf = io.BytesIO()
-    Image.fromarray(np.ascontiguousarray(rgba[..., :3])).save(
-        buf, format="png", compress_level=3, pnginfo=info, dpi=(dpi, dpi))
+    image = Image.fromarray(np.ascontiguousarray(rgba[..., :3]))
+    if palette:
+        image = image.quantize(colors=256, method=Image.Quantize.MEDIANCUT,
+                               dither=Image.Dither.NONE)
+    image.save(buf, format="png", compress_level=3, pnginfo=info, dpi=(dpi, dpi))
     return buf.getvalue()
 
 
@@ -259,8 +262,8 @@ def display_step(shape, max_pixels=MAP_PIXELS) -> int:
     return max(1, math.ceil(max(shape) / max_pixels))
 
 
-def product_maps(products, read, *, z, grid, title="", rain_texts=None, marks=(),
-                 max_pixels=MAP_PIXELS, dpi=100, lines=(), extra_lines=None):
+def product_maps(products, read, *, z, grid, title="", rain_texts=None, rates=(),
+                 max_pixels=MAP_PIXELS, dpi=100, lines=(), extra_lines=None, extent_cells=None):
     """Render a map of every product that has a :data:`STYLES` entry.
 
     Parameters
@@ -279,8 +282,8 @@ def product_maps(products, read, *, z, grid, title="", rain_texts=None, marks=()
         Study title, drawn under each map title.
     rain_texts : dict, optional
         Rain-case name -> the case in words.
-    marks : sequence of (float, str)
-        Values marked on the critical-recharge scale (steady rain cases).
+    rates : sequence of (str, float)
+        Steady rain cases (name, mm/day): the classes of the rain needed to fail.
     max_pixels : int
         Grids larger than this along a side are drawn at a stride (the
         products are not changed).
@@ -291,6 +294,8 @@ def product_maps(products, read, *, z, grid, title="", rain_texts=None, marks=()
     extra_lines : dict, optional
         ``(key, rain) -> list of line dicts`` drawn on that map only (the
         runout paths that reach the corridor).
+    extent_cells : int, optional
+        Window of the cluster FS bound, cells on a side (stated in its legend).
 
     Returns
     -------
@@ -342,8 +347,9 @@ def product_maps(products, read, *, z, grid, title="", rain_texts=None, marks=()
         heading = entry.title + (f": {rain}" if rain else "")
         fig = map_figure(values, key, frame=frame, shade=shade, title=heading,
                          subtitle=title, rain_text=text, classes=classes, no_value=no_value,
-                         outlines=outlines, marks=marks if key == "critical_recharge" else None,
+                         outlines=outlines, rates=rates, extent_cells=extent_cells,
                          lines=list((extra_lines or {}).get((key, rain), [])) + list(lines),
                          dpi=dpi)
-        out.append((p, png_bytes(fig, title=heading)))
+        out.append((p, png_bytes(fig, title=heading,
+                                 palette=STYLES[key].kind in ("bands", "bound", "recharge"))))
     return out

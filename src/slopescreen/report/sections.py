@@ -11,12 +11,12 @@ and provenance. The sections of the optional stages are in
 from __future__ import annotations
 
 
-from .blocks import Block, Section, bullets, figure, para, table
+from .blocks import Block, Section, bullets, details, figure, note, para, table
 from ..products import title as product_title
 from .stages import STAGE_SECTIONS
 from .summaries import (
-    NBSP, PROPERTY_UNITS, _map_alt, _map_caption, _pct, _units_text, describe_case, format_area,
-    parameter_text, rain_text,
+    NBSP, PROPERTY_UNITS, _map_alt, _map_caption, _pct, _units_text, case_origin, coordinate,
+    describe_case, format_area, parameter_text, rain_text, storm_note,
 )
 
 # ---------------------------------------------------------------------------
@@ -34,8 +34,48 @@ def _glance(ctx, facts_by_case, terrain=None):
     if not cases or not any(facts_by_case.values()):
         blocks.append(para("This run computed terrain products only (no [soil] and [[rain]] "
                            "sections), so it says nothing yet about where slopes can fail."))
-        blocks.extend(_changes_blocks(ctx, terrain))
+        blocks.extend(_changes_line(ctx, terrain))
         return Section("glance", "What fails where", blocks)
+    rows = []
+    sampled = False
+    for case in cases:
+        f = facts_by_case.get(case["name"])
+        if f is None:
+            continue
+        sampled = sampled or f["pf_m2"] is not None
+        rows.append([case["name"], rain_text(case), case_origin(case) or "—",
+                     format_area(f["fail_m2"]), _pct(f["fail_share"])]
+                    + ([] if f["pf_m2"] is None and not sampled else
+                       ["not computed" if f["pf10_m2"] is None else
+                        f"{format_area(f['pf10_m2'])} ({_pct(f['pf10_share'])})",
+                        "not computed" if f["pf_m2"] is None else
+                        f"{format_area(f['pf_m2'])} ({_pct(f['pf_share'])})"]))
+    header = ["rain case", "rain", "return period, source", "area FS < 1", "share"]
+    if sampled:
+        header += ["area P_f ≥ 0.1 (share)", "area P_f ≥ 0.5 (share)"]
+        rows = [r + ["not computed", "not computed"] if len(r) < len(header) else r for r in rows]
+    numeric = [False, False, False, True, True] + [True] * (len(header) - 5)
+    if all(r[2] == "—" for r in rows):          # no case says where it comes from
+        header, numeric = header[:2] + header[3:], numeric[:2] + numeric[3:]
+        rows = [r[:2] + r[3:] for r in rows]
+    blocks.append(table("Area that fails (FS below 1)" + (" and area by probability of failure P_f"
+                                                          if sampled else "") + ", per rain case",
+                        header, rows, numeric))
+    ov = ctx.overview
+    if ov is not None:
+        blocks.append(figure(ov["png"], f"Map: overview of the factor of safety under {ov['case']}",
+                             "The worst places under the rain case that fails the most ground: "
+                             + ("the least stable failing clusters." if ov["kind"] == "cluster"
+                                else "the largest connected patches below FS 1.")
+                             + " Each rain case has its full maps below.", css="overview"))
+        if ov["places"]:
+            blocks.append(table(
+                f"Worst places under “{ov['case']}”",
+                ["place", "what", "least FS", "area", "easting", "northing"],
+                [[str(i), f"cluster {p['cluster']}" if "cluster" in p else "patch below FS 1",
+                  f"{p['fs']:.2f}", format_area(p["area_m2"]), coordinate(p["easting"]),
+                  coordinate(p["northing"])] for i, p in enumerate(ov["places"], start=1)],
+                [True, False, True, True, True, True]))
     corridor = ctx.tables.get("corridor_segments") or []
     for case in cases:
         f = facts_by_case.get(case["name"])
@@ -54,23 +94,31 @@ def _glance(ctx, facts_by_case, terrain=None):
         sentence = agreement_sentence(scores)
         if sentence:
             blocks.append(para(sentence))
-    rows = []
-    for case in cases:
-        f = facts_by_case.get(case["name"])
-        if f is None:
-            continue
-        rows.append([case["name"], rain_text(case), format_area(f["fail_m2"]), _pct(f["fail_share"]),
-                     "not computed" if f["pf_m2"] is None else format_area(f["pf_m2"]),
-                     "" if f["pf_share"] is None else _pct(f["pf_share"])])
-    blocks.append(table("Area below FS 1 and area with a probability of failure above 0.5, per rain case",
-                        ["rain case", "rain", "area FS < 1", "share", "area P_f > 0.5", "share"],
-                        rows, [False, False, True, True, True, True]))
+    explained = storm_note(cases, facts_by_case, ctx.manifest.get("soil"))
+    if explained:
+        blocks.append(note(explained, lead="Why a storm can fail less ground than a steady case:"))
     blocks.append(para("FS is the infinite-slope factor of safety at the median of every soil "
                        "parameter; P_f is the probability that FS < 1 given the stated parameter "
-                       "distributions, cell by cell. Shares are of the area where the model was "
-                       "computed. The maps below show where."))
-    blocks.extend(_changes_blocks(ctx, terrain))
+                       "distributions, cell by cell: P_f ≥ 0.5 is close to FS < 1 at the median, "
+                       "P_f ≥ 0.1 adds the ground where failure is unlikely but not remote. "
+                       "Shares are of the area where the model was computed."))
+    blocks.extend(_changes_line(ctx, terrain))
     return Section("glance", "What fails where", blocks)
+
+
+def _changes_line(ctx, terrain):
+    """One line on the first screen: how many changes of method touch this run (the list is
+    in the methods section)."""
+    from .changes import PREVIOUS_RELEASE
+
+    found = _changes_blocks(ctx, terrain)
+    n = len(found[1].items) if found else 0
+    if not n:
+        return []
+    return [para(f"{n} change{'s' if n > 1 else ''} of method since slopescreen "
+                 f"{PREVIOUS_RELEASE} touch{'' if n > 1 else 'es'} this run, so its numbers "
+                 "differ from a run of that release on the same inputs; they are listed under "
+                 "“Methods and assumptions”.", lead="Changes:")]
 
 
 def _changes_blocks(ctx, terrain):
@@ -97,13 +145,17 @@ def _case_sections(ctx, figures):
         name = case["name"]
         fig = figures.cases.get(name)
         f = None if fig is None else fig.facts
-        blocks = [para(rain_text(case), lead="Rain:")]
+        origin = case_origin(case)
+        blocks = [para(rain_text(case) + (f" ({origin})" if origin else ""), lead="Rain:")]
         if fig is not None:
             rows = [[label, format_area(a), _pct(s)] for label, a, s in fig.bands]
             if f["pf_m2"] is not None:
-                rows.append(["probability of failure above 0.5 (any FS band)", format_area(f["pf_m2"]),
-                             _pct(f["pf_share"])])
-            blocks.append(table(f"Area by factor-of-safety band (common screening practice), “{name}”",
+                rows.append(["probability of failure P_f ≥ 0.1 (any FS class)",
+                             format_area(f["pf10_m2"]), _pct(f["pf10_share"])])
+                rows.append(["probability of failure P_f ≥ 0.5 (any FS class)",
+                             format_area(f["pf_m2"]), _pct(f["pf_share"])])
+            blocks.append(table(f"Area by factor-of-safety class (breaks of common screening "
+                                f"practice), “{name}”",
                                 ["factor of safety", "area", "share of the computed area"], rows,
                                 [False, True, True]))
         if fig is not None and fig.flag_shares is not None:
@@ -307,9 +359,13 @@ REFERENCES = (
 """References cited in the report."""
 
 
-def _methods_section(ctx):
+def _methods_section(ctx, terrain=None):
     conv = ctx.manifest.get("conventions") or {}
     blocks = [table("Methods", ["step", "method"], [list(m) for m in METHODS])]
+    changes = _changes_blocks(ctx, terrain)
+    if changes:
+        blocks.append(details(f"Changes of method since the previous release that touch this "
+                              f"run ({len(changes[1].items)})", changes))
     if conv:
         blocks.append(table("Conventions of this run", ["item", "convention"],
                             [[k.replace("_", " "), v] for k, v in conv.items()]))
@@ -317,8 +373,9 @@ def _methods_section(ctx):
         "Assumptions: the failure plane is parallel to the ground and long compared with its depth; "
         "seepage is parallel to the slope; one bulk unit weight above and below the water table; "
         "suction, bedrock flow and seismic loading are ignored.",
-        "Factor-of-safety bands (below 1, 1 to 1.3, 1.3 to 1.5, 1.5 and above) are the screening "
-        "bands of common practice, not design criteria.",
+        "Factor-of-safety classes: fails (below 1), thin margin (1 to 1.3), some margin (1.3 to "
+        "1.5) and ample margin (1.5 and above); the breaks are those of common screening "
+        "practice, not design criteria, and the names are this report's.",
         "The probability of failure is per cell and conditional on the stated distributions; it is "
         "not the probability that some landslide occurs in an area, and it says nothing about timing.",
     ]))
@@ -327,22 +384,36 @@ def _methods_section(ctx):
 
 
 def _products_section(ctx):
-    shown = {m.entry["path"]: m.shows for m in ctx.maps}
+    products = list(ctx.manifest.get("products", []))
+    if not any(p["key"] == "report" for p in products):
+        products.append({"key": "report", "path": "report.html", "kind": "html", "units": "n/a"})
+    groups: dict = {}
+    for p in products:     # one row per product: its files for every rain case together
+        groups.setdefault((p["key"], p["kind"]), []).append(p)
+    rows = []
+    for (key, kind), entries in groups.items():
+        name = "Maps (one per mapped product and rain case)" if key == "map" else (
+            "Report (this file)" if key == "report" else product_title(key))
+        rains = [e.get("rain") for e in entries if e.get("rain")]
+        files = ", ".join(e["path"] for e in entries)
+        if key == "map":
+            files = f"map_<product>[_<rain case>].png ({len(entries)} maps)"
+        elif key != "map" and len(rains) == len(entries) > 1:   # KEY_<rain case>.tif
+            from ..products import spec
+            from ..scenario import slugify
 
-    def title(p):
-        if p["key"] == "map" and p["path"] in shown:
-            return "Map: " + product_title(shown[p["path"]]["key"]).lower()
-        return product_title(p["key"])
-
-    rows = [[title(p), p["key"], p.get("rain") or "—", p["path"], p["kind"], _units_text(p["units"])]
-            for p in ctx.manifest.get("products", [])]
-    if not any(p["key"] == "report" for p in ctx.manifest.get("products", [])):
-        rows.append(["Report (this file)", "report", "—", "report.html", "html", "n/a"])
+            ext = entries[0]["path"].rsplit(".", 1)[-1]
+            if all(e["path"] == spec(key).file_name(slugify(e["rain"])) for e in entries):
+                files = f"{key}_<rain case>.{ext}"
+        rows.append([name, ", ".join(rains) if rains else "—", files, kind,
+                     "units of each product" if key == "map" else _units_text(entries[0]["units"])])
     return Section("products", "Products of this run", [
-        para("Every product is listed in manifest.json beside this report; rasters are GeoTIFF on the "
-             "DEM grid with the caution in their metadata. A dash in the rain-case column marks a "
-             "product that does not depend on rain."),
-        table("Products", ["product", "key", "rain case", "file", "kind", "units"], rows)])
+        para("Every product is listed in manifest.json beside this report, with its SHA-256; "
+             "rasters are GeoTIFF on the DEM grid with the caution in their metadata. A dash in "
+             "the rain-case column marks a product that does not depend on rain; <rain case> "
+             "in a file name stands for the case's name in lower case with dashes (“wet "
+             "season” → wet-season)."),
+        table("Products", ["product", "rain cases", "files", "kind", "units"], rows)])
 
 
 def _provenance_section(ctx):
@@ -365,8 +436,9 @@ def _provenance_section(ctx):
     if times:
         rows = [[k, f"{v:.2f}"] for k, v in times.items()]
         rows.append(["total of the stages above", f"{sum(times.values()):.2f}"])
-        blocks.append(table("Run time per stage (s)", ["stage", "seconds"], rows, [False, True]))
-        blocks.append(para("The time to write this report itself is recorded in manifest.json."))
+        blocks.append(details(f"Run time per stage ({sum(times.values()):.1f} s in all)", [
+            table("Run time per stage (s)", ["stage", "seconds"], rows, [False, True]),
+            para("The time to write this report itself is recorded in manifest.json.")]))
     stage_rows = []
     not_run = {n["section"]: n["reason"] for n in m.get("not_run", [])}
     keys = {p["key"] for p in m.get("products", [])}

@@ -13,10 +13,9 @@ from typing import Callable
 
 import numpy as np
 
-from .blocks import ReportContext, Section, figure, note, para, table
+from .blocks import ReportContext, Section, details, figure, note, para, table
 from ..products import products_of_section
-from ..products import title as product_title
-from .summaries import NBSP, _map_alt, _map_caption, _units_text, format_area
+from .summaries import NBSP, _map_alt, _map_caption, coordinate, format_area
 
 @dataclass(frozen=True)
 class StageSection:
@@ -45,19 +44,28 @@ def _centre(row) -> str:
     x, y = row.get("centroid_easting"), row.get("centroid_northing")
     if x is None or y is None or x != x or y != y:
         return "—"
-    return f"{x:,.0f}, {y:,.0f}"
+    return f"{coordinate(x)} E, {coordinate(y)} N"
 
 
 def _cluster_blocks(ctx: ReportContext, entries):
     """Failing multi-cell clusters per rain case: counts, sizes and the least stable."""
     rows = ctx.tables.get("clusters", [])
+    settings = ctx.manifest.get("clusters_settings") or {}
     blocks = [para(
-        "A cell below FS 1 is not yet a landslide: a real failure is a group of cells whose weight "
-        "overcomes the strength of its base and of its margins (passive resistance at the toe, "
-        "friction and roots on the sides, roots at the head). The clusters below are the groups "
-        "that fail as a whole under each rain case at the median parameters, found exactly by a "
-        "minimum cut; every one was checked to have FS below 1 when recomputed.",
-        lead="What this is:")]
+        "A cell below FS 1 is not yet a landslide. A real failure is a group of neighbouring "
+        "cells that slides together: its weight is resisted by the strength of its base and of "
+        "its margins (the ground it must push at its toe, friction and roots along its sides, "
+        "roots across its head). A failure cluster is such a group whose resistance falls "
+        "short as a whole under the rain case, at the median soil parameters.",
+        lead="What a cluster is:"),
+        para("the tool checked that its answer is exact: no other group of cells in that part "
+             "of the map fails more clearly. “Not proven” means the check could not finish "
+             "there, and a slightly different failing group may exist.", lead="“Proven”:")]
+    if settings:
+        blocks.append(para(
+            f"failures of {settings['min_area_m2']:,.0f} to {settings['max_area_m2']:,.0f}{NBSP}m² "
+            "(the scenario's [clusters] min_area_m2 and max_area_m2).",
+            lead="Sizes asked for:"))
     cases = [r["name"] for r in ctx.manifest.get("rain", [])]
     summary = []
     for name in cases:
@@ -77,8 +85,8 @@ def _cluster_blocks(ctx: ReportContext, entries):
     if least:
         blocks.append(table(
             "The least stable clusters (up to 15)",
-            ["id", "rain case", "FS", "P(fail)", "area", "volume", "length × width", "cells",
-             "proven", "in the area band", "centroid (E, N)"],
+            ["id", "rain case", "FS", "P_f", "area", "volume", "length × width", "cells",
+             "proven", "in the sizes asked for", "centre"],
             [[str(r["id"]), r["rain"], f"{r['fs']:.3f}",
               "—" if r["failure_probability"] != r["failure_probability"]
               else f"{r['failure_probability']:.2f}", f"{r['area_m2']:,.0f}{NBSP}m²",
@@ -86,54 +94,57 @@ def _cluster_blocks(ctx: ReportContext, entries):
               str(r["n_cells"]), "yes" if r["proven"] else "no",
               "yes" if r["in_area_band"] else "no", _centre(r)] for r in least],
             [False, False, True, True, True, True, True, True, False, False, True]))
-    search = ctx.manifest.get("cluster_search") or []
-    modular = sum(r["modular_faces"] for r in search)
-    undecided = sum(r["undecided_cells"] for r in search)
-    if modular or undecided:
-        blocks.append(note(
-            f"The exact cut could not certify every answer: {modular} margin face(s) failed the "
-            "submodularity check (active thrust above the resistance at a head or toe, where the "
-            "cut charges the face by a modular lower bound) and "
-            f"{undecided} cell(s) stayed undecided between the tiles. Clusters touching either are "
-            f"marked not proven ({sum(r['not_proven'] for r in search)} of "
-            f"{sum(r['clusters'] for r in search)}): a slightly different failing set may exist "
-            "there.", lead="Proof:"))
     bound = [e for e in entries if e["key"] == "cluster_fs_bound"]
     if bound:
         blocks.append(para(
-            "The cluster bound map gives, per cell, a proven lower bound on the factor of safety "
-            "of every cluster up to the stated extent that contains the cell; where it is at "
-            "least 1, no such cluster can fail under that rain case. Its maps are in the "
-            "sections of each rain case.", lead="Bound:"))
+            "its map shows where a failing cluster cannot be ruled out (coloured) and where none "
+            "that fits the bound's window can fail (not coloured). A coloured cell does not say "
+            "that a cluster fails there, only that the bound does not exclude one; the failing "
+            "clusters themselves are outlined on the factor-of-safety maps of each rain case.",
+            lead="Cluster bound map:"))
     sized = ctx.tables.get("size_resolved", [])
+    one_band = settings.get("size_bands", 1) == 1 and settings
     if sized:
         unproven = sum(1 for r in sized if not r["proven"])
         blocks.append(para(
-            "In windows of 40 × 40 cells around the least stable failing clusters (and the least "
-            "stable windows of the bound map), the least stable connected cluster was searched "
-            "for in each area band by an exact mixed-integer program. The lower bound is proven "
-            "for every connected cluster of that band inside the window; where the answer is not "
-            "proven, the time limit stopped the search and a less stable cluster of that band may "
-            f"exist between the bound and the answer. Not proven: {unproven} of {len(sized)} "
-            "answers.",
+            "Around the least stable failing clusters, the least stable group of connected "
+            "cells of each size asked for was sought; a proven answer is the least stable such "
+            f"group there. Not proven: {unproven} of {len(sized)} answers (a time limit stopped "
+            "the search; a less stable group may exist between the lower bound and the answer).",
             lead="By size:"))
         blocks.append(table(
-            "Least stable connected cluster per searched window and area band",
-            ["rain case", "area band", "FS", "proven lower bound", "proven", "area", "P(fail)",
-             "centroid (E, N)"],
-            [[r["rain"], f"{r['band_min_m2']:,.0f}–{r['band_max_m2']:,.0f}{NBSP}m²",
+            "Least stable group of connected cells per searched window and size",
+            ["rain case", "sizes", "FS", "proven lower bound", "proven", "area", "P_f",
+             "centre"],
+            [[r["rain"], (f"{settings['min_area_m2']:,.0f}–{settings['max_area_m2']:,.0f}"
+                          f"{NBSP}m² (as asked)") if one_band else
+              f"{r['band_min_m2']:,.0f}–{r['band_max_m2']:,.0f}{NBSP}m² (whole cells)",
               f"{r['fs']:.3f}", f"{r['lower_bound']:.3f}", "yes" if r["proven"] else
               f"no ({r['method']})", f"{r['area_m2']:,.0f}{NBSP}m²",
               "—" if r["failure_probability"] != r["failure_probability"]
               else f"{r['failure_probability']:.2f}", _centre(r)] for r in sized[:20]],
             [False, True, True, True, False, True, True, True]))
+    search = ctx.manifest.get("cluster_search") or []
+    modular = sum(r["modular_faces"] for r in search)
+    undecided = sum(r["undecided_cells"] for r in search)
+    inner = [para(
+        "The failing clusters are found exactly as a minimum cut of a graph whose nodes are "
+        "cells and whose edges carry the margin resistances; every cluster found was checked "
+        "to have FS below 1 when recomputed. The cluster bound is a proven lower bound on the "
+        "FS of every cluster up to the bound's window that holds the cell. The search by size "
+        "solves a mixed-integer program per window and size band (with its LP relaxation as "
+        "the lower bound), under the time limit of [clusters] size_time_limit_s; sizes are "
+        "searched in whole cells.")]
+    if modular or undecided:
+        inner.append(note(
+            f"The exact cut could not certify every answer: {modular} margin face(s) failed the "
+            "submodularity check (active thrust above the resistance at a head or toe, where the "
+            "cut charges the face by a modular lower bound) and "
+            f"{undecided} cell(s) stayed undecided between the tiles. Clusters touching either are "
+            f"marked not proven ({sum(r['not_proven'] for r in search)} of "
+            f"{sum(r['clusters'] for r in search)}).", lead="Proof:"))
+    blocks.append(details("How the clusters are found and proven (solver details)", inner))
     return blocks
-
-
-def _products_table(entries):
-    return table("Products of this stage", ["product", "rain case", "file", "units"],
-                 [[product_title(e["key"]), e.get("rain") or "—", e["path"],
-                   _units_text(e["units"])] for e in entries])
 
 
 def _runout_maps(ctx, entries):
@@ -180,7 +191,6 @@ def _runout_blocks(ctx: ReportContext, entries):
         blocks.append(para("No rain case has a failure source, so nothing runs out."))
     if not ctx.tables.get("corridor_segments"):
         blocks += _runout_maps(ctx, entries)
-    blocks.append(_products_table(entries))
     return blocks
 
 
@@ -218,10 +228,9 @@ def _corridor_blocks(ctx: ReportContext, entries):
         if worst:
             blocks.append(table(f"Worst segments under “{rain}”",
                                 ["rank", "segment", "chainage", "hazard", "why"], worst,
-                                [True, True, True, True, False]))
+                                [True, True, True, True, False], print_rows=5))
     runout_entries = [p for p in ctx.manifest.get("products", []) if p["key"] == "runout_count"]
     blocks += _runout_maps(ctx, runout_entries)
-    blocks.append(_products_table(entries))
     return blocks
 
 
@@ -287,7 +296,6 @@ def _inventory_blocks(ctx: ReportContext, entries):
     notes = doc.get("notes", [])
     if notes:
         blocks.append(bullets(notes))
-    blocks.append(_products_table(entries))
     return blocks
 
 
@@ -308,7 +316,6 @@ def _generic_stage_blocks(ctx: ReportContext, entries):
         m = ctx.map_of(e["key"], e.get("rain"))
         if m is not None:
             blocks.append(figure(m.png, _map_alt(e), _map_caption(ctx, e)))
-    blocks.append(_products_table(entries))
     return blocks
 
 

@@ -20,17 +20,22 @@ import numpy as np
 from matplotlib.colors import LinearSegmentedColormap, LogNorm, Normalize
 
 FS_BANDS = (
-    (1.0, "below 1.0: unstable under this case", "#6e1538"),
-    (1.3, "1.0 to 1.3: marginal", "#d9622b"),
-    (1.5, "1.3 to 1.5: moderately stable", "#f3d36b"),
-    (math.inf, "1.5 and above: stable under this case\n(not coloured)", None),
+    (1.0, "fails: FS below 1.0", "#b3122e"),
+    (1.3, "thin margin: FS 1.0 to 1.3", "#ee7b30"),
+    (1.5, "some margin: FS 1.3 to 1.5", "#f7d44c"),
+    (math.inf, "ample margin: FS 1.5 or more\n(not coloured)", None),
 )
-"""Screening bands of the factor of safety (upper bound, label, colour).
+"""Screening classes of the factor of safety (upper bound, map label, colour).
 
-Below 1, 1-1.3, 1.3-1.5 and 1.5 and above: the bands of common screening
-practice (not design criteria). A band's lower bound belongs to it
-(FS = 1.0 is marginal, not unstable). The stable band is left uncoloured so
-the terrain shows through."""
+The breaks 1.0, 1.3 and 1.5 are common screening practice (not design
+criteria); the class names are our own and say what the number means: whether
+the case fails the slope and, if not, how much margin is left. A class holds
+its lower bound (FS = 1.0 has a thin margin, it does not fail). The ample-margin
+class is left uncoloured so the terrain shows through."""
+
+FS_CLASS_NAMES = ("fails (FS < 1.0)", "thin margin (FS 1.0-1.3)", "some margin (FS 1.3-1.5)",
+                  "ample margin (FS >= 1.5)")
+"""The same classes in one line each, for tables and the summary files."""
 
 NO_VALUE_COLOUR = "#7d7d7d"
 """Grey laid over cells that have a DEM value but no product value."""
@@ -42,9 +47,11 @@ class Style:
 
     Attributes
     ----------
-    kind : {"bands", "ramp", "recharge"}
-        FS bands, a continuous ramp, or the critical-recharge ramp with its
-        class bands.
+    kind : {"bands", "ramp", "recharge", "bound"}
+        FS classes, a continuous ramp, the rain needed to fail (classes
+        whose breaks are the scenario's steady rain cases; see
+        :func:`recharge_breaks`), or the cluster FS bound (two classes: a
+        failing cluster possible, or ruled out; see :func:`bound_labels`).
     label : str
         Legend title with the units.
     colours : tuple of str
@@ -83,23 +90,29 @@ class Style:
         return Normalize(vmin=self.vmin, vmax=self.vmax, clip=True)
 
 
-_WARM = ("#fbeeb4", "#f2b15c", "#d9622b", "#8f2140", "#3d0a2c")
-_COOL = ("#eef6f4", "#a8d5cd", "#4f98b0", "#24517f", "#161c44")
+_VIOLET = ("#f1ebf7", "#c6a9e0", "#9368c4", "#62379b", "#3a1663")
+_GREEN = ("#f3f8d6", "#b9de8c", "#61b06f", "#247560", "#0f4140")
+_BLUE = ("#eef6f4", "#a8d5cd", "#4f98b0", "#24517f", "#161c44")
+_SLATE = ("#f4f4f2", "#c9ccd6", "#8d94ad", "#545b7a", "#292d45")
 _EARTH = ("#f6f1e4", "#d8c08e", "#a97b44", "#6b4023", "#2f1b10")
+_REACH = ("#e3b04b", "#b9742f", "#7f3f1d", "#3b190a")
+# one ramp per quantity: the FS classes are crimson-orange-yellow, the probability of
+# failure violet, the rain needed to fail green, wetness blue, catchment area slate, slope
+# earth, runout gold-brown
 
 FS_STYLE = Style("bands", "Factor of safety FS (dimensionless)\nmedian soil parameters")
 
-PROBABILITY_STYLE = Style("ramp", "Probability of failure P(FS < 1)\n(dimensionless, 0 to 1)",
-                          _WARM, 0.0, 1.0, transparent_below=0.01)
-CLUSTER_BOUND_STYLE = Style("bands", "Lower bound on cluster FS (dimensionless)")
-RECHARGE_STYLE = Style("recharge", "Critical steady recharge (mm/day)\nlow = needs little rain",
-                       _COOL, 1.0, 1000.0, log=True, reverse=True)
+PROBABILITY_STYLE = Style("ramp", "Probability of failure P_f = P(FS < 1)\n(0 to 1)",
+                          _VIOLET, 0.0, 1.0, transparent_below=0.01)
+CLUSTER_BOUND_STYLE = Style("bound", "Failing clusters: where one\ncannot be ruled out",
+                            ("#d4589b",), alpha=0.55)
+RECHARGE_STYLE = Style("recharge", "Steady rain needed to fail (mm/day)\ndark = little rain",
+                       _GREEN, 1.0, 1000.0, log=True, reverse=True)
 WETNESS_STYLE = Style("ramp", "Wetness h/z (saturated fraction\nof the soil column, 0 to 1)",
-                      _COOL, 0.0, 1.0, transparent_below=0.02, alpha=0.8)
+                      _BLUE, 0.0, 1.0, transparent_below=0.02, alpha=0.8)
 SLOPE_STYLE = Style("ramp", "Slope (degrees)", _EARTH, 0.0, 50.0, alpha=0.7)
-SCA_STYLE = Style("ramp", "Specific catchment area a = A/b (m)", _COOL, 5.0, 1.0e5, log=True,
+SCA_STYLE = Style("ramp", "Specific catchment area a = A/b (m)", _SLATE, 5.0, 1.0e5, log=True,
                   alpha=0.8)
-_REACH = ("#e3b04b", "#b9742f", "#7f3f1d", "#3b190a")
 RUNOUT_STYLE = Style("ramp", "Failure sources whose runout\nreaches the cell (count)", _REACH,
                      1.0, 10.0, transparent_below=1.0, alpha=0.9)
 """The styles of the products that get a map; the product registry
@@ -156,3 +169,87 @@ def at_least(values, threshold) -> np.ndarray:
             t = np.nextafter(t, np.float32(np.inf))
         return v >= t
     return v >= threshold
+
+
+def bound_labels(extent_cells: int | None = None) -> tuple[str, str]:
+    """Legend labels of the cluster FS bound: (bound below 1, bound 1 or more).
+
+    A bound below 1 does not say that a cluster fails there, only that a
+    failing cluster holding the cell cannot be ruled out by the bound; a
+    bound of 1 or more proves that no cluster that fits the bound's window
+    (``extent_cells`` cells on a side) and holds the cell can fail.
+
+    Examples
+    --------
+    >>> bound_labels(8)[1]
+    'no cluster up to 8 x 8 cells can fail here\\n(not coloured)'
+    """
+    window = (f"up to {extent_cells} x {extent_cells} cells" if extent_cells
+              else "that fits the bound's window")
+    return ("a failing cluster is possible here\n(bound below 1)",
+            f"no cluster {window} can fail here\n(not coloured)")
+
+
+def recharge_breaks(rates, values=None) -> tuple[tuple[float, ...], tuple[str, ...]]:
+    """Class breaks of the rain needed to fail, from the scenario's steady rain cases.
+
+    Parameters
+    ----------
+    rates : sequence of (str, float)
+        Steady rain cases (name, mm/day), in any order; rates <= 0 are left out.
+    values : array_like, optional
+        The critical recharge (mm/day, NaN where no rate applies), for a
+        scenario with no steady case: the breaks are then its 20th, 40th, 60th
+        and 80th percentiles (never fixed decade bins).
+
+    Returns
+    -------
+    breaks : tuple of float
+        Upper bounds of the classes (the last is inf), mm/day.
+    labels : tuple of str
+        One label per class.
+
+    Notes
+    -----
+    With steady cases r_1 < ... < r_k: "fails under <case 1>" (q <= r_1), then
+    "fails under <case i>, not <case i-1>", then "within twice the wettest case"
+    (r_k < q <= 2 r_k) and "more than twice the wettest case". A cell fails
+    under a steady case exactly when its critical recharge is at most the
+    case's rate (docs/methods.md, "Critical recharge").
+
+    Examples
+    --------
+    >>> breaks, labels = recharge_breaks([("wet", 40.0), ("dry", 6.0)])
+    >>> breaks
+    (6.0, 40.0, 80.0, inf)
+    >>> labels[1]
+    'fails under wet (6-40), not dry'
+    """
+    steady = sorted((float(r), str(n)) for n, r in rates if r is not None and float(r) > 0.0)
+    merged: list[tuple[float, str]] = []
+    for r, n in steady:                    # cases of one rate share a class
+        if merged and merged[-1][0] == r:
+            merged[-1] = (r, f"{merged[-1][1]}, {n}")
+        else:
+            merged.append((r, n))
+    if not merged:
+        v = np.asarray([] if values is None else values, dtype=np.float64)
+        v = v[np.isfinite(v)]
+        if v.size == 0:
+            return (math.inf,), ("fails under enough steady rain",)
+        qs = sorted({float(f"{x:.3g}") for x in np.percentile(v, [20, 40, 60, 80])})
+        labels = [f"up to {qs[0]:g} (lowest fifth)"] + [
+            f"{a:g}-{b:g}" for a, b in zip(qs[:-1], qs[1:])] + [f"more than {qs[-1]:g}"]
+        return tuple(qs) + (math.inf,), tuple(labels)
+    breaks, labels = [], []
+    for i, (r, n) in enumerate(merged):
+        breaks.append(r)
+        if i == 0:
+            labels.append(f"fails under {n} (up to {r:g})")
+        else:
+            labels.append(f"fails under {n} ({merged[i - 1][0]:g}-{r:g}), not {merged[i - 1][1]}")
+    top = merged[-1][0]
+    breaks += [2.0 * top, math.inf]
+    labels += [f"within twice the wettest case ({top:g}-{2 * top:g})",
+               f"more than twice the wettest case (over {2 * top:g})"]
+    return tuple(breaks), tuple(labels)

@@ -91,13 +91,13 @@ def band_areas(fs, cell_area_m2):
     Examples
     --------
     >>> [(b, a, s) for b, a, s in band_areas([0.5, 1.0, 1.35, 2.0, float("nan")], 10.0)][:2]
-    [('below 1.0', 10.0, 0.25), ('1.0 to 1.3', 10.0, 0.25)]
+    [('fails (FS < 1.0)', 10.0, 0.25), ('thin margin (FS 1.0-1.3)', 10.0, 0.25)]
     """
-    from .styles import FS_BANDS
+    from .styles import FS_BANDS, FS_CLASS_NAMES
 
     counts = band_counts(fs, [upper for upper, _, _ in FS_BANDS[:-1]])
     n = int(counts.sum())
-    labels = ("below 1.0", "1.0 to 1.3", "1.3 to 1.5", "1.5 and above")
+    labels = FS_CLASS_NAMES
     out = []
     for i, label in enumerate(labels[:len(FS_BANDS)]):
         count = int(counts[i])
@@ -134,7 +134,8 @@ def case_facts(fs, *, cell_area_m2, pf=None, wetness=None, slope_deg=None, aspec
     -------
     dict
         ``computed_m2``, ``fail_m2``, ``fail_share``, ``pf_m2`` and
-        ``pf_share`` (P_f > 0.5, None without ``pf``), ``units`` (list of
+        ``pf_share`` (P_f >= 0.5, None without ``pf``), ``pf10_m2`` and
+        ``pf10_share`` (P_f >= 0.1), ``units`` (list of
         (label, share of the failing area), largest first), ``slope_p10``,
         ``slope_p90`` (degrees), ``aspects`` (list of (sector, share)),
         ``saturated_share`` (share of the failing area with wetness >= 0.999).
@@ -153,13 +154,16 @@ def case_facts(fs, *, cell_area_m2, pf=None, wetness=None, slope_deg=None, aspec
     counts, unit_counts, sector_counts = case_counts(
         fs, pf=pf, wetness=wetness, aspect_deg=aspect_deg,
         unit_index=unit_index if use_units else None, n_units=len(labels) if use_units else 0)
-    n, k, n_pf, m, saturated = (int(c) for c in counts)
+    n, k, n_pf, m, saturated, m10 = (int(c) for c in counts)
     facts = {"computed_m2": n * cell_area_m2, "fail_m2": k * cell_area_m2,
-             "fail_share": k / n if n else 0.0, "pf_m2": None, "pf_share": None, "units": [],
+             "fail_share": k / n if n else 0.0, "pf_m2": None, "pf_share": None,
+             "pf10_m2": None, "pf10_share": None, "units": [],
              "slope_p10": None, "slope_p90": None, "aspects": [], "saturated_share": None}
     if pf is not None:
-        facts["pf_m2"] = m * cell_area_m2  # P_f > 0.5; 0.5 is exact in float32 and float64
+        facts["pf_m2"] = m * cell_area_m2  # P_f >= 0.5 (values compared as float64)
         facts["pf_share"] = m / n_pf if n_pf else 0.0
+        facts["pf10_m2"] = m10 * cell_area_m2
+        facts["pf10_share"] = m10 / n_pf if n_pf else 0.0
     if k == 0:
         return facts
     if use_units:
@@ -293,8 +297,9 @@ def describe_case(name, rain_text, facts) -> str:
             text += (f" {_pct(facts['saturated_share'])} of it is saturated to the surface "
                      "(wetness 1) in this case.")
     if facts["pf_m2"] is not None:
-        text += (f" {format_area(facts['pf_m2'])} ({_pct(facts['pf_share'])}) has a probability of "
-                 "failure above 0.5 given the parameter distributions.")
+        text += (f" Given the parameter distributions, {format_area(facts['pf10_m2'])} "
+                 f"({_pct(facts['pf10_share'])}) has a probability of failure P_f of 0.1 or more "
+                 f"and {format_area(facts['pf_m2'])} ({_pct(facts['pf_share'])}) of 0.5 or more.")
     return text
 
 
@@ -317,6 +322,114 @@ def rain_text(case: dict) -> str:
                 f"{case['antecedent_mm_per_day']:g} mm/day of background recharge (shallower in "
                 f"hollows than on spurs)")
     return f"{storm}, water table {case['water_table_depth_m']:g} m below the surface before it"
+
+
+def case_origin(case: dict) -> str:
+    """The return period and source of a rain case in words ("" when the scenario gives neither).
+
+    Examples
+    --------
+    >>> case_origin({"return_period_years": 100.0, "source": "design-storm table"})
+    'return period 100 years; design-storm table'
+    """
+    parts = []
+    if case.get("return_period_years") is not None:
+        parts.append(f"return period {case['return_period_years']:g} years")
+    if case.get("source"):
+        parts.append(str(case["source"]))
+    return "; ".join(parts)
+
+
+def coordinate(value) -> str:
+    """A map coordinate in whole units, digits grouped by thin spaces (no commas, which read
+    as separators between the easting and the northing).
+
+    Examples
+    --------
+    >>> coordinate(5101940.4) == "5\u2009101\u2009940"
+    True
+    """
+    if value is None or value != value:
+        return "—"
+    return f"{value:,.0f}".replace(",", "\u2009")
+
+
+def _central(record) -> float | None:
+    """The central value of a soil parameter of the manifest (a number or a distribution)."""
+    if record is None:
+        return None
+    if not isinstance(record, dict):
+        return float(record)
+    kind = record["distribution"]
+    if kind == "uniform":
+        return 0.5 * (record["low"] + record["high"])
+    return float(record["mean"] if kind == "normal" else record["median"])
+
+
+def storm_note(cases, facts_by_case, soil) -> str:
+    """Why a storm case fails less ground than a steady case, when one does ("" otherwise).
+
+    The steady case sets the water table that a long wet spell builds from the whole upslope
+    catchment; a storm adds only the pressure that diffuses down from the surface in its
+    duration, a depth of about sqrt(4 D0 T) (Iverson 2000; docs/methods.md, "Storm response
+    (Iverson 2000)"), on top of the water table it starts from.
+
+    Examples
+    --------
+    >>> cases = [{"name": "wet", "steady_mm_per_day": 40.0},
+    ...          {"name": "storm", "storm_mm_per_h": 20.0, "duration_h": 12.0,
+    ...           "antecedent_mm_per_day": 5.0}]
+    >>> facts = {"wet": {"fail_share": 0.2}, "storm": {"fail_share": 0.05}}
+    >>> soil = {"units": [{"diffusivity_m2_per_s": 1e-5, "depth_m": 1.2,
+    ...                    "conductivity_m_per_day": 1.0}]}
+    >>> text = storm_note(cases, facts, soil)
+    >>> "1.31 m" in text, "I/K = 0.48" in text
+    (True, True)
+    """
+    import math
+
+    steady = [c for c in cases if c.get("steady_mm_per_day") is not None
+              and facts_by_case.get(c["name"]) is not None]
+    out = []
+    units = (soil or {}).get("units") or []
+    d0 = [v for v in (_central(u.get("diffusivity_m2_per_s")) for u in units) if v]
+    depth = [v for v in (_central(u.get("depth_m")) for u in units) if v]
+    k = [v for v in (_central(u.get("conductivity_m_per_day")) for u in units) if v]
+    for c in cases:
+        f = facts_by_case.get(c["name"])
+        if c.get("storm_mm_per_h") is None or f is None or not steady:
+            continue
+        wetter = max(steady, key=lambda s: facts_by_case[s["name"]]["fail_share"])
+        if facts_by_case[wetter["name"]]["fail_share"] <= f["fail_share"]:
+            continue
+        t_s = c["duration_h"] * 3600.0
+        reach = sorted({math.sqrt(4.0 * d * t_s) for d in d0})
+        reach_text = (f"{reach[0]:.2f} m" if len(reach) == 1 or reach[-1] - reach[0] < 0.005
+                      else f"{reach[0]:.2f}-{reach[-1]:.2f} m") if reach else "a short way"
+        depth_text = (f"{min(depth):.2g}-{max(depth):.2g} m" if depth and max(depth) > min(depth)
+                      else f"{depth[0]:.2g} m" if depth else "the soil depth")
+        start = (f"the steady water table of {c['antecedent_mm_per_day']:g} mm/day of background "
+                 f"recharge, less than the {wetter['steady_mm_per_day']:g} mm/day of “"
+                 f"{wetter['name']}”" if c.get("antecedent_mm_per_day") is not None else
+                 f"a water table {c['water_table_depth_m']:g} m below the surface everywhere")
+        i_m_per_day = c["storm_mm_per_h"] * 24.0 / 1000.0
+        ratios = sorted({min(i_m_per_day, kk) / kk for kk in k})
+        ratio_text = "" if not ratios else (
+            "; the rise scales with the storm's intensity over the saturated conductivity, here "
+            + (f"I/K = {ratios[0]:.2g}" if ratios[-1] - ratios[0] < 0.005
+               else f"I/K = {ratios[0]:.2g}-{ratios[-1]:.2g}") + " (1 at most: rain beyond K runs off)")
+        out.append(
+            f"the storm “{c['name']}” fails {_pct(f['fail_share'])} of the computed area, less "
+            f"than the steady case “{wetter['name']}” "
+            f"({_pct(facts_by_case[wetter['name']]['fail_share'])}). That is what the model "
+            "predicts, not an error: a steady case is the water table a long wet spell builds "
+            "from the whole catchment upslope, while a storm adds only the pressure that "
+            f"diffuses down from the surface: in its {c['duration_h']:g} h it reaches about "
+            f"√(4 D₀ T) = {reach_text} at the soils' diffusivity (soil depths {depth_text})"
+            f"{ratio_text}; and it starts from {start} (Iverson 2000; docs/methods.md, “Storm "
+            "response (Iverson 2000)”). A longer or more intense storm, a wetter start or a "
+            "more diffusive soil brings the storm closer to the steady case.")
+    return " ".join(s[0].upper() + s[1:] for s in out)
 
 
 def _num(v) -> str:

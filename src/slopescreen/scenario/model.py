@@ -89,6 +89,10 @@ class RainCase:
     duration_h: float | None = None
     water_table_depth_m: float | None = None
     antecedent_mm_per_day: float | None = None
+    return_period_years: float | None = None
+    """Return period the case stands for, years (shown in the report; not used in the model)."""
+    source: str | None = None
+    """Where the case comes from (a design-storm table, a forecast, a record), in words."""
 
     @property
     def is_storm(self) -> bool:
@@ -99,6 +103,27 @@ class RainCase:
     def slug(self) -> str:
         """File-name-safe form of the case name (lower case, ``-`` separated)."""
         return slugify(self.name)
+
+
+@dataclass(frozen=True)
+class Project:
+    """``[project]``: who the screening is for and by, for the report's memo block.
+
+    Every field is optional text (``data_date`` may also be a TOML date); none
+    changes a computed number.
+    """
+
+    name: str | None = None
+    number: str | None = None
+    prepared_by: str | None = None
+    checked_by: str | None = None
+    data_date: _dt.date | str | None = None
+    notes: str | None = None
+
+    def record(self) -> dict:
+        """The fields given, for ``manifest.json`` (a date as ISO 8601 text)."""
+        return {k: (v.isoformat() if isinstance(v, _dt.date) else v)
+                for k, v in vars(self).items() if v is not None}
 
 
 @dataclass(frozen=True)
@@ -229,6 +254,7 @@ class Scenario:
     runout: Runout | None = None
     corridor: Corridor | None = None
     inventory: Inventory | None = None
+    project: Project | None = None
     dem_date: _dt.date | None = None
     extra: dict = field(default_factory=dict)
 

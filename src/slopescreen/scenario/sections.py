@@ -2,12 +2,14 @@
 
 from __future__ import annotations
 
+import datetime as _dt
 from pathlib import Path
 from typing import Any, Callable
 
 from .fields import (
     SOIL_PROPERTIES,
     Ctx,
+    _describe,
     check_keys,
     get_bool,
     get_crs,
@@ -27,6 +29,7 @@ from .model import (
     Clusters,
     Corridor,
     Inventory,
+    Project,
     RainCase,
     Routing,
     Runout,
@@ -99,7 +102,11 @@ def _parse_rain(table, ctx: Ctx, base: Path):
     for i, item in enumerate(table):
         c = ctx.child(i)
         check_keys(item, c, {"name", "steady_mm_per_day", "storm_mm_per_h", "duration_h",
-                             "water_table_depth_m", "antecedent_mm_per_day"}, required=("name",))
+                             "water_table_depth_m", "antecedent_mm_per_day",
+                             "return_period_years", "source"}, required=("name",))
+        about = {"return_period_years": get_number(item, "return_period_years", c, low=0.0,
+                                                   high=1.0e6, low_open=True),
+                 "source": get_string(item, "source", c)}
         name = get_string(item, "name", c, required=True)
         if name in names:
             raise c.child("name").fail(f"rain case name {name!r} is used twice; names must differ")
@@ -116,7 +123,7 @@ def _parse_rain(table, ctx: Ctx, base: Path):
             for key in ("duration_h", "water_table_depth_m", "antecedent_mm_per_day"):
                 if key in item:
                     raise c.child(key).fail("applies only to a storm case (storm_mm_per_h)")
-            cases.append(RainCase(name=name, steady_mm_per_day=steady))
+            cases.append(RainCase(name=name, steady_mm_per_day=steady, **about))
         else:
             # at least 36 s: a storm time t / (Z^2 / 4 D0) must stay a 32-bit float
             duration = get_number(item, "duration_h", c, low=0.01, high=24.0 * 30, required=True)
@@ -130,7 +137,8 @@ def _parse_rain(table, ctx: Ctx, base: Path):
             table_depth = get_number(item, "water_table_depth_m", c, low=0.0, high=20.0)
             ante = get_number(item, "antecedent_mm_per_day", c, low=0.0, high=5000.0)
             cases.append(RainCase(name=name, storm_mm_per_h=storm, duration_h=duration,
-                                  water_table_depth_m=table_depth, antecedent_mm_per_day=ante))
+                                  water_table_depth_m=table_depth, antecedent_mm_per_day=ante,
+                                  **about))
     slugs = [r.slug for r in cases]
     if len(set(slugs)) != len(slugs):
         raise ctx.fail("two rain case names give the same file name; make them differ in letters or digits")
@@ -243,6 +251,29 @@ def _parse_inventory(table, ctx: Ctx, base: Path):
         date=get_date(table, "date", ctx))}
 
 
+def _parse_project(table, ctx: Ctx, base: Path):
+    if not isinstance(table, dict):
+        raise ctx.fail("expected a table [project] of texts (name, number, prepared_by, "
+                       "checked_by, data_date, notes)")
+    keys = ("name", "number", "prepared_by", "checked_by", "data_date", "notes")
+    check_keys(table, ctx, set(keys))
+    values = {}
+    for key in keys:
+        v = table.get(key)
+        if key == "number" and isinstance(v, int) and not isinstance(v, bool):
+            v = str(v)                                  # a project number written bare
+        if key == "data_date" and isinstance(v, _dt.date) and not isinstance(v, _dt.datetime):
+            values[key] = v
+            continue
+        if v is not None and not isinstance(v, str):
+            raise ctx.child(key).fail(
+                f"expected text{' or a date' if key == 'data_date' else ''}, got {_describe(v)}")
+        if v is not None and not v.strip():
+            raise ctx.child(key).fail("is empty; leave the key out instead")
+        values[key] = v
+    return {"project": Project(**values)}
+
+
 SECTION_PARSERS: dict[str, Callable[[Any, Ctx, Path], dict]] = {
     "routing": _parse_routing,
     "soil": _parse_soil,
@@ -252,6 +283,7 @@ SECTION_PARSERS: dict[str, Callable[[Any, Ctx, Path], dict]] = {
     "runout": _parse_runout,
     "corridor": _parse_corridor,
     "inventory": _parse_inventory,
+    "project": _parse_project,
 }
 """Parser of each optional section. A parser takes (value, context, scenario
 folder) and returns keyword arguments for :class:`Scenario`."""
