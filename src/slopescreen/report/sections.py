@@ -191,7 +191,7 @@ def _recharge_section(ctx, dist):
                         [[labels[c], format_area(a), _pct(s)] for c, a, s in dist["classes"]],
                         [False, True, True]))
     if dist["percentiles"]:
-        blocks.append(table("Critical recharge where a rate applies (mm/day)",
+        blocks.append(table("Steady rain needed to fail, where a rate applies (mm/day)",
                             ["percentile", "critical recharge (mm/day)"],
                             [[f"{p}th", f"{v:.3g}"] for p, v in dist["percentiles"]], [False, True]))
     if dist["rates"]:
@@ -202,7 +202,7 @@ def _recharge_section(ctx, dist):
     m = ctx.map_of("critical_recharge")
     if m is not None:
         blocks.append(figure(m.png, _map_alt(q_e), _map_caption(ctx, q_e)))
-    return Section("recharge", "Critical recharge", blocks)
+    return Section("recharge", "Steady rain needed to fail (critical recharge)", blocks)
 
 
 def _terrain_section(ctx, percentiles):
