@@ -59,10 +59,12 @@ class Emit:
 
 @dataclass(frozen=True)
 class Written:
-    """What the writer has written so far: manifest entries and map previews."""
+    """What the writer has written so far: manifest entries, map previews and the copies of
+    the interactive map (``(key, rain) ->`` :class:`~slopescreen.report.explorer.ExplorerCopy`)."""
 
     products: tuple
     previews: MappingProxyType
+    explorer: Any = _empty()
 
     def entries(self) -> list[dict]:
         """Manifest entries of the products written so far."""
@@ -335,6 +337,18 @@ class ReportResult:
 
     def products(self):
         return (Emit("report", self.html),)
+
+
+@dataclass(frozen=True)
+class ExplorerExtras:
+    """Copies for the interactive map of what is no product (the soil unit per cell, with the
+    units' labels in index order)."""
+
+    copies: MappingProxyType
+    labels: tuple = ()
+
+    def products(self):
+        return ()
 
 
 @dataclass(frozen=True)

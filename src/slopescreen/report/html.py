@@ -2,7 +2,10 @@
 
 :func:`render_report` turns a run's manifest, its product rasters and its
 maps into one HTML file: images are embedded as base64 data URIs, the CSS is
-inline, there is no script and nothing is fetched from the network. Every
+inline and nothing is fetched from the network. The one script is our own
+pan-and-zoom map (``templates/explorer.js``, inlined, with its layers as JSON
+in the page: :mod:`slopescreen.report.explorer_layers`); a report without
+map data has no script. Every
 string is escaped by the template engine (jinja2 with autoescape on), so a
 title or a label holding markup is shown as text.
 
@@ -68,8 +71,9 @@ def render_report(ctx: ReportContext) -> str:
     Returns
     -------
     str
-        HTML5 text (UTF-8 when written). Images are data URIs; no script,
-        no external resource.
+        HTML5 text (UTF-8 when written). Images are data URIs; no external
+        resource. With ``ctx.explorer`` the page holds the interactive map's
+        script and data (inline); without, no script.
 
     Notes
     -----
@@ -105,9 +109,31 @@ def render_report(ctx: ReportContext) -> str:
     body.extend([_inputs_section(ctx), _methods_section(ctx), _products_section(ctx),
                  _provenance_section(ctx)])
     toc = [(s.id, s.title, s.level) for s in [glance] + body]
+    if ctx.explorer:
+        toc.insert(1, ("explorer", "Pan-and-zoom map", 2))
     m = ctx.manifest
     template = _environment().get_template("report.html.j2")
     created = str(m.get("created", "")).replace("T", " ").replace("+00:00", " UTC")
     return template.render(title=m.get("title") or "slopescreen run", manifest=m, short=SHORT,
                            cautions=tuple(m.get("cautions") or CAUTIONS), glance=glance, sections=body, toc=toc,
-                           created=created, version=m.get("version", ""))
+                           created=created, version=m.get("version", ""),
+                           explorer=ctx.explorer, explorer_js=_explorer_script() if ctx.explorer else "")
+
+
+def _explorer_script():
+    """The interactive map's script (our own file in the package), safe to inline.
+
+    Returns
+    -------
+    markupsafe.Markup
+        The script text; it never holds ``</`` (checked), so it cannot close
+        its ``<script>`` element.
+    """
+    from importlib.resources import files
+
+    from markupsafe import Markup
+
+    text = files("slopescreen.report").joinpath("templates", "explorer.js").read_text("utf-8")
+    if "</" in text or "<!--" in text:
+        raise ValueError("explorer.js must not hold '</' or '<!--' (it is inlined in a <script>)")
+    return Markup(text)

@@ -1,0 +1,248 @@
+"""The layers, styles and overlays of the report's pan-and-zoom map, as data for the page.
+
+:func:`explorer_data` gathers what ``templates/explorer.js`` draws: the
+hillshade base, one layer per mapped product and rain case (the run's
+writer made its quantised copy, :mod:`slopescreen.report.explorer`), the
+arrays a click reads (FS, probability of failure, soil unit, slope, cluster
+id, corridor segment), and the line overlays (centreline, mapped landslides,
+corridor segment strips, runout paths reaching the corridor, failing
+cluster outlines). Colours, band labels and legend entries come from the
+styles of the product registry (:mod:`slopescreen.report.styles`,
+:func:`slopescreen.report.map_layers.legend_entries`), so the interactive map
+and the PNG maps read the same.
+"""
+
+from __future__ import annotations
+
+import base64
+import math
+
+import numpy as np
+
+from ..products import STYLES, spec
+from .cautions import SHORT
+from .explorer import QUANTISERS, ExplorerCopy, block_factor, decimate, rule_words, shade_png
+from .map_layers import (
+    BAND_ALPHA, DRY_ALPHA, MAP_BACKGROUND, NO_VALUE_ALPHA, OUTLINE_COLOUR, SHADE_FLOOR,
+    legend_entries,
+)
+from .map_parts import crs_label, hillshade
+from .styles import FS_BANDS, NO_VALUE_COLOUR
+
+__all__ = ["explorer_data", "ramp_lut", "SEGMENT_STRIP"]
+
+SEGMENT_STRIP = {"label": "corridor segment strip", "colour": "#5c3d8a", "width": 1.0}
+"""How the outlines of the corridor segment strips look on the interactive map."""
+
+OUTLINED = ("factor_of_safety", "failure_probability", "cluster_fs_bound")
+"""Layers whose PNG maps carry the failure cluster outlines."""
+
+
+def ramp_lut(style) -> str:
+    """The 256 colours of a ramp style as one hex string (``rrggbb`` each), low to high.
+
+    Examples
+    --------
+    >>> from slopescreen.report.styles import SLOPE_STYLE
+    >>> lut = ramp_lut(SLOPE_STYLE)
+    >>> len(lut), lut[:6]
+    (1536, 'f6f1e4')
+    """
+    rgba = style.cmap()(np.arange(256))
+    rgb = np.rint(np.asarray(rgba)[:, :3] * 255.0).astype(np.uint8)
+    return rgb.tobytes().hex()
+
+
+def _style_of(key: str, outlined: bool) -> dict:
+    style = STYLES[key]
+    q = QUANTISERS[key]
+    out = {"kind": style.kind, "label": style.label, "alpha": style.alpha,
+           "legend": legend_entries(style, True if outlined else None, (), True)}
+    if style.kind == "bands":
+        out["bands"] = [{"code": None if not math.isfinite(upper)
+                         else 1 + int(round((upper - q.lo) / q.step)),
+                         "colour": colour, "label": label} for upper, label, colour in FS_BANDS]
+        out["alpha"] = BAND_ALPHA
+    else:
+        out.update(lut=ramp_lut(style), vmin=style.vmin, vmax=style.vmax, log=style.log,
+                   below=style.transparent_below)
+    if style.kind == "recharge":
+        out["dry"] = {"colour": FS_BANDS[0][2], "alpha": DRY_ALPHA}
+    return out
+
+
+def _to_cells(x, y, left, top, cx, cy) -> list:
+    """CRS coordinates as flat [col, row, col, row, ...] of the embedded grid (0.01 cell)."""
+    cols = (np.asarray(x, dtype=np.float64) - left) / cx
+    rows = (top - np.asarray(y, dtype=np.float64)) / cy
+    return np.round(np.stack([cols, rows], 1).reshape(-1), 2).tolist()
+
+
+def _segment_copy(segments, shape, k) -> ExplorerCopy:
+    """The corridor segment index per embedded cell (the first segment of the block's cells)."""
+    from .explorer import pack_png
+
+    rows, cols = shape
+    out_c = -(-cols // k)
+    out_r = -(-rows // k)
+    r, c = np.divmod(np.asarray(segments.cell, dtype=np.int64), cols)
+    block = (r // k) * out_c + c // k
+    seg = np.full(out_r * out_c, np.iinfo(np.int64).max, dtype=np.int64)
+    np.minimum.at(seg, block, np.asarray(segments.segment, dtype=np.int64))
+    values = np.where(seg == np.iinfo(np.int64).max, np.nan, seg).reshape(out_r, out_c)
+    codes = QUANTISERS["corridor_segment"].encode(values)
+    return ExplorerCopy("corridor_segment", (out_r, out_c), int(k), pack_png(codes))
+
+
+def _line_overlays(lines, left, top, cx, cy, rain=None, suffix="") -> list:
+    """Lines grouped by label into overlays."""
+    groups: dict = {}
+    for line in lines:
+        label = line.get("label", "line")
+        g = groups.setdefault(label, {"kind": "lines", "label": label + suffix,
+                                      "colour": line.get("colour", "#1b1b1b"),
+                                      "width": line.get("width", 2.0), "rain": rain, "paths": []})
+        g["paths"].append(_to_cells(line["x"], line["y"], left, top, cx, cy))
+    return list(groups.values())
+
+
+def _strip_lines(segments) -> list:
+    import shapely
+
+    out = []
+    for strip in segments.strips:
+        for poly in getattr(strip, "geoms", [strip]):
+            if poly.is_empty:
+                continue
+            for ring in [poly.exterior, *poly.interiors]:
+                xy = shapely.get_coordinates(ring)
+                out.append(SEGMENT_STRIP | {"x": xy[:, 0], "y": xy[:, 1]})
+    return out
+
+
+def explorer_data(written, grid, z, *, rains=(), soil=None, soil_labels=(), lines=(),
+                  paths=None, segments=None, title="") -> dict | None:
+    """The data of the report's pan-and-zoom map, or None when no mapped product was copied.
+
+    Parameters
+    ----------
+    written : slopescreen.pipeline.results.Written
+        What the writer wrote, with its explorer copies.
+    grid : slopescreen.grid.Grid
+    z : numpy.ndarray
+        The DEM (m; NaN nodata), for the hillshade.
+    rains : sequence of str
+        Rain-case names in scenario order.
+    soil : ExplorerCopy, optional
+        The soil unit index per embedded cell.
+    soil_labels : sequence of str
+        Unit labels in index order.
+    lines : sequence of dict
+        Lines on every map (centreline, mapped landslides), as the PNG maps take them.
+    paths : dict, optional
+        ``("runout_count", rain) -> lines``: the runout paths reaching the corridor.
+    segments : slopescreen.corridor.segments.Segments, optional
+    title : str
+        Study title.
+
+    Returns
+    -------
+    dict or None
+        JSON-ready: ``grid``, ``shade``, ``arrays`` (id -> packed codes and
+        their quantiser), ``layers``, ``values``, ``overlays``, ``caution``
+        and the notes the page shows.
+    """
+    copies = written.explorer
+    entries = [p for p in written.entries()
+               if p["kind"] == "raster" and p["key"] in STYLES and (p["key"], p["rain"]) in copies]
+    if not entries:
+        return None
+    k = block_factor(grid.shape)
+    rows, cols = grid.shape
+    t = grid.transform
+    left, top, cx, cy = float(t.c), float(t.f), float(t.a) * k, float(-t.e) * k
+    arrays: dict = {}
+    ids: dict = {}
+
+    def add(copy, name) -> str:
+        aid = f"a{len(arrays)}"
+        arrays[aid] = copy.as_dict()
+        ids[name] = aid
+        return aid
+
+    shape = None
+    for (key, rain) in copies:
+        copy = copies[(key, rain)]
+        shape = copy.shape
+        add(copy, (key, rain))
+    layers = []
+    for p in entries:
+        key, rain = p["key"], p["rain"]
+        entry = spec(key)
+        outlined = key in OUTLINED and ("cluster_labels", rain) in ids
+        layer = {"id": ids[(key, rain)], "key": key, "rain": rain,
+                 "title": entry.title + (f": {rain}" if rain else ""),
+                 "group": rain or "Terrain and recharge", "units": p["units"],
+                 "file": p["path"], "style": _style_of(key, outlined),
+                 "outline": ids.get(("cluster_labels", rain)) if outlined else None,
+                 "classes": ids.get(("critical_recharge_class", None))
+                 if key == "critical_recharge" else None}
+        layers.append(layer)
+    values = {"fs": {r: ids[("factor_of_safety", r)] for r in rains
+                     if ("factor_of_safety", r) in ids},
+              "pf": {r: ids[("failure_probability", r)] for r in rains
+                     if ("failure_probability", r) in ids},
+              "bound": {r: ids[("cluster_fs_bound", r)] for r in rains
+                        if ("cluster_fs_bound", r) in ids},
+              "cluster": {r: ids[("cluster_labels", r)] for r in rains
+                          if ("cluster_labels", r) in ids},
+              "slope": ids.get(("slope", None)), "soil": None, "segment": None}
+    if soil is not None:
+        values["soil"] = add(soil, "soil")
+    overlays = []
+    if segments is not None:
+        values["segment"] = add(_segment_copy(segments, grid.shape, k), "segment")
+        overlays += _line_overlays(_strip_lines(segments), left, top, cx, cy)
+    centre = [ln for ln in lines if ln.get("label") != "mapped landslide"]
+    slides = [ln for ln in lines if ln.get("label") == "mapped landslide"]
+    overlays = _line_overlays(centre, left, top, cx, cy) + overlays
+    overlays += _line_overlays(slides, left, top, cx, cy)
+    for (key, rain), found in sorted((paths or {}).items(), key=lambda kv: str(kv[0][1])):
+        overlays += _line_overlays(found, left, top, cx, cy, rain=rain, suffix=f": {rain}")
+    for r in rains:
+        if ("cluster_labels", r) in ids:
+            overlays.append({"kind": "outline", "label": f"failure cluster outline: {r}",
+                             "colour": OUTLINE_COLOUR, "width": 1.2, "rain": r,
+                             "array": ids[("cluster_labels", r)]})
+    zs = decimate(z, k, "mean") if k > 1 else np.asarray(z, dtype=np.float32)
+    shade = hillshade(zs, grid.dx_m * k, grid.dy_m * k) if np.isfinite(zs).any() else zs
+    rounding = {"fs": QUANTISERS["factor_of_safety"].rounding,
+                "pf": QUANTISERS["failure_probability"].rounding,
+                "slope": QUANTISERS["slope"].rounding}
+    cell_m = cx * grid.linear_unit_m
+    decimation = None
+    if k > 1:
+        decimation = (
+            f"Values are at the displayed resolution: each map cell is a block of {k} x {k} grid "
+            f"cells ({cell_m:g} m), holding the least factor of safety, cluster FS bound and "
+            "critical recharge of the block, the largest probability of failure and runout "
+            "count, the worst critical-recharge class, the most common soil unit and the mean "
+            "slope, wetness and specific catchment area. For full detail open the GeoTIFF "
+            "products (factor_of_safety_*.tif and the others) in a GIS.")
+    return {
+        "version": 1, "title": title, "caution": SHORT,
+        "grid": {"rows": int(shape[0]), "cols": int(shape[1]), "k": int(k),
+                 "full_rows": int(rows), "full_cols": int(cols), "left": left, "top": top,
+                 "cell_x": cx, "cell_y": cy, "unit_m": float(grid.linear_unit_m),
+                 "crs": crs_label(grid.crs)},
+        "base": {"background": MAP_BACKGROUND, "floor": SHADE_FLOOR,
+                 "no_value": {"colour": NO_VALUE_COLOUR, "alpha": NO_VALUE_ALPHA}},
+        "shade": base64.b64encode(shade_png(shade)).decode("ascii"),
+        "arrays": arrays, "layers": layers, "values": values, "overlays": overlays,
+        "soil_labels": list(soil_labels),
+        "segments": None if segments is None else {
+            "from_m": np.round(np.asarray(segments.from_m, dtype=np.float64), 1).tolist(),
+            "to_m": np.round(np.asarray(segments.to_m, dtype=np.float64), 1).tolist()},
+        "rounding": rounding, "decimation": decimation,
+        "rules": {key: rule_words(key) for key in QUANTISERS},
+    }
