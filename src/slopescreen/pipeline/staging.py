@@ -74,6 +74,8 @@ class _Writer:
         self.explorer_step = explorer_step
         self._explorer: dict[tuple, object] = {}
         self._pool = ThreadPoolExecutor(max_workers=1, thread_name_prefix="slopescreen-writer")
+        # the explorer copies on a thread of their own, beside GDAL's compression
+        self._copier = ThreadPoolExecutor(max_workers=1, thread_name_prefix="slopescreen-copier")
         self._pending: list = []
 
     def write(self, emit) -> Product:
@@ -115,7 +117,7 @@ class _Writer:
             from ..report.explorer import explorer_copy
 
             rain = None if emit.rain is None else emit.rain.name
-            future = self._pool.submit(explorer_copy, entry.key, data, self.explorer_step)
+            future = self._copier.submit(explorer_copy, entry.key, data, self.explorer_step)
             self._explorer[(entry.key, rain)] = future
             self._pending.append(future)
             while len(self._pending) >= MAX_PENDING:
@@ -135,6 +137,7 @@ class _Writer:
         for future in self._pending:
             future.cancel()
         self._pool.shutdown(wait=True)
+        self._copier.shutdown(wait=True)
         self._pending.clear()
 
     def snapshot(self):

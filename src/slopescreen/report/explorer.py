@@ -17,9 +17,9 @@ from compact copies embedded in the page, made here:
   stays in the GeoTIFF products.
 * **Quantisation.** Each copy is held as integer codes (0 = no value) of a
   :class:`Quantiser`: FS truncated to 0.01 (never above the computed value,
-  and in the same screening band), probabilities and wetness rounded to
-  0.001, slope to 0.1 degree, critical recharge and specific catchment area
-  to within 0.05 % (a logarithmic step), counts and ids exactly.
+  and in the same screening band), probabilities rounded to 0.001, wetness
+  to 0.01, slope to 0.1 degree, critical recharge and specific catchment
+  area to within 0.5 % (a logarithmic step), counts and ids exactly.
 * **Packing.** The codes are packed into the red, green and blue bytes of a
   lossless RGB PNG (:func:`pack_png`), which the page decodes with canvas
   ``getImageData``; PNG's row filters and deflate make smooth fields small.
@@ -46,11 +46,15 @@ from .styles import FS_BANDS, at_least
 
 __all__ = [
     "MAX_CELLS", "RULES", "QUANTISERS", "Quantiser", "ExplorerCopy", "block_factor",
-    "decimate", "explorer_copy", "pack_png", "unpack_png", "rule_words",
+    "decimate", "explorer_copy", "coarser", "encode_rows", "pack_png", "unpack_png", "rule_words",
 ]
 
 MAX_CELLS = 4_000_000
 """Most cells of one embedded layer; a larger grid is reduced by blocks (:func:`block_factor`)."""
+
+PNG_LEVEL = 1
+"""zlib level of the packed PNGs: on a 2000 x 2000 slope layer level 1 takes 0.3 s and is 5 %
+larger than level 6, which takes 2.0 s (docs/performance.md)."""
 
 STRIP_CELLS = 4_000_000
 """Grid cells reduced at once (bounds the temporaries of :func:`decimate`)."""
@@ -247,13 +251,13 @@ _FS_BOUNDS = tuple(upper for upper, _label, _colour in FS_BANDS if math.isfinite
 _FS = Quantiser(0.01, floor=True, decimals=2, thresholds=_FS_BOUNDS,
                 rounding="truncated to 0.01 (never above the computed value)")
 _P = Quantiser(0.001, decimals=3, rounding="rounded to 0.001")
-_LOG = Quantiser(0.0004, lo=-8.0, log=True, decimals=3,
-                 rounding="to within 0.05 % (3 significant figures)")
+_LOG = Quantiser(0.004, lo=-8.0, log=True, decimals=3,
+                 rounding="to within 0.5 % (a logarithmic step)")
 _COUNT = Quantiser(1.0, decimals=0, rounding="exact")
 
 QUANTISERS = {
     "factor_of_safety": _FS, "cluster_fs_bound": _FS, "failure_probability": _P,
-    "wetness": _P, "slope": Quantiser(0.1, decimals=1, rounding="rounded to 0.1 degree"),
+    "wetness": Quantiser(0.01, decimals=2, rounding="rounded to 0.01"), "slope": Quantiser(0.1, decimals=1, rounding="rounded to 0.1 degree"),
     "critical_recharge": _LOG, "specific_catchment_area": _LOG, "runout_count": _COUNT,
     "critical_recharge_class": _COUNT, "cluster_labels": _COUNT, "soil_unit": _COUNT,
     "corridor_segment": _COUNT,
@@ -284,7 +288,7 @@ def pack_png(codes) -> bytes:
     rgb[..., 1] = (c >> 8) & 0xFF
     rgb[..., 2] = (c >> 16) & 0xFF
     buf = io.BytesIO()
-    Image.fromarray(rgb, mode="RGB").save(buf, format="png", compress_level=6)
+    Image.fromarray(rgb, mode="RGB").save(buf, format="png", compress_level=PNG_LEVEL)
     return buf.getvalue()
 
 
@@ -303,7 +307,7 @@ def shade_png(shade) -> bytes:
     s = np.asarray(shade, dtype=np.float32)
     grey = np.where(np.isnan(s), 0, 1 + np.rint(np.clip(s, 0.0, 1.0) * 254.0)).astype(np.uint8)
     buf = io.BytesIO()
-    Image.fromarray(grey, mode="L").save(buf, format="png", compress_level=6)
+    Image.fromarray(grey, mode="L").save(buf, format="png", compress_level=PNG_LEVEL)
     return buf.getvalue()
 
 
@@ -342,6 +346,7 @@ class ExplorerCopy:
 
     def as_dict(self) -> dict:
         return {"key": self.key, "rule": rule_words(self.key) if self.k > 1 else "",
+                "rows": int(self.shape[0]), "cols": int(self.shape[1]), "k": int(self.k),
                 "q": self.quantiser.as_dict(),
                 "png": base64.b64encode(self.png).decode("ascii")}
 
@@ -384,9 +389,46 @@ def explorer_copy(key: str, data, k: int) -> ExplorerCopy:
             reduced = _decimate_ints(a, k, rule, key)
     else:
         reduced = decimate(a, k, rule) if k > 1 else a.astype(np.float32, copy=False)
-    codes = QUANTISERS[key].encode(reduced)
+    codes = encode_rows(QUANTISERS[key], reduced)
     del reduced
     return ExplorerCopy(key, tuple(codes.shape), int(k), pack_png(codes))
+
+
+def encode_rows(q: Quantiser, values, *, rows_at_once: int = 256) -> np.ndarray:
+    """:meth:`Quantiser.encode` of a grid a few rows at a time (bounds the float64 temporaries)."""
+    v = np.asarray(values)
+    out = np.empty(v.shape, dtype=np.uint32)
+    for r0 in range(0, v.shape[0], rows_at_once):
+        out[r0:r0 + rows_at_once] = q.encode(v[r0:r0 + rows_at_once])
+    return out
+
+
+def coarser(copy: ExplorerCopy) -> ExplorerCopy:
+    """The next level of the pyramid: a copy reduced by 2 x 2 blocks of its own cells.
+
+    Least and largest values compose exactly (the block of 2k cells gets the
+    same value as a direct reduction); a mean is the mean of the four block
+    means, which equals the direct mean where every block is full. Codes of
+    ids and soil units keep the most common code.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> fs = np.arange(16, dtype=np.float32).reshape(4, 4) / 10
+    >>> coarser(explorer_copy("factor_of_safety", fs, 1)).values().tolist()
+    [[0.0, 0.2], [0.8, 1.0]]
+    """
+    q = copy.quantiser
+    rule = RULES[copy.key]
+    codes = copy.codes()
+    if rule == "mean":
+        codes = encode_rows(q, decimate(q.decode(codes).astype(np.float32), 2, "mean"))
+    else:                   # codes order as the values do (below 2**24: exact in float32)
+        as_float = np.where(codes > 0, codes, np.nan).astype(np.float32)
+        reduced = decimate(as_float, 2, rule) if rule != "mode" else \
+            decimate(np.where(codes > 0, codes, 0).astype(np.int64) - 1, 2, "mode") + 1.0
+        codes = np.where(np.isfinite(reduced) & (reduced > 0), reduced, 0).astype(np.uint32)
+    return ExplorerCopy(copy.key, tuple(codes.shape), copy.k * 2, pack_png(codes))
 
 
 def _decimate_ints(a, k, rule, key):

@@ -21,7 +21,9 @@ import numpy as np
 
 from ..products import STYLES, spec
 from .cautions import SHORT
-from .explorer import QUANTISERS, ExplorerCopy, block_factor, decimate, rule_words, shade_png
+from .explorer import (
+    QUANTISERS, ExplorerCopy, block_factor, coarser, decimate, rule_words, shade_png,
+)
 from .map_layers import (
     BAND_ALPHA, DRY_ALPHA, MAP_BACKGROUND, NO_VALUE_ALPHA, OUTLINE_COLOUR, SHADE_FLOOR,
     legend_entries,
@@ -29,13 +31,73 @@ from .map_layers import (
 from .map_parts import crs_label, hillshade
 from .styles import FS_BANDS, NO_VALUE_COLOUR
 
-__all__ = ["explorer_data", "ramp_lut", "SEGMENT_STRIP"]
+__all__ = ["explorer_data", "ramp_lut", "within_budget", "SEGMENT_STRIP", "MAP_BUDGET_BYTES",
+           "COARSENED_FIRST"]
 
 SEGMENT_STRIP = {"label": "corridor segment strip", "colour": "#5c3d8a", "width": 1.0}
 """How the outlines of the corridor segment strips look on the interactive map."""
 
 OUTLINED = ("factor_of_safety", "failure_probability", "cluster_fs_bound")
 """Layers whose PNG maps carry the failure cluster outlines."""
+
+MAP_BUDGET_BYTES = 24_000_000
+"""Most bytes of the map's data in the page (the report's other parts come on top)."""
+
+COARSENED_FIRST = (("specific_catchment_area", "wetness", "slope"),
+                   ("critical_recharge", "critical_recharge_class"),
+                   ("factor_of_safety", "failure_probability", "cluster_fs_bound", "runout_count"))
+"""Which layers go to a coarser level of the pyramid first when the map exceeds its budget:
+the descriptive layers, then the critical recharge with its classes, the hazard layers last,
+each group at most two levels (4 x 4 of its cells) before the next is touched. Ids, soil
+units and segments are small and stay at the finest level."""
+
+
+def _b64_size(copy) -> int:
+    return 4 * -(-len(copy.png) // 3)
+
+
+def within_budget(copies: dict, other_bytes: int, budget: int = MAP_BUDGET_BYTES) -> dict:
+    """Copies, some taken to coarser levels of the pyramid, whose base64 fits ``budget``.
+
+    Parameters
+    ----------
+    copies : dict
+        Name -> :class:`~slopescreen.report.explorer.ExplorerCopy`.
+    other_bytes : int
+        Bytes of the rest of the map's data (hillshade, lines).
+    budget : int
+
+    Returns
+    -------
+    dict
+        The same names; a layer of a group of :data:`COARSENED_FIRST` reduced by 2 x 2
+        blocks per level (:func:`~slopescreen.report.explorer.coarser`) until the total
+        fits or every group has gone as far as it may.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> from slopescreen.report.explorer import explorer_copy
+    >>> rng = np.random.default_rng(0)
+    >>> c = {"s": explorer_copy("slope", rng.random((64, 64)) * 60, 1),
+    ...      "f": explorer_copy("factor_of_safety", rng.random((64, 64)) * 3, 1)}
+    >>> small = within_budget(c, 0, budget=9000)
+    >>> small["s"].k, small["f"].k
+    (2, 1)
+    """
+    out = dict(copies)
+
+    def total():
+        return other_bytes + sum(_b64_size(c) for c in out.values())
+
+    for group in COARSENED_FIRST:
+        for _level in range(2):
+            if total() <= budget:
+                return out
+            names = [n for n, c in out.items() if c.key in group and min(c.shape) > 1]
+            for n in names:
+                out[n] = coarser(out[n])
+    return out
 
 
 def ramp_lut(style) -> str:
@@ -152,6 +214,8 @@ def explorer_data(written, grid, z, *, rains=(), soil=None, soil_labels=(), line
         their quantiser), ``layers``, ``values``, ``overlays``, ``caution``
         and the notes the page shows.
     """
+    import json
+
     copies = written.explorer
     entries = [p for p in written.entries()
                if p["kind"] == "raster" and p["key"] in STYLES and (p["key"], p["rain"]) in copies]
@@ -161,88 +225,84 @@ def explorer_data(written, grid, z, *, rains=(), soil=None, soil_labels=(), line
     rows, cols = grid.shape
     t = grid.transform
     left, top, cx, cy = float(t.c), float(t.f), float(t.a) * k, float(-t.e) * k
-    arrays: dict = {}
-    ids: dict = {}
-
-    def add(copy, name) -> str:
-        aid = f"a{len(arrays)}"
-        arrays[aid] = copy.as_dict()
-        ids[name] = aid
-        return aid
-
-    shape = None
-    for (key, rain) in copies:
-        copy = copies[(key, rain)]
-        shape = copy.shape
-        add(copy, (key, rain))
-    layers = []
-    for p in entries:
-        key, rain = p["key"], p["rain"]
-        entry = spec(key)
-        outlined = key in OUTLINED and ("cluster_labels", rain) in ids
-        layer = {"id": ids[(key, rain)], "key": key, "rain": rain,
-                 "title": entry.title + (f": {rain}" if rain else ""),
-                 "group": rain or "Terrain and recharge", "units": p["units"],
-                 "file": p["path"], "style": _style_of(key, outlined),
-                 "outline": ids.get(("cluster_labels", rain)) if outlined else None,
-                 "classes": ids.get(("critical_recharge_class", None))
-                 if key == "critical_recharge" else None}
-        layers.append(layer)
-    values = {"fs": {r: ids[("factor_of_safety", r)] for r in rains
-                     if ("factor_of_safety", r) in ids},
-              "pf": {r: ids[("failure_probability", r)] for r in rains
-                     if ("failure_probability", r) in ids},
-              "bound": {r: ids[("cluster_fs_bound", r)] for r in rains
-                        if ("cluster_fs_bound", r) in ids},
-              "cluster": {r: ids[("cluster_labels", r)] for r in rains
-                          if ("cluster_labels", r) in ids},
-              "slope": ids.get(("slope", None)), "soil": None, "segment": None}
-    if soil is not None:
-        values["soil"] = add(soil, "soil")
     overlays = []
     if segments is not None:
-        values["segment"] = add(_segment_copy(segments, grid.shape, k), "segment")
         overlays += _line_overlays(_strip_lines(segments), left, top, cx, cy)
     centre = [ln for ln in lines if ln.get("label") != "mapped landslide"]
     slides = [ln for ln in lines if ln.get("label") == "mapped landslide"]
     overlays = _line_overlays(centre, left, top, cx, cy) + overlays
     overlays += _line_overlays(slides, left, top, cx, cy)
-    for (key, rain), found in sorted((paths or {}).items(), key=lambda kv: str(kv[0][1])):
+    for (_key, rain), found in sorted((paths or {}).items(), key=lambda kv: str(kv[0][1])):
         overlays += _line_overlays(found, left, top, cx, cy, rain=rain, suffix=f": {rain}")
+    zs = decimate(z, k, "mean") if k > 1 else np.asarray(z, dtype=np.float32)
+    shade = hillshade(zs, grid.dx_m * k, grid.dy_m * k) if np.isfinite(zs).any() else zs
+    shade = base64.b64encode(shade_png(shade)).decode("ascii")
+    del zs
+
+    named = {name: copies[name] for name in copies}
+    if soil is not None:
+        named["soil"] = soil
+    if segments is not None:
+        named["segment"] = _segment_copy(segments, grid.shape, k)
+    named = within_budget(named, len(shade) + len(json.dumps(overlays)))
+    arrays: dict = {}
+    ids: dict = {}
+    for name, copy in named.items():
+        ids[name] = f"a{len(arrays)}"
+        arrays[ids[name]] = copy.as_dict()
+    layers = []
+    for p in entries:
+        key, rain = p["key"], p["rain"]
+        entry = spec(key)
+        outlined = key in OUTLINED and ("cluster_labels", rain) in ids
+        layers.append({
+            "id": ids[(key, rain)], "key": key, "rain": rain,
+            "title": entry.title + (f": {rain}" if rain else ""),
+            "group": rain or "Terrain and recharge", "units": p["units"], "file": p["path"],
+            "style": _style_of(key, outlined),
+            "classes": ids.get(("critical_recharge_class", None))
+            if key == "critical_recharge" else None})
+
+    def per_rain(key):        # [rain, array id] in scenario order (the page keeps it)
+        return [[r, ids[(key, r)]] for r in rains if (key, r) in ids]
+
+    values = {"fs": per_rain("factor_of_safety"), "pf": per_rain("failure_probability"),
+              "bound": per_rain("cluster_fs_bound"), "cluster": per_rain("cluster_labels"),
+              "slope": ids.get(("slope", None)), "soil": ids.get("soil"),
+              "segment": ids.get("segment")}
     for r in rains:
         if ("cluster_labels", r) in ids:
             overlays.append({"kind": "outline", "label": f"failure cluster outline: {r}",
                              "colour": OUTLINE_COLOUR, "width": 1.2, "rain": r,
                              "array": ids[("cluster_labels", r)]})
-    zs = decimate(z, k, "mean") if k > 1 else np.asarray(z, dtype=np.float32)
-    shade = hillshade(zs, grid.dx_m * k, grid.dy_m * k) if np.isfinite(zs).any() else zs
     rounding = {"fs": QUANTISERS["factor_of_safety"].rounding,
                 "pf": QUANTISERS["failure_probability"].rounding,
                 "slope": QUANTISERS["slope"].rounding}
-    cell_m = cx * grid.linear_unit_m
+    coarsest = max(c.k for c in named.values())
     decimation = None
-    if k > 1:
+    if coarsest > 1:
+        levels = sorted({c.k for c in named.values()})
+        sizes = ", ".join(f"{n} x {n}" for n in levels)
         decimation = (
-            f"Values are at the displayed resolution: each map cell is a block of {k} x {k} grid "
-            f"cells ({cell_m:g} m), holding the least factor of safety, cluster FS bound and "
-            "critical recharge of the block, the largest probability of failure and runout "
-            "count, the worst critical-recharge class, the most common soil unit and the mean "
-            "slope, wetness and specific catchment area. For full detail open the GeoTIFF "
-            "products (factor_of_safety_*.tif and the others) in a GIS.")
+            f"Values are at the displayed resolution: a map cell is a block of grid cells "
+            f"({sizes}; {cx * grid.linear_unit_m / k * levels[0]:g} m and coarser), holding the "
+            "least factor of safety, cluster FS bound and critical recharge of the block, the "
+            "largest probability of failure and runout count, the worst critical-recharge "
+            "class, the most common soil unit and the mean slope, wetness and specific "
+            "catchment area (each value on a click says its block). For full detail open the "
+            "GeoTIFF products (factor_of_safety_*.tif and the others) in a GIS.")
     return {
         "version": 1, "title": title, "caution": SHORT,
-        "grid": {"rows": int(shape[0]), "cols": int(shape[1]), "k": int(k),
+        "grid": {"rows": int(-(-rows // k)), "cols": int(-(-cols // k)), "k": int(k),
                  "full_rows": int(rows), "full_cols": int(cols), "left": left, "top": top,
                  "cell_x": cx, "cell_y": cy, "unit_m": float(grid.linear_unit_m),
                  "crs": crs_label(grid.crs)},
         "base": {"background": MAP_BACKGROUND, "floor": SHADE_FLOOR,
                  "no_value": {"colour": NO_VALUE_COLOUR, "alpha": NO_VALUE_ALPHA}},
-        "shade": base64.b64encode(shade_png(shade)).decode("ascii"),
-        "arrays": arrays, "layers": layers, "values": values, "overlays": overlays,
-        "soil_labels": list(soil_labels),
+        "shade": shade, "arrays": arrays, "layers": layers, "values": values,
+        "overlays": overlays, "soil_labels": list(soil_labels),
         "segments": None if segments is None else {
             "from_m": np.round(np.asarray(segments.from_m, dtype=np.float64), 1).tolist(),
             "to_m": np.round(np.asarray(segments.to_m, dtype=np.float64), 1).tolist()},
         "rounding": rounding, "decimation": decimation,
-        "rules": {key: rule_words(key) for key in QUANTISERS},
     }

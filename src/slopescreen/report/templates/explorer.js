@@ -20,7 +20,7 @@
   var paths = {};        // overlay index -> Path2D in cell units, once made
   var making = {};       // overlay index -> Promise of its Path2D
   var shade = null;      // {canvas, valid: Uint8Array}
-  var state = { layer: null, image: null, hatch: null, on: {} };
+  var state = { layer: null, image: null, hatch: null, f: 1, on: {} };
   var frame = 0;
   var POINT_PX = 96 / 72;
 
@@ -72,6 +72,13 @@
     return codes[id];
   }
 
+  function scaleOf(id) { return data.arrays[id].k / G.k; }   // array cells per base cell side
+
+  function indexIn(id, row, col) {                 // base cell -> index in an array
+    var a = data.arrays[id], f = scaleOf(id);
+    return Math.floor(row / f) * a.cols + Math.floor(col / f);
+  }
+
   function decode(q, code) {
     if (!code) { return NaN; }
     var x = q.lo + (code - 1) * q.step;
@@ -120,9 +127,19 @@
       var c = got[0];
       var cls = got.length > 1 ? got[1] : null;
       var st = layer.style;
-      var q = data.arrays[layer.id].q;
-      var n = G.rows * G.cols;
-      var img = new ImageData(G.cols, G.rows);
+      var A = data.arrays[layer.id];
+      var q = A.q;
+      var f = scaleOf(layer.id);
+      var n = A.rows * A.cols;
+      var img = new ImageData(A.cols, A.rows);
+      var valid = shade.valid;
+      if (f !== 1) {                               // the hillshade's cells at this array's level
+        valid = new Uint8Array(n);
+        for (var j = 0; j < n; j++) {
+          var r0 = Math.floor(j / A.cols) * f, c0 = (j % A.cols) * f;
+          valid[j] = r0 < G.rows && c0 < G.cols ? shade.valid[r0 * G.cols + c0] : 0;
+        }
+      }
       var d = img.data;
       var nv = rgb(data.base.no_value.colour);
       var nva = Math.round(255 * data.base.no_value.alpha);
@@ -133,7 +150,7 @@
       if (st.kind === "bands") {
         var bands = st.bands.map(function (b) { return { code: b.code, col: b.colour ? rgb(b.colour) : null }; });
         for (i = 0; i < n; i++) {
-          if (c[i] === 0) { if (shade.valid[i]) { put(i, nv, nva); } continue; }
+          if (c[i] === 0) { if (valid[i]) { put(i, nv, nva); } continue; }
           for (var b = 0; b < bands.length; b++) {
             if (bands[b].code === null || c[i] < bands[b].code) {
               if (bands[b].col) { put(i, bands[b].col, alpha); }
@@ -148,15 +165,15 @@
         var span = (st.log ? Math.log10(st.vmax) : st.vmax) - lo;
         var dry = st.dry ? rgb(st.dry.colour) : null;
         var drya = st.dry ? Math.round(255 * st.dry.alpha) : 0;
-        var mask = cls ? new ImageData(G.cols, G.rows) : null;
+        var mask = cls ? new ImageData(A.cols, A.rows) : null;
         var anyDry = false;
         for (i = 0; i < n; i++) {
           if (cls) {
             var k = cls[i] - 1;
-            if (cls[i] === 0) { if (shade.valid[i]) { put(i, nv, nva); } continue; }
+            if (cls[i] === 0) { if (valid[i]) { put(i, nv, nva); } continue; }
             if (k === 1) { put(i, dry, drya); mask.data[4 * i + 3] = 255; anyDry = true; continue; }
           }
-          if (c[i] === 0) { if (!cls && shade.valid[i]) { put(i, nv, nva); } continue; }
+          if (c[i] === 0) { if (!cls && valid[i]) { put(i, nv, nva); } continue; }
           v = decode(q, c[i]);
           if (st.below !== null && v < st.below) { continue; }
           var t = ((st.log ? Math.log10(v) : v) - lo) / span;
@@ -165,7 +182,7 @@
         }
         if (anyDry) { hatch = toCanvas(mask); }
       }
-      return { image: toCanvas(img), hatch: hatch };
+      return { image: toCanvas(img), hatch: hatch, f: f };
     });
     return painted[layer.id];
   }
@@ -185,7 +202,8 @@
   function outlinePath(ov) {
     return codesOf(ov.array).then(function (c) {
       var p = new Path2D();
-      var R = G.rows, C = G.cols;
+      var A = data.arrays[ov.array], f = scaleOf(ov.array);
+      var R = A.rows, C = A.cols;
       function lab(r, col) {
         if (r < 0 || col < 0 || r >= R || col >= C) { return 0; }
         var x = c[r * C + col];
@@ -196,8 +214,8 @@
           var here = lab(r, col);
           var left = lab(r, col - 1);
           var up = lab(r - 1, col);
-          if (r < R && here !== left && (here > 0 || left > 0)) { p.moveTo(col, r); p.lineTo(col, r + 1); }
-          if (col < C && here !== up && (here > 0 || up > 0)) { p.moveTo(col, r); p.lineTo(col + 1, r); }
+          if (r < R && here !== left && (here > 0 || left > 0)) { p.moveTo(col * f, r * f); p.lineTo(col * f, (r + 1) * f); }
+          if (col < C && here !== up && (here > 0 || up > 0)) { p.moveTo(col * f, r * f); p.lineTo((col + 1) * f, r * f); }
         }
       }
       return p;
@@ -255,14 +273,15 @@
     ctx.setTransform(cell[0], cell[1], cell[2], cell[3], cell[4], cell[5]);
     ctx.imageSmoothingEnabled = false;
     if (shade) { ctx.drawImage(shade.canvas, 0, 0); }
-    if (state.image) { ctx.drawImage(state.image, 0, 0); }
+    var sw = state.image ? state.image.width * state.f : 0, sh = state.image ? state.image.height * state.f : 0;
+    if (state.image) { ctx.drawImage(state.image, 0, 0, sw, sh); }
     if (state.hatch) {
       scratch.width = canvas.width;
       scratch.height = canvas.height;
       var sx = scratch.getContext("2d");
       sx.setTransform(cell[0], cell[1], cell[2], cell[3], cell[4], cell[5]);
       sx.imageSmoothingEnabled = false;
-      sx.drawImage(state.hatch, 0, 0);
+      sx.drawImage(state.hatch, 0, 0, sw, sh);
       sx.setTransform(1, 0, 0, 1, 0, 0);
       sx.globalCompositeOperation = "source-in";
       sx.fillStyle = pattern();
@@ -418,17 +437,16 @@
     var V = data.values;
     var asks = [];
     function ask(kind, rain, id, label) { if (id) { asks.push({ kind: kind, rain: rain, id: id, label: label }); } }
-    Object.keys(V.fs).forEach(function (r) { ask("fs", r, V.fs[r], "Factor of safety FS: " + r); });
-    Object.keys(V.pf).forEach(function (r) { ask("pf", r, V.pf[r], "Probability of failure P_f: " + r); });
-    Object.keys(V.bound).forEach(function (r) { ask("bound", r, V.bound[r], "Lower bound on cluster FS: " + r); });
-    Object.keys(V.cluster).forEach(function (r) { ask("cluster", r, V.cluster[r], "Failure cluster id: " + r); });
+    V.fs.forEach(function (p) { ask("fs", p[0], p[1], "Factor of safety FS: " + p[0]); });
+    V.pf.forEach(function (p) { ask("pf", p[0], p[1], "Probability of failure P_f: " + p[0]); });
+    V.bound.forEach(function (p) { ask("bound", p[0], p[1], "Lower bound on cluster FS: " + p[0]); });
+    V.cluster.forEach(function (p) { ask("cluster", p[0], p[1], "Failure cluster id: " + p[0]); });
     ask("soil", null, V.soil, "Soil unit");
     ask("slope", null, V.slope, "Slope (degrees)");
     ask("segment", null, V.segment, "Corridor segment chainage (m)");
     var L = state.layer;
     if (L && !asks.some(function (a) { return a.id === L.id; })) { ask("layer", L.rain, L.id, L.title + " (" + L.units + ")"); }
     return Promise.all(asks.map(function (a) { return codesOf(a.id); })).then(function (got) {
-      var i = row * G.cols + col;
       popup.textContent = "";
       var close = el("button", "\u00d7");
       close.type = "button";
@@ -444,8 +462,9 @@
       popup.appendChild(where);
       var table = el("table");
       asks.forEach(function (a, j) {
-        var code = got[j][i];
-        var q = data.arrays[a.id].q;
+        var A = data.arrays[a.id];
+        var code = got[j][indexIn(a.id, row, col)];
+        var q = A.q;
         var text;
         if (a.kind === "soil") {
           text = code ? (data.soil_labels[code - 1] || String(code - 1)) : "none";
@@ -457,7 +476,7 @@
         } else {
           text = format(q, decode(q, code));
         }
-        if (a.kind !== "layer" && G.k > 1 && data.arrays[a.id].rule) { text += " (" + data.arrays[a.id].rule + ")"; }
+        if (A.k > 1 && A.rule) { text += " (" + A.rule + " of " + A.k + " \u00d7 " + A.k + ")"; }
         var tr = el("tr");
         tr.setAttribute("data-value", a.kind);
         if (a.rain !== null) { tr.setAttribute("data-rain", a.rain); }
@@ -538,7 +557,8 @@
     });
     var q = data.arrays[L.id].q;
     var note = "Values " + q.rounding + ".";
-    if (G.k > 1) { note += " Each map cell is a block of " + G.k + " \u00d7 " + G.k + " grid cells holding the " + data.arrays[L.id].rule + " value; full detail in " + L.file + "."; }
+    var A = data.arrays[L.id];
+    if (A.k > 1) { note += " Each map cell is a block of " + A.k + " \u00d7 " + A.k + " grid cells holding the " + A.rule + " value; full detail in " + L.file + "."; }
     box.appendChild(el("p", note));
   }
 
@@ -550,7 +570,7 @@
     hidePopup();
     if (!layer) { state.image = null; state.hatch = null; schedule(); return Promise.resolve(); }
     return paint(layer).then(function (p) {
-      if (state.layer === layer) { state.image = p.image; state.hatch = p.hatch; schedule(); }
+      if (state.layer === layer) { state.image = p.image; state.hatch = p.hatch; state.f = p.f; schedule(); }
     });
   }
 
