@@ -81,7 +81,8 @@ def within_budget(copies: dict, other_bytes: int, budget: int = MAP_BUDGET_BYTES
     >>> rng = np.random.default_rng(0)
     >>> c = {"s": explorer_copy("slope", rng.random((64, 64)) * 60, 1),
     ...      "f": explorer_copy("factor_of_safety", rng.random((64, 64)) * 3, 1)}
-    >>> small = within_budget(c, 0, budget=9000)
+    >>> size = sum(4 * -(-len(x.png) // 3) for x in c.values())     # base64 bytes
+    >>> small = within_budget(c, 0, budget=size * 3 // 4)
     >>> small["s"].k, small["f"].k
     (2, 1)
     """
