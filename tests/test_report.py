@@ -227,7 +227,10 @@ def test_report_is_self_contained(run):
     _, out, _, text = run
     doc = parse(text)
     tags = [t for t, _ in doc.tags]
-    assert "script" not in tags and "iframe" not in tags and "object" not in tags
+    assert "iframe" not in tags and "object" not in tags
+    # the only scripts: the interactive map's data (JSON, not run) and its own inline code
+    scripts = [a for t, a in doc.tags if t == "script"]
+    assert scripts == [{"type": "application/json", "id": "ex-data"}, {}]
     assert "link" not in tags                                  # no external stylesheet
     images = [a for t, a in doc.tags if t == "img"]
     assert len(images) >= 6
@@ -245,8 +248,12 @@ def test_report_is_self_contained(run):
 
 def test_user_strings_are_escaped(run):
     _, _, _, text = run
-    assert "<script" not in text.lower()
+    # no user text opens a script: the two scripts are the map's data and code
+    assert text.lower().count("<script") == 2
+    assert '<script type="application/json" id="ex-data">' in text
     assert "<b>" not in text and "<i>" not in text
+    data = text.split('<script type="application/json" id="ex-data">', 1)[1].split("</script>", 1)[0]
+    assert "<" not in data and json.loads(data)["title"] == TITLE     # JSON escapes every '<' 
     # the entity forms of the HTML standard (quotes as numeric or named references)
     def escaped(s):
         return [htmllib.escape(s).replace("&quot;", q).replace("&#x27;", a)

@@ -35,7 +35,7 @@ from .records import manifest as manifest_of
 from .records import run_record
 from .corridor_stage import corridor_layers_stage, corridor_stage
 from .inventory_stage import inventory_case_stage, inventory_recharge_stage, inventory_scores_stage
-from .report_stage import maps_stage, report_stage, summary_stage
+from .report_stage import explorer_soil_stage, maps_stage, report_stage, summary_stage
 from .runout_stage import effective_runout, runout_layers_stage, runout_stage
 from .stability_stage import (
     effective_uncertainty, probability_stage, recharge_stage, soil_cells_stage, soil_fields_stage,
@@ -120,11 +120,14 @@ def plan(scenario: Scenario) -> tuple[Stage, ...]:
             _stage("soil units", fields, soil_fields_stage, show=False),
             _stage("soil cells", soil, soil_cells_stage,
                    {"soil": fields, "slope": slope, "routing": ("routing",)}, show=False),
+            _stage("explorer soil units", ("explorer soil",), explorer_soil_stage,
+                   {"soil": fields}, show=False),
             _stage("critical recharge", ("recharge",), recharge_stage, {"cells": soil}),
             _stage("recharge figures", ("recharge figures",), recharge_figures_stage,
                    {"recharge": ("recharge",)}, show=False),
         ]
         report_needs["recharge"] = ("recharge figures",)
+        report_needs["explorer"] = ("explorer soil",)
         scores = []
         if scenario.inventory is not None:
             scores.append(("inventory", "critical recharge"))
@@ -321,6 +324,7 @@ def run(scenario: Scenario, *, progress=None) -> RunResult:
 def _run_locked(scenario, inputs, stages, not_run, timer, started, progress,
                 protected) -> RunResult:
     """The stages and the commit of a run, with the output folder's lock held."""
+    from ..report.explorer import block_factor
     from ..report.maps import display_step
 
     grid = inputs.grid
@@ -333,7 +337,8 @@ def _run_locked(scenario, inputs, stages, not_run, timer, started, progress,
                     item["section"], item["reason"])
     writer = None
     try:
-        writer = _Writer(staging, grid, preview_step=display_step(grid.shape))
+        writer = _Writer(staging, grid, preview_step=display_step(grid.shape),
+                         explorer_step=block_factor(grid.shape))
         last = _last_uses(stages)
         results: dict = {}
 

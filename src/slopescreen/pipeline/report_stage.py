@@ -9,7 +9,7 @@ from __future__ import annotations
 
 from types import MappingProxyType
 
-from .results import MapsResult, ReportResult, SummaryResult, Written
+from .results import ExplorerExtras, MapsResult, ReportResult, SummaryResult, Written
 
 
 def _preview_reader(written: Written):
@@ -125,15 +125,31 @@ def maps_stage(scenario, inputs, written: Written, runout=None, clusters=()) -> 
     return MapsResult(tuple(out))
 
 
+def explorer_soil_stage(scenario, inputs, soil) -> ExplorerExtras:
+    """The soil unit per cell for the report's interactive map, copied while it is in memory."""
+    from ..report.explorer import block_factor, explorer_copy
+
+    k = block_factor(inputs.grid.shape)
+    return ExplorerExtras(MappingProxyType({"soil_unit": explorer_copy(
+        "soil_unit", soil.index_array(), k)}), labels=tuple(soil.labels))
+
+
+def _bound_extent(manifest) -> int | None:
+    """The cluster FS bound's window (cells on a side) when every rain case has the same one."""
+    extents = {r.get("bound_extent_cells") for r in manifest.get("cluster_search") or ()}
+    return extents.pop() if len(extents) == 1 else None
+
+
 def report_stage(scenario, inputs, written: Written, manifest: dict, maps: MapsResult, terrain,
                  recharge=None, cases=(), clusters=None, runout=None,
-                 corridor=None, inventory=None) -> ReportResult:
+                 corridor=None, inventory=None, explorer=None) -> ReportResult:
     """The self-contained report: maps embedded, every parameter, the cautions.
 
     Every number it quotes was computed by the figures stages while the
     arrays were in memory; no product is read back.
     """
     from ..report import html
+    from ..report.explorer_layers import explorer_data
     from ..report.figures import ReportFigures
 
     by_path = {p.path: p.as_dict() for p in written.products}
@@ -149,5 +165,14 @@ def report_stage(scenario, inputs, written: Written, manifest: dict, maps: MapsR
                 "size_resolved": [] if clusters is None else list(clusters.size_records),
                 "runout_paths": [] if runout is None else list(runout.records),
                 "corridor_segments": [] if corridor is None else list(corridor.records),
-                "inventory_scores": {} if inventory is None else dict(inventory.document)})
+                "inventory_scores": {} if inventory is None else dict(inventory.document)},
+        explorer=explorer_data(
+            written, inputs.grid, inputs.z, rains=[r.name for r in scenario.rain],
+            soil=None if explorer is None else explorer.copies.get("soil_unit"),
+            soil_labels=[] if explorer is None else list(explorer.labels),
+            lines=map_lines(inputs), paths=path_lines_by_rain(runout),
+            segments=None if inputs.corridor is None else inputs.corridor.segments,
+            title=scenario.title,
+            rates=[(r.name, r.steady_mm_per_day) for r in scenario.rain if not r.is_storm],
+            extent_cells=_bound_extent(manifest)))
     return ReportResult(html.render_report(ctx).encode("utf-8"))

@@ -59,10 +59,12 @@ class Emit:
 
 @dataclass(frozen=True)
 class Written:
-    """What the writer has written so far: manifest entries and map previews."""
+    """What the writer has written so far: manifest entries, map previews and the copies of
+    the interactive map (``(key, rain) ->`` :class:`~slopescreen.report.explorer.ExplorerCopy`)."""
 
     products: tuple
     previews: MappingProxyType
+    explorer: Any = _empty()
 
     def entries(self) -> list[dict]:
         """Manifest entries of the products written so far."""
@@ -182,7 +184,8 @@ class ClusterCase:
             "rain": self.case.name, "clusters": len(self.records),
             "not_proven": sum(1 for r in self.records if not r["proven"]),
             "modular_faces": self.modular_faces, "undecided_cells": self.undecided_cells,
-            "size_search_seconds": self.size_search_seconds}
+            "size_search_seconds": self.size_search_seconds,
+            "bound_extent_cells": int(self.bound_extent_cells)}
 
     def kept(self):
         """What later stages read: the rows, outlines and cluster cells, not the rasters."""
@@ -346,6 +349,18 @@ class SummaryResult:
 
     def products(self):
         return (Emit("summary", self.json), Emit("summary", self.csv, kind="csv"))
+
+
+@dataclass(frozen=True)
+class ExplorerExtras:
+    """Copies for the interactive map of what is no product (the soil unit per cell, with the
+    units' labels in index order)."""
+
+    copies: MappingProxyType
+    labels: tuple = ()
+
+    def products(self):
+        return ()
 
 
 @dataclass(frozen=True)

@@ -3,7 +3,12 @@
 :class:`_Writer` writes each :class:`~slopescreen.pipeline.results.Emit` of a
 stage by its registry entry (:mod:`slopescreen.products`), lists it for the
 manifest and keeps a decimated copy of each raster that a map shows, so the
-maps never read a full product back. :mod:`slopescreen.pipeline.commit` moves the
+maps never read a full product back, and an "explorer copy" of the same
+rasters for the report's pan-and-zoom map: reduced by blocks to at most
+:data:`~slopescreen.report.explorer.MAX_CELLS` cells, quantised and packed
+into a PNG (:func:`~slopescreen.report.explorer.explorer_copy`; about 11
+bytes per embedded cell while it is made, on the writer thread, and only
+the PNG, 0.1 to 1.5 bytes per embedded cell, kept). :mod:`slopescreen.pipeline.commit` moves the
 staged files into the output folder as a whole.
 """
 
@@ -58,7 +63,7 @@ class _Writer:
     them. :meth:`finish` waits for every write and raises the first failure.
     """
 
-    def __init__(self, staging: Path, grid: Grid, *, preview_step: int):
+    def __init__(self, staging: Path, grid: Grid, *, preview_step: int, explorer_step: int = 0):
         from concurrent.futures import ThreadPoolExecutor
 
         self.staging = staging
@@ -66,7 +71,11 @@ class _Writer:
         self.products: list[Product] = []
         self.preview_step = preview_step
         self.previews: dict[tuple, np.ndarray] = {}
+        self.explorer_step = explorer_step
+        self._explorer: dict[tuple, object] = {}
         self._pool = ThreadPoolExecutor(max_workers=1, thread_name_prefix="slopescreen-writer")
+        # the explorer copies on a thread of their own, beside GDAL's compression
+        self._copier = ThreadPoolExecutor(max_workers=1, thread_name_prefix="slopescreen-copier")
         self._pending: list = []
 
     def write(self, emit) -> Product:
@@ -104,6 +113,15 @@ class _Writer:
             self.previews[(entry.key, rain)] = np.ascontiguousarray(data[::step, ::step])
         while len(self._pending) >= MAX_PENDING:
             self._pending.pop(0).result()
+        if self.explorer_step and (entry.key in STYLES or entry.key in MAP_OVERLAYS):
+            from ..report.explorer import explorer_copy
+
+            rain = None if emit.rain is None else emit.rain.name
+            future = self._copier.submit(explorer_copy, entry.key, data, self.explorer_step)
+            self._explorer[(entry.key, rain)] = future
+            self._pending.append(future)
+            while len(self._pending) >= MAX_PENDING:
+                self._pending.pop(0).result()
         self._pending.append(self._pool.submit(
             write_raster, self.staging / name, data, self.grid,
             description=entry.description.format(**emit.fields), units=entry.units,
@@ -119,13 +137,43 @@ class _Writer:
         for future in self._pending:
             future.cancel()
         self._pool.shutdown(wait=True)
+        self._copier.shutdown(wait=True)
         self._pending.clear()
 
     def snapshot(self):
         """What has been written so far, for the maps and the report (read only)."""
         from .results import Written
 
-        return Written(products=tuple(self.products), previews=MappingProxyType(dict(self.previews)))
+        return Written(products=tuple(self.products), previews=MappingProxyType(dict(self.previews)),
+                       explorer=_Resolved(self._explorer))
+
+
+class _Resolved:
+    """A read-only mapping of explorer copies whose values are made on the writer thread.
+
+    Looking a copy up waits for it (the maps stage never does; the report stage does).
+    """
+
+    def __init__(self, futures: dict):
+        self._futures = dict(futures)
+
+    def __getitem__(self, key):
+        return self._futures[key].result()
+
+    def __contains__(self, key):
+        return key in self._futures
+
+    def __iter__(self):
+        return iter(self._futures)
+
+    def __len__(self):
+        return len(self._futures)
+
+    def keys(self):
+        return self._futures.keys()
+
+    def get(self, key, default=None):
+        return self[key] if key in self._futures else default
 
 
 def _libc_trim():

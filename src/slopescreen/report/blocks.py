@@ -131,6 +131,9 @@ class ReportContext:
     maps : list of MapImage
     tables : dict
     figures : ReportFigures or None
+    explorer : dict or None
+        The data of the pan-and-zoom map
+        (:func:`~slopescreen.report.explorer_layers.explorer_data`); None: no map.
     """
 
     manifest: dict
@@ -149,6 +152,7 @@ class ReportContext:
     figures: object = None
     """The numbers the report quotes (:class:`~slopescreen.report.figures.ReportFigures`), as a
     run computes them; None computes them from the products through ``read``."""
+    explorer: dict | None = None
 
     def products(self, key, rain=None, *, any_rain=False):
         """Manifest entries with this key (and rain case, unless ``any_rain``)."""

@@ -2,7 +2,10 @@
 
 :func:`render_report` turns a run's manifest, its product rasters and its
 maps into one HTML file: images are embedded as base64 data URIs, the CSS is
-inline, there is no script and nothing is fetched from the network. Every
+inline and nothing is fetched from the network. The one script is our own
+pan-and-zoom map (``templates/explorer.js``, inlined, with its layers as JSON
+in the page: :mod:`slopescreen.report.explorer_layers`); a report without
+map data has no script. Every
 string is escaped by the template engine (jinja2 with autoescape on), so a
 title or a label holding markup is shown as text.
 
@@ -68,8 +71,9 @@ def render_report(ctx: ReportContext) -> str:
     Returns
     -------
     str
-        HTML5 text (UTF-8 when written). Images are data URIs; no script,
-        no external resource.
+        HTML5 text (UTF-8 when written). Images are data URIs; no external
+        resource. With ``ctx.explorer`` the page holds the interactive map's
+        script and data (inline); without, no script.
 
     Notes
     -----
@@ -107,13 +111,18 @@ def render_report(ctx: ReportContext) -> str:
     for letter, part in zip("AB", appendix):
         part.title = f"Appendix {letter}: {part.title}"
     body.extend(appendix)
+    toc = contents([glance] + body)
+    if ctx.explorer:
+        toc.insert(1, ("explorer", "Pan-and-zoom map", []))
     m = ctx.manifest
     template = _environment().get_template("report.html.j2")
     created = str(m.get("created", "")).replace("T", " ").replace("+00:00", " UTC")
     return template.render(title=m.get("title") or "slopescreen run", manifest=m, short=SHORT,
                            cautions=tuple(m.get("cautions") or CAUTIONS), glance=glance,
-                           sections=body, toc=contents([glance] + body),
-                           project=project_rows(m), created=created, version=m.get("version", ""))
+                           sections=body, toc=toc,
+                           project=project_rows(m), created=created, version=m.get("version", ""),
+                           explorer=ctx.explorer,
+                           explorer_js=_explorer_script() if ctx.explorer else "")
 
 
 def contents(sections) -> list:
@@ -155,3 +164,22 @@ def project_rows(manifest) -> list:
         rows.append(("Run started",
                      str(manifest["created"]).replace("T", " ").replace("+00:00", " UTC")))
     return rows
+
+
+def _explorer_script():
+    """The interactive map's script (our own file in the package), safe to inline.
+
+    Returns
+    -------
+    markupsafe.Markup
+        The script text; it never holds ``</`` (checked), so it cannot close
+        its ``<script>`` element.
+    """
+    from importlib.resources import files
+
+    from markupsafe import Markup
+
+    text = files("slopescreen.report").joinpath("templates", "explorer.js").read_text("utf-8")
+    if "</" in text or "<!--" in text:
+        raise ValueError("explorer.js must not hold '</' or '<!--' (it is inlined in a <script>)")
+    return Markup(text)

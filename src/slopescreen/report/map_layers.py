@@ -16,6 +16,22 @@ from matplotlib.patches import Patch
 
 from .styles import FS_BANDS, NO_VALUE_COLOUR, Style, bound_labels, fs_band, recharge_breaks
 
+BAND_ALPHA = 0.88
+"""Opacity of the FS band colours over the hillshade."""
+DRY_ALPHA = 0.9
+"""Opacity of the cells that fail even when dry, on the critical-recharge map."""
+DRY_HATCH = "xxxx"
+"""Hatching of the cells that fail even when dry."""
+NO_VALUE_ALPHA = 0.75
+"""Opacity of the grey over cells with a DEM value but no product value."""
+SHADE_FLOOR = 0.35
+"""Darkest grey of the hillshade under a map: grey = SHADE_FLOOR + (1 - SHADE_FLOOR) * shade."""
+MAP_BACKGROUND = "#e9e9e9"
+"""Colour of the map where the DEM has no value."""
+OUTLINE_COLOUR = "black"
+"""Colour of the failure cluster outlines."""
+
+
 def _rgba(colour, alpha):
     from matplotlib.colors import to_rgba
 
@@ -61,7 +77,7 @@ def draw_product(values, style: Style, *, extent, ax=None, classes=None, no_valu
     common = dict(extent=extent, origin="upper", interpolation="nearest", zorder=2)
     if style.kind == "bands":
         band = fs_band(v)
-        colours = [_rgba(c, 0.88) if c else (0, 0, 0, 0) for _, _, c in FS_BANDS]
+        colours = [_rgba(c, BAND_ALPHA) if c else (0, 0, 0, 0) for _, _, c in FS_BANDS]
         cmap = ListedColormap(colours).with_extremes(bad=(0, 0, 0, 0))
         data = np.ma.masked_less(band, 0)
         ax.imshow(data, cmap=cmap, norm=BoundaryNorm(np.arange(-0.5, len(FS_BANDS)), len(FS_BANDS)),
@@ -80,14 +96,14 @@ def draw_product(values, style: Style, *, extent, ax=None, classes=None, no_valu
         if classes is not None:
             cls = np.asarray(classes)
             dry = np.ma.masked_not_equal(cls, 1).astype(np.float32)
-            ax.imshow(dry, cmap=ListedColormap([_rgba(FS_BANDS[0][2], 0.9)]), **common)
+            ax.imshow(dry, cmap=ListedColormap([_rgba(FS_BANDS[0][2], DRY_ALPHA)]), **common)
             rows, cols = cls.shape
             left, right, bottom, top = extent
             xs = left + (np.arange(cols) + 0.5) * (right - left) / cols
             ys = top - (np.arange(rows) + 0.5) * (top - bottom) / rows
             if (cls == 1).any():
                 ax.contourf(xs, ys, (cls == 1).astype(np.float32), levels=[0.5, 1.5], colors="none",
-                            hatches=["xxxx"], zorder=3)
+                            hatches=[DRY_HATCH], zorder=3)
     else:
         cmap = style.cmap().with_extremes(bad=(0, 0, 0, 0), under=(0, 0, 0, 0))
         masked = np.ma.masked_invalid(v)
@@ -96,7 +112,7 @@ def draw_product(values, style: Style, *, extent, ax=None, classes=None, no_valu
         ax.imshow(masked, cmap=cmap, norm=style.norm(), alpha=style.alpha, **common)
     if no_value is not None and np.any(no_value):
         grey = np.ma.masked_where(~np.asarray(no_value, dtype=bool), np.ones(v.shape, np.float32))
-        ax.imshow(grey, cmap=ListedColormap([_rgba(NO_VALUE_COLOUR, 0.75)]), **common)
+        ax.imshow(grey, cmap=ListedColormap([_rgba(NO_VALUE_COLOUR, NO_VALUE_ALPHA)]), **common)
     return ax
 
 
@@ -126,45 +142,83 @@ def _outline_segments(labels, extent):
     return np.concatenate(segs, axis=0)
 
 
-def _legend_handles(style: Style, outlines, lines, no_value, *, rates=(), values=None,
-                    extent_cells=None):
-    handles = []
+def legend_entries(style: Style, outlines, lines, no_value, *, rates=(), values=None,
+                   extent_cells=None) -> list[dict]:
+    """The legend entries of a map, in order, as plain data.
+
+    Each entry is ``{"kind": "patch" or "line", "label", "face", "edge",
+    "hatch", "width"}`` (``face`` None: not coloured). The PNG maps draw them
+    as matplotlib handles; the report's interactive map shows the same list.
+    ``rates`` (steady rain cases, name and mm/day) and ``values`` give the
+    classes of the rain needed to fail; ``extent_cells`` the window of the
+    cluster FS bound.
+
+    Examples
+    --------
+    >>> from slopescreen.report.styles import FS_STYLE
+    >>> [e["label"].split(":")[0] for e in legend_entries(FS_STYLE, None, (), None)][:2]
+    ['fails', 'thin margin']
+    """
+    out = []
+
+    def patch(label, face, edge="none", hatch=None, width=None):
+        out.append({"kind": "patch", "label": label, "face": face, "edge": edge, "hatch": hatch,
+                    "width": width})
+
     if style.kind == "bands":
         for _, label, colour in FS_BANDS:
             if colour is None:
-                handles.append(Patch(facecolor="white", edgecolor="#555555", label=label))
+                patch(label, "white", "#555555")
             else:
-                handles.append(Patch(facecolor=colour, edgecolor="none", label=label))
+                patch(label, colour)
     elif style.kind == "bound":
         possible, ruled_out = bound_labels(extent_cells)
-        handles.append(Patch(facecolor=_rgba(style.colours[0], style.alpha), edgecolor="none",
-                             label=possible))
-        handles.append(Patch(facecolor="white", edgecolor="#555555", label=ruled_out))
+        patch(possible, _hex(style.colours[0]))
+        patch(ruled_out, "white", "#555555")
     elif style.kind == "recharge":
         breaks, labels = recharge_breaks(rates, values)
         for colour, label in zip(recharge_colours(style, len(breaks)), labels):
-            handles.append(Patch(facecolor=colour, edgecolor="none", label=label))
-        handles.append(Patch(facecolor=FS_BANDS[0][2], hatch="xxxx", edgecolor="black",
-                             label="fails even when dry"))
-        handles.append(Patch(facecolor="white", edgecolor="#555555",
-                             label="stable even when saturated\n(not coloured)"))
+            patch(label, _hex(colour))
+        patch("fails even when dry", FS_BANDS[0][2], "black", DRY_HATCH)
+        patch("stable even when saturated\n(not coloured)", "white", "#555555")
     elif style.transparent_below is not None:
-        handles.append(Patch(facecolor="white", edgecolor="#555555",
-                             label=f"below {style.transparent_below:g} (not coloured)"))
+        patch(f"below {style.transparent_below:g} (not coloured)", "white", "#555555")
     if no_value is not None and np.any(no_value):
-        handles.append(Patch(facecolor=NO_VALUE_COLOUR, edgecolor="none",
-                             label="no value (no soil unit\nor outside the model)"))
+        patch("no value (no soil unit\nor outside the model)", NO_VALUE_COLOUR)
     if outlines is not None:
-        handles.append(Patch(facecolor="none", edgecolor="black", linewidth=1.2,
-                             label="failure cluster outline"))
-    from matplotlib.lines import Line2D
-
+        patch("failure cluster outline", "none", OUTLINE_COLOUR, width=1.2)
     seen = set()
     for line in lines or ():
         label = line.get("label", "line")
         if label in seen:
             continue
         seen.add(label)
-        handles.append(Line2D([], [], color=line.get("colour", "#1b1b1b"),
-                              linewidth=line.get("width", 2.0), label=label))
+        out.append({"kind": "line", "label": label, "face": None,
+                    "edge": line.get("colour", "#1b1b1b"), "hatch": None,
+                    "width": line.get("width", 2.0)})
+    return out
+
+
+def _hex(colour) -> str:
+    from matplotlib.colors import to_hex
+
+    return to_hex(colour)
+
+
+def _legend_handles(style: Style, outlines, lines, no_value, *, rates=(), values=None,
+                    extent_cells=None):
+    from matplotlib.lines import Line2D
+
+    handles = []
+    for e in legend_entries(style, outlines, lines, no_value, rates=rates, values=values,
+                            extent_cells=extent_cells):
+        if e["kind"] == "line":
+            handles.append(Line2D([], [], color=e["edge"], linewidth=e["width"], label=e["label"]))
+            continue
+        kw = {"facecolor": e["face"], "edgecolor": e["edge"], "label": e["label"]}
+        if e["hatch"]:
+            kw["hatch"] = e["hatch"]
+        if e["width"] is not None:
+            kw["linewidth"] = e["width"]
+        handles.append(Patch(**kw))
     return handles

@@ -30,7 +30,9 @@ from matplotlib.figure import Figure
 from ..errors import InputError
 from .cautions import SHORT
 from ..products import STYLES, spec
-from .map_layers import _legend_handles, _outline_segments, draw_product
+from .map_layers import (
+    MAP_BACKGROUND, OUTLINE_COLOUR, SHADE_FLOOR, _legend_handles, _outline_segments, draw_product,
+)
 from .map_parts import (
     MapFrame, add_north_arrow, add_scale_bar, crs_label, hillshade, nice_length,
 )
@@ -135,14 +137,14 @@ def map_figure(values, key, *, frame: MapFrame, shade=None, title="", subtitle="
     fig = Figure(figsize=(fw, fh), dpi=dpi, facecolor="white")
     FigureCanvasAgg(fig)
     ax = fig.add_axes(rect(*lay["map"]))
-    ax.set_facecolor("#e9e9e9")
+    ax.set_facecolor(MAP_BACKGROUND)
     if shade is not None:
-        ax.imshow(0.35 + 0.65 * np.asarray(shade, dtype=np.float32), cmap="gray", vmin=0.0, vmax=1.0,
+        ax.imshow(SHADE_FLOOR + (1.0 - SHADE_FLOOR) * np.asarray(shade, dtype=np.float32), cmap="gray", vmin=0.0, vmax=1.0,
                   extent=extent, origin="upper", interpolation="nearest", zorder=1)
     draw_product(v, style, extent=extent, ax=ax, classes=classes, no_value=no_value,
                  rates=rates)
     if outlines is not None and np.any(np.asarray(outlines) > 0):
-        ax.add_collection(LineCollection(_outline_segments(outlines, extent), colors="black",
+        ax.add_collection(LineCollection(_outline_segments(outlines, extent), colors=OUTLINE_COLOUR,
                                          linewidths=0.9, zorder=6))
     for line in lines or ():
         width = line.get("width", 2.0)
