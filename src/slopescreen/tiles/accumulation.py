@@ -797,7 +797,7 @@ def _tile_map_kernel(codes, frac, h, w, drow, dcol, fcard, fdiag, order, n, peri
     ent_w = np.empty(cap, dtype=np.float64)
     used = 0
     for t in range(n - 1, -1, -1):
-        if t % POLL == 0 and stop[0] != 0:
+        if (n - 1 - t) % POLL == POLL - 1 and stop[0] != 0:
             return np.zeros(perim.size + 1, dtype=np.int64), ent_o[:0], ent_w[:0], used, cap
         p = order[t]
         if reach[p] == 0:
