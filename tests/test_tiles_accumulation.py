@@ -24,7 +24,6 @@ from scipy.ndimage import gaussian_filter
 from slopescreen import _stoppable
 from slopescreen._neighbours import DCOL, DROW, pad_nan, unpad
 from slopescreen.errors import InputError
-from slopescreen.routing._geometry import _FACET_CARD, _FACET_DIAG
 from slopescreen.routing.accumulation import _route_padded
 from slopescreen.routing.directions import _receiver_codes
 from slopescreen.routing.links import _receivers
@@ -275,10 +274,10 @@ def test_a_raised_stop_flag_stops_the_tile_kernels():
     _, codes, frac = routed(z, 1.0, 1.0, "dinf")
     code = np.ascontiguousarray(codes.reshape(n + 2, n + 2)[1:-1, 1:1 + w]).reshape(-1)
     fr = np.ascontiguousarray(frac.reshape(n + 2, n + 2)[1:-1, 1:1 + w]).reshape(-1)
-    args = (code, fr, n, w, DROW, DCOL, _FACET_CARD, _FACET_DIAG)
+    args = (code, fr, n, w)
     indeg = np.zeros(code.size, np.uint8)
     acc = np.empty(code.size)
-    tiled._tile_start_kernel(*args[:2], np.ones(code.size, bool), *args[2:], 1.0, indeg, acc)
+    tiled._tile_start_kernel(*args[:2], np.ones(code.size, bool), n, w, 1.0, indeg, acc)
     order = np.empty(code.size, np.int32)
     up, down = np.ones(1, np.uint8), np.zeros(1, np.uint8)
     assert tiled._tile_kahn_kernel(*args, indeg.copy(), acc.copy(), order, up) == -1

@@ -281,20 +281,18 @@ def tile_flow_map(codes, frac, valid, origin, grid_shape, dx, dy, method="dinf")
     indeg = np.zeros(h * w, dtype=np.uint8)
     acc = np.empty(h * w, dtype=np.float64)
     order = np.empty(h * w, dtype=np.int32)
-    _tile_start_kernel(code, fr, ok, h, w, DROW, DCOL, _FACET_CARD, _FACET_DIAG, dx * dy,
-                       indeg, acc)
-    n = call(_tile_kahn_kernel, code, fr, h, w, DROW, DCOL, _FACET_CARD, _FACET_DIAG, indeg,
-             acc, order, stop=True)
+    _tile_start_kernel(code, fr, ok, h, w, dx * dy, indeg, acc)
+    n = call(_tile_kahn_kernel, code, fr, h, w, indeg, acc, order, stop=True)
     _check_acyclic(n, ok)
     perim = perimeter_cells((h, w))
-    nlink, link_from, link_to, link_w = _tile_links_kernel(
-        code, fr, h, w, r0, c0, rows, cols, perim, DROW, DCOL, _FACET_CARD, _FACET_DIAG)
+    nlink, link_from, link_to, link_w = _tile_links_kernel(code, fr, h, w, r0, c0, rows, cols,
+                                                           perim)
     if nlink < 0:
         raise InputError(f"codes: a cell of the tile at {(r0, c0)} sends flow outside the "
                          f"{rows} x {cols} grid; give the receiver codes of the whole grid")
     del indeg
-    ptr, out, weight, used, cap = call(_tile_map_kernel, code, fr, h, w, DROW, DCOL,
-                                       _FACET_CARD, _FACET_DIAG, order, n, perim, stop=True)
+    ptr, out, weight, used, cap = call(_tile_map_kernel, code, fr, h, w, order, n, perim,
+                                       stop=True)
     work = h * w * (1 + 4 * (fr.size > 1) + 1 + 1 + 8 + 4 + 1 + 8 + 4) + 12 * cap
     return TileFlowMap(origin=(r0, c0), shape=(h, w), grid_shape=(rows, cols),
                        local_area_m2=acc[perim].copy(), map_ptr=ptr, map_out=out,
@@ -441,11 +439,10 @@ def finish_tile_accumulation(codes, frac, valid, inflow, dx, dy, method="dinf"):
         raise InputError("inflow: expected finite areas >= 0 (solve_perimeter's result)")
     indeg = np.zeros(h * w, dtype=np.uint8)
     acc = np.empty(h * w, dtype=np.float64)
-    _tile_start_kernel(code, fr, ok, h, w, DROW, DCOL, _FACET_CARD, _FACET_DIAG, dx * dy,
-                       indeg, acc)
+    _tile_start_kernel(code, fr, ok, h, w, dx * dy, indeg, acc)
     acc[perim] += add
-    n = call(_tile_kahn_kernel, code, fr, h, w, DROW, DCOL, _FACET_CARD, _FACET_DIAG, indeg,
-             acc, np.empty(0, dtype=np.int32), stop=True)
+    n = call(_tile_kahn_kernel, code, fr, h, w, indeg, acc, np.empty(0, dtype=np.int32),
+             stop=True)
     _check_acyclic(n, ok)
     return acc.reshape(h, w)
 
@@ -613,51 +610,63 @@ def _check_acyclic(n, ok):
 # --------------------------------------------------------------------------
 # Kernels
 # --------------------------------------------------------------------------
+# The small helpers take and return scalars only: the neighbour and facet tables are read as
+# module constants, so a call costs no reference counting and compiles inline.
 
 
 @njit
-def _targets(cd, frac, p, fcard, fdiag, ks, ws):
-    """Neighbour codes and shares of cell p's receivers; returns how many (0, 1 or 2)."""
+def _targets(cd, f):
+    """Receivers of a cell of code ``cd`` and diagonal share ``f``: (count, k0, w0, k1, w1)."""
     if cd == NO_DIRECTION:
-        return 0
+        return 0, 0, 0.0, 0, 0.0
     if cd < _SINGLE:
-        f = np.float64(frac[p])
-        m = 0
-        if f < 1.0:
-            ks[m] = fcard[cd]
-            ws[m] = 1.0 - f
-            m += 1
-        if f > 0.0:
-            ks[m] = fdiag[cd]
-            ws[m] = f
-            m += 1
-        return m
-    ks[0] = cd - _SINGLE
-    ws[0] = 1.0
-    return 1
+        if f <= 0.0:
+            return 1, _FACET_CARD[cd], 1.0 - f, 0, 0.0
+        if f >= 1.0:
+            return 1, _FACET_DIAG[cd], f, 0, 0.0
+        return 2, _FACET_CARD[cd], 1.0 - f, _FACET_DIAG[cd], f
+    return 1, np.int64(cd) - _SINGLE, 1.0, 0, 0.0
 
 
 @njit
-def _inner_receivers(codes, frac, p, h, w, drow, dcol, fcard, fdiag, ks, ws, qs, qw):
-    """Receivers of cell p inside its tile (tile index, share); returns (how many, leaves).
+def _share(codes, frac, p):
+    """D-infinity diagonal share of cell p (0 for single-direction cells)."""
+    if codes[p] < _SINGLE:
+        return np.float64(frac[p])
+    return 0.0
 
-    ``leaves`` is True when some of p's flow goes to a cell outside the tile.
+
+@njit
+def _inner(cd, f, p, h, w):
+    """Receivers of tile cell p inside the tile: (count, q0, w0, q1, w1, leaves).
+
+    ``q0``, ``q1`` are tile indices; ``leaves`` is True when some of p's flow
+    goes to a cell outside the tile.
     """
-    m = _targets(codes[p], frac, p, fcard, fdiag, ks, ws)
+    m, k0, w0, k1, w1 = _targets(cd, f)
     r = p // w
     c = p - r * w
-    k = 0
+    n = 0
+    q0 = -1
+    v0 = 0.0
+    q1 = -1
+    v1 = 0.0
     leaves = False
     for i in range(m):
-        rr = r + drow[ks[i]]
-        cc = c + dcol[ks[i]]
+        k = k0 if i == 0 else k1
+        rr = r + DROW[k]
+        cc = c + DCOL[k]
         if 0 <= rr < h and 0 <= cc < w:
-            qs[k] = rr * w + cc
-            qw[k] = ws[i]
-            k += 1
+            if n == 0:
+                q0 = rr * w + cc
+                v0 = w0 if i == 0 else w1
+            else:
+                q1 = rr * w + cc
+                v1 = w1
+            n += 1
         else:
             leaves = True
-    return k, leaves
+    return n, q0, v0, q1, v1, leaves
 
 
 @njit
@@ -672,12 +681,8 @@ def _perimeter_index(r, c, h, w):
 
 
 @njit
-def _tile_start_kernel(codes, frac, valid, h, w, drow, dcol, fcard, fdiag, area, indeg, acc):
+def _tile_start_kernel(codes, frac, valid, h, w, area, indeg, acc):
     """Initial area (NaN on nodata) and in-tile donor count (255 on nodata); indeg starts at 0."""
-    ks = np.empty(2, dtype=np.int64)
-    ws = np.empty(2, dtype=np.float64)
-    qs = np.empty(2, dtype=np.int64)
-    qw = np.empty(2, dtype=np.float64)
     for p in range(h * w):
         if valid[p]:
             acc[p] = area
@@ -687,23 +692,21 @@ def _tile_start_kernel(codes, frac, valid, h, w, drow, dcol, fcard, fdiag, area,
     for p in range(h * w):
         if not valid[p]:
             continue
-        k, _ = _inner_receivers(codes, frac, p, h, w, drow, dcol, fcard, fdiag, ks, ws, qs, qw)
-        for i in range(k):
-            indeg[qs[i]] += 1
+        k, q0, _, q1, _, _ = _inner(codes[p], _share(codes, frac, p), p, h, w)
+        if k > 0:
+            indeg[q0] += 1
+        if k > 1:
+            indeg[q1] += 1
 
 
 @njit
-def _tile_kahn_kernel(codes, frac, h, w, drow, dcol, fcard, fdiag, indeg, acc, order, stop):
+def _tile_kahn_kernel(codes, frac, h, w, indeg, acc, order, stop):
     """Kahn's accumulation of ``acc`` inside one tile (links leaving it are skipped).
 
     Records the order in ``order`` when it is not empty. Returns the number of
     cells processed, or -1 once ``stop[0]`` is set (a signal).
     """
     stack = np.empty(1024, dtype=np.int64)
-    ks = np.empty(2, dtype=np.int64)
-    ws = np.empty(2, dtype=np.float64)
-    qs = np.empty(2, dtype=np.int64)
-    qw = np.empty(2, dtype=np.float64)
     record = order.size > 0
     n = 0
     for s in range(h * w):
@@ -720,12 +723,11 @@ def _tile_kahn_kernel(codes, frac, h, w, drow, dcol, fcard, fdiag, indeg, acc, o
             if record:
                 order[n] = p
             n += 1
-            k, _ = _inner_receivers(codes, frac, p, h, w, drow, dcol, fcard, fdiag, ks, ws,
-                                    qs, qw)
+            k, q0, v0, q1, v1, _ = _inner(codes[p], _share(codes, frac, p), p, h, w)
             a = acc[p]
             for i in range(k):
-                q = qs[i]
-                acc[q] += a * qw[i]
+                q = q0 if i == 0 else q1
+                acc[q] += a * (v0 if i == 0 else v1)
                 indeg[q] -= 1
                 if indeg[q] == 0:
                     indeg[q] = _DONE
@@ -739,22 +741,21 @@ def _tile_kahn_kernel(codes, frac, h, w, drow, dcol, fcard, fdiag, indeg, acc, o
 
 
 @njit
-def _tile_links_kernel(codes, frac, h, w, r0, c0, rows, cols, perim, drow, dcol, fcard, fdiag):
+def _tile_links_kernel(codes, frac, h, w, r0, c0, rows, cols, perim):
     """Links from perimeter cells to cells of other tiles; count -1 if one leaves the grid."""
     link_from = np.empty(2 * perim.size, dtype=np.int32)
     link_to = np.empty(2 * perim.size, dtype=np.int64)
     link_w = np.empty(2 * perim.size, dtype=np.float64)
-    ks = np.empty(2, dtype=np.int64)
-    ws = np.empty(2, dtype=np.float64)
     n = 0
     for i in range(perim.size):
         p = perim[i]
-        m = _targets(codes[p], frac, p, fcard, fdiag, ks, ws)
+        m, k0, w0, k1, w1 = _targets(codes[p], _share(codes, frac, p))
         r = p // w
         c = p - r * w
         for j in range(m):
-            rr = r + drow[ks[j]]
-            cc = c + dcol[ks[j]]
+            k = k0 if j == 0 else k1
+            rr = r + DROW[k]
+            cc = c + DCOL[k]
             if 0 <= rr < h and 0 <= cc < w:
                 continue
             gr = r0 + rr
@@ -763,23 +764,19 @@ def _tile_links_kernel(codes, frac, h, w, r0, c0, rows, cols, perim, drow, dcol,
                 return -1, link_from, link_to, link_w
             link_from[n] = i
             link_to[n] = gr * cols + gc
-            link_w[n] = ws[j]
+            link_w[n] = w0 if j == 0 else w1
             n += 1
     return n, link_from, link_to, link_w
 
 
 @njit
-def _tile_map_kernel(codes, frac, h, w, drow, dcol, fcard, fdiag, order, n, perim, stop):
+def _tile_map_kernel(codes, frac, h, w, order, n, perim, stop):
     """The tile map M as columns (one per perimeter cell), from a reverse topological sweep.
 
     Returns ``(ptr, out, weight, entries written, arena capacity)``; the map
-    is empty if ``stop[0]`` was set (a signal).
+    is unfinished if ``stop[0]`` was set (a signal).
     """
     hw = h * w
-    ks = np.empty(2, dtype=np.int64)
-    ws = np.empty(2, dtype=np.float64)
-    qs = np.empty(2, dtype=np.int64)
-    qw = np.empty(2, dtype=np.float64)
     reach = np.zeros(hw, dtype=np.uint8)
     for i in range(perim.size):
         reach[perim[i]] = 1
@@ -787,9 +784,11 @@ def _tile_map_kernel(codes, frac, h, w, drow, dcol, fcard, fdiag, order, n, peri
         p = order[t]
         if reach[p] == 0:
             continue
-        k, _ = _inner_receivers(codes, frac, p, h, w, drow, dcol, fcard, fdiag, ks, ws, qs, qw)
-        for i in range(k):
-            reach[qs[i]] = 1
+        k, q0, _, q1, _, _ = _inner(codes[p], _share(codes, frac, p), p, h, w)
+        if k > 0:
+            reach[q0] = 1
+        if k > 1:
+            reach[q1] = 1
     start = np.zeros(hw, dtype=np.int64)
     length = np.zeros(hw, dtype=np.int32)
     cap = max(1024, 4 * perim.size)
@@ -802,19 +801,20 @@ def _tile_map_kernel(codes, frac, h, w, drow, dcol, fcard, fdiag, order, n, peri
         p = order[t]
         if reach[p] == 0:
             continue
-        k, leaves = _inner_receivers(codes, frac, p, h, w, drow, dcol, fcard, fdiag, ks, ws,
-                                     qs, qw)
+        k, q0, wa, q1, wb, leaves = _inner(codes[p], _share(codes, frac, p), p, h, w)
         if not leaves:
             if k == 0:
                 continue  # an outlet or pit: the area stops here
-            if k == 1 and qw[0] == 1.0:
-                start[p] = start[qs[0]]  # same vector as the receiver
-                length[p] = length[qs[0]]
+            if k == 1 and wa == 1.0:
+                start[p] = start[q0]  # same vector as the receiver
+                length[p] = length[q0]
                 continue
-        # merge [p leaves] e_p, w1 R(q1) and w2 R(q2), sorted by perimeter cell
-        need = (1 if leaves else 0)
-        for i in range(k):
-            need += length[qs[i]]
+        # merge [p leaves] e_p, wa R(q0) and wb R(q1), sorted by perimeter cell
+        a = start[q0] if k > 0 else 0
+        a_end = a + (length[q0] if k > 0 else 0)
+        b = start[q1] if k > 1 else 0
+        b_end = b + (length[q1] if k > 1 else 0)
+        need = (1 if leaves else 0) + (a_end - a) + (b_end - b)
         if used + need > cap:
             cap = max(2 * cap, used + need)
             bigger_o = np.empty(cap, dtype=np.int32)
@@ -824,12 +824,6 @@ def _tile_map_kernel(codes, frac, h, w, drow, dcol, fcard, fdiag, order, n, peri
             ent_o = bigger_o
             ent_w = bigger_w
         self_key = _perimeter_index(p // w, p % w, h, w) if leaves else -1
-        a = start[qs[0]] if k > 0 else 0
-        a_end = a + (length[qs[0]] if k > 0 else 0)
-        b = start[qs[1]] if k > 1 else 0
-        b_end = b + (length[qs[1]] if k > 1 else 0)
-        wa = qw[0] if k > 0 else 0.0
-        wb = qw[1] if k > 1 else 0.0
         first = used
         while self_key >= 0 or a < a_end or b < b_end:
             key = 2147483647
