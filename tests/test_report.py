@@ -271,8 +271,8 @@ def test_report_areas_match_the_rasters(run):
     _, out, manifest, text = run
     cell = manifest["grid"]["dx_m"] * manifest["grid"]["dy_m"]
     for case in ("steady <i>20</i>", "storm"):
-        [fs_e] = [p for p in manifest["products"] if p["key"] == "factor_of_safety" and p["rain"] == case]
-        [pf_e] = [p for p in manifest["products"] if p["key"] == "failure_probability" and p["rain"] == case]
+        [fs_e] = [p for p in manifest["products"] if p["key"] == "factor_of_safety" and p["rain"] == case and p["kind"] == "raster"]
+        [pf_e] = [p for p in manifest["products"] if p["key"] == "failure_probability" and p["rain"] == case and p["kind"] == "raster"]
         fs = read_back(out / fs_e["path"])[0]
         pf = read_back(out / pf_e["path"])[0]
         below = np.sum(fs < 1.0) * cell                          # counted from the GeoTIFF
@@ -516,7 +516,7 @@ def test_first_screen_states_the_changes_of_method_that_touch_the_run(run):
     _, out, manifest, text = run
     glance = text[text.index('id="glance"'):text.index('id="cautions"')]
     assert f"Changes since slopescreen {PREVIOUS_RELEASE}" in glance
-    [slope_e] = [p for p in manifest["products"] if p["key"] == "slope"]
+    [slope_e] = [p for p in manifest["products"] if p["key"] == "slope" and p["kind"] == "raster"]
     valid = np.isfinite(read_back(out / slope_e["path"])[0])
     interior = ndimage.binary_erosion(valid, structure=np.ones((3, 3), bool), border_value=0)
     assert f"{int((valid & ~interior).sum()):,} cells" in glance

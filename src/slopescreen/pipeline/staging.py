@@ -3,7 +3,9 @@
 :class:`_Writer` writes each :class:`~slopescreen.pipeline.results.Emit` of a
 stage by its registry entry (:mod:`slopescreen.products`), lists it for the
 manifest and keeps a decimated copy of each raster that a map shows, so the
-maps never read a full product back. :mod:`slopescreen.pipeline.commit` moves the
+maps never read a full product back. A styled or class raster gets its
+sidecars at once (``KEY.sld``, and ``KEY.tif.aux.xml`` for class names), each
+its own manifest entry. :mod:`slopescreen.pipeline.commit` moves the
 staged files into the output folder as a whole.
 """
 
@@ -88,7 +90,30 @@ class _Writer:
         product = Product(key=emit.key, path=name, kind=kind, units=units,
                           rain=None if rain is None else rain.name)
         self.products.append(product)
+        if kind == "raster":
+            self._sidecars(entry, emit, name)
         return product
+
+    def _sidecars(self, entry, emit, name) -> None:
+        """The SLD style and the category names of a raster, beside it and in the manifest."""
+        from ..grid import category_names_xml
+        from ..sld import raster_sld
+
+        rain = emit.rain
+        slug = None if rain is None else rain.slug
+        for kind in ("sld", "pam"):
+            if kind not in entry.extra_kinds:
+                continue
+            if kind == "sld":
+                layer = name.rsplit(".", 1)[0]
+                heading = entry.title + ("" if rain is None else f": {rain.name}")
+                data = raster_sld(entry, layer=layer, title=heading, caution=SHORT)
+            else:
+                data = category_names_xml(entry.classes)
+            side = entry.file_name(slug, kind=kind)
+            (self.staging / side).write_bytes(data)
+            self.products.append(Product(key=entry.key, path=side, kind=kind, units=entry.units,
+                                         rain=None if rain is None else rain.name))
 
     def _raster(self, entry, emit, name) -> None:
         data = emit.data
@@ -107,7 +132,8 @@ class _Writer:
         self._pending.append(self._pool.submit(
             write_raster, self.staging / name, data, self.grid,
             description=entry.description.format(**emit.fields), units=entry.units,
-            caution=SHORT, tags=(dict(entry.tags) | dict(emit.tags)) or None))
+            caution=SHORT, tags=(dict(entry.tags) | dict(emit.tags)) or None,
+            classes=entry.classes, resampling=entry.overview_resampling))
 
     def finish(self) -> None:
         """Wait for every background write; raise the first failure."""

@@ -139,7 +139,7 @@ def _products_table(entries):
 def _runout_maps(ctx, entries):
     out = []
     for e in entries:
-        if e["key"] != "runout_count":
+        if e["key"] != "runout_count" or e.get("kind", "raster") != "raster":
             continue
         m = ctx.map_of(e["key"], e.get("rain"))
         if m is not None:
@@ -305,6 +305,8 @@ are the registry's entries of that section."""
 def _generic_stage_blocks(ctx: ReportContext, entries):
     blocks = []
     for e in entries:
+        if e.get("kind", "raster") != "raster":  # a raster's sidecars share its map
+            continue
         m = ctx.map_of(e["key"], e.get("rain"))
         if m is not None:
             blocks.append(figure(m.png, _map_alt(e), _map_caption(ctx, e)))
