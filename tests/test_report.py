@@ -287,7 +287,8 @@ def test_critical_recharge_agrees_with_steady_fs(run):
     # defining property (Montgomery & Dietrich 1994): at the same median parameters a steady
     # case fails where q exceeds q_cr, plus where the cell fails even when dry
     _, out, manifest, _ = run
-    get = {(p["key"], p["rain"]): out / p["path"] for p in manifest["products"]}
+    get = {(p["key"], p["rain"]): out / p["path"] for p in manifest["products"]
+           if p["kind"] == "raster"}
     q = read_back(get[("critical_recharge", None)])[0]
     cls = read_back(get[("critical_recharge_class", None)])[0]
     fs = read_back(get[("factor_of_safety", "steady <i>20</i>")])[0]

@@ -12,8 +12,8 @@ as Cloud-Optimized GeoTIFF (COG) with internal overviews: the tiles are
 written one row at a time into an uncompressed tiled file, the overviews are
 built on it (GDAL reads it by blocks), and GDAL's COG driver copies it, with
 those overviews, into the compressed product. Memory stays bounded by GDAL's
-block cache, whatever the grid's size (docs/performance.md, "GIS-ready
-rasters"). A class band may carry a colour table; its category names go into
+block cache, held at :data:`WRITE_CACHE_MB` during the write, whatever the
+grid's size (docs/performance.md, "GIS-ready rasters"). A class band may carry a colour table; its category names go into
 a GDAL PAM sidecar (:func:`category_names_xml`), the only place GDAL's GeoTIFF
 driver keeps them.
 """
@@ -62,6 +62,12 @@ COG_MIN_SIDE = 2 * BLOCK
 """Grids this many cells or more on their longer side are written as COG with overviews
 (at least one overview level then exists); smaller grids are one or two tiles across and
 stay plain tiled GeoTIFFs."""
+
+WRITE_CACHE_MB = 64
+"""GDAL block cache (MB) while a product is written. The overviews and the COG copy read
+every block of the intermediate file again; with GDAL's default cache (5 % of the RAM) its
+blocks would stay resident, about 1.5 times the raster's size (measured in
+benchmarks/bench_cog.py; docs/performance.md, "GIS-ready rasters")."""
 
 OVERVIEW_RESAMPLING = ("average", "nearest")
 """How overviews may be computed: the mean of the valid cells (measured values) or one
@@ -397,7 +403,7 @@ def write_raster(path, array, grid: Grid, *, description: str, units: str, cauti
     tmp = path.with_name(f".{path.name}.partial")
     tiles = path.with_name(f".{path.name}.tiles") if factors else tmp
     try:
-        with warnings.catch_warnings():
+        with warnings.catch_warnings(), rasterio.Env(GDAL_CACHEMAX=WRITE_CACHE_MB):
             # GDAL warns when the tile is larger than a small raster; harmless.
             warnings.simplefilter("ignore", rasterio.errors.NotGeoreferencedWarning)
             with rasterio.open(tiles, "w", **profile) as dst:
