@@ -245,7 +245,7 @@ def _chosen_cell(out, manifest):
 
     first = manifest["rain"][0]["name"]
     [entry] = [p for p in manifest["products"]
-               if p["key"] == "factor_of_safety" and p["rain"] == first]
+               if p["key"] == "factor_of_safety" and p["rain"] == first and p["kind"] == "raster"]
     with rasterio.open(out / entry["path"]) as src:       # read back independently of the report
         fs = src.read(1, masked=True).filled(np.nan).astype(np.float64)
     score = np.where(np.isfinite(fs), np.abs(fs - 1.17), np.inf)

@@ -105,7 +105,7 @@ def test_last_chainage_is_the_line_length(run):
 def test_strip_areas_equal_an_independent_rasterised_count(run):
     _, out, manifest = run
     geoms, cols, _ = read_layer(out / "corridor_segments.gpkg")
-    [fs_entry] = [p for p in manifest["products"] if p["key"] == "factor_of_safety"]
+    [fs_entry] = [p for p in manifest["products"] if p["key"] == "factor_of_safety" and p["kind"] == "raster"]
     fs = read_back(out / fs_entry["path"])[0]
     from rasterio.transform import from_origin
 
@@ -182,7 +182,7 @@ def test_engineered_ground_takes_its_own_unit_and_is_counted(tmp_path):
     assert main(["-q", "run", str(path)]) == 0
     out = tmp_path / "out"
     manifest = json.loads((out / "manifest.json").read_text())
-    [e] = [p for p in manifest["products"] if p["key"] == "factor_of_safety"]
+    [e] = [p for p in manifest["products"] if p["key"] == "factor_of_safety" and p["kind"] == "raster"]
     fs = read_back(out / e["path"])[0]
     assert (fs[36:38, 2:7] < 1.0).all() and (fs[36:38, 8:10] >= 1.0).all()
     # the strip (6 m half width around row 34) holds none of it: rows 36-37 lie 10-15 m away
@@ -310,7 +310,7 @@ def test_probability_threshold_sources_are_the_patches_scipy_labels(tmp_path):
     assert main(["-q", "run", str(path)]) == 0
     out = tmp_path / "out"
     manifest = json.loads((out / "manifest.json").read_text())
-    [e] = [p for p in manifest["products"] if p["key"] == "failure_probability"]
+    [e] = [p for p in manifest["products"] if p["key"] == "failure_probability" and p["kind"] == "raster"]
     pf = read_back(out / e["path"])[0]
     _, n = ndimage.label(np.nan_to_num(pf) >= 0.5, structure=np.ones((3, 3)))   # scipy
     _, paths, _ = read_layer(out / "runout_paths.gpkg")

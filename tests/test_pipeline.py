@@ -60,7 +60,8 @@ def run_ok(capsys, path):
 
 
 def product(manifest, out, key, rain=None):
-    [entry] = [p for p in manifest["products"] if p["key"] == key and p["rain"] == rain]
+    [entry] = [p for p in manifest["products"]
+               if p["key"] == key and p["rain"] == rain and p["kind"] == "raster"]
     return read_back(out / entry["path"])[0], entry
 
 

@@ -124,7 +124,7 @@ def test_every_product_written_is_in_the_registry_with_its_units_and_type(case, 
         assert entry["kind"] == spec.kind or entry["kind"] in spec.extra_kinds
         if entry["key"] != "map":
             assert (entry["rain"] is not None) == spec.per_rain
-        if spec.kind == "raster":
+        if entry["kind"] == "raster":
             assert entry["units"] == spec.units
             import rasterio
 

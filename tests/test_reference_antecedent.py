@@ -188,7 +188,7 @@ def _run(tmp_path, capsys, table_line):
     out = tmp_path / "out"
     manifest = json.loads((out / "manifest.json").read_text())
     [entry] = [p for p in manifest["products"]
-               if p["key"] == "factor_of_safety" and p["rain"] == "storm"]
+               if p["key"] == "factor_of_safety" and p["rain"] == "storm" and p["kind"] == "raster"]
     return read_back(out / entry["path"])[0], manifest
 
 

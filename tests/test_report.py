@@ -280,8 +280,8 @@ def test_report_areas_match_the_rasters(run):
     _, out, manifest, text = run
     cell = manifest["grid"]["dx_m"] * manifest["grid"]["dy_m"]
     for case in ("steady <i>20</i>", "storm"):
-        [fs_e] = [p for p in manifest["products"] if p["key"] == "factor_of_safety" and p["rain"] == case]
-        [pf_e] = [p for p in manifest["products"] if p["key"] == "failure_probability" and p["rain"] == case]
+        [fs_e] = [p for p in manifest["products"] if p["key"] == "factor_of_safety" and p["rain"] == case and p["kind"] == "raster"]
+        [pf_e] = [p for p in manifest["products"] if p["key"] == "failure_probability" and p["rain"] == case and p["kind"] == "raster"]
         fs = read_back(out / fs_e["path"])[0]
         pf = read_back(out / pf_e["path"])[0]
         below = np.sum(fs < 1.0) * cell                          # counted from the GeoTIFF
@@ -298,7 +298,8 @@ def test_critical_recharge_agrees_with_steady_fs(run):
     # defining property (Montgomery & Dietrich 1994): at the same median parameters a steady
     # case fails where q exceeds q_cr, plus where the cell fails even when dry
     _, out, manifest, _ = run
-    get = {(p["key"], p["rain"]): out / p["path"] for p in manifest["products"]}
+    get = {(p["key"], p["rain"]): out / p["path"] for p in manifest["products"]
+           if p["kind"] == "raster"}
     q = read_back(get[("critical_recharge", None)])[0]
     cls = read_back(get[("critical_recharge_class", None)])[0]
     fs = read_back(get[("factor_of_safety", "steady <i>20</i>")])[0]
@@ -531,7 +532,7 @@ def test_first_screen_states_the_changes_of_method_that_touch_the_run(run):
     assert f"of method since slopescreen {PREVIOUS_RELEASE} touch" in first
     glance = text[text.index('id="methods"'):text.index('id="products"')]
     assert "Changes of method since the previous release that touch this run" in glance
-    [slope_e] = [p for p in manifest["products"] if p["key"] == "slope"]
+    [slope_e] = [p for p in manifest["products"] if p["key"] == "slope" and p["kind"] == "raster"]
     valid = np.isfinite(read_back(out / slope_e["path"])[0])
     interior = ndimage.binary_erosion(valid, structure=np.ones((3, 3), bool), border_value=0)
     assert f"{int((valid & ~interior).sum()):,} cells" in glance

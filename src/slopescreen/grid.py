@@ -6,6 +6,16 @@ product is written on that grid, tiled and compressed, float32 with a nodata
 value, a band description, units and the screening caution in its metadata.
 Writes go to a temporary name beside the target and are renamed when
 complete, so a reader never sees half a file.
+
+Grids of :data:`COG_MIN_SIDE` cells or more on their longer side are written
+as Cloud-Optimized GeoTIFF (COG) with internal overviews: the tiles are
+written one row at a time into an uncompressed tiled file, the overviews are
+built on it (GDAL reads it by blocks), and GDAL's COG driver copies it, with
+those overviews, into the compressed product. Memory stays bounded by GDAL's
+block cache, held at :data:`WRITE_CACHE_MB` during the write, whatever the
+grid's size (docs/performance.md, "GIS-ready rasters"). A class band may carry a colour table; its category names go into
+a GDAL PAM sidecar (:func:`category_names_xml`), the only place GDAL's GeoTIFF
+driver keeps them.
 """
 
 from __future__ import annotations
@@ -15,9 +25,12 @@ import os
 import warnings
 from dataclasses import dataclass
 from pathlib import Path
+from xml.sax.saxutils import escape
 
 import numpy as np
 import rasterio
+import rasterio.shutil
+from rasterio.enums import Resampling
 from rasterio.errors import RasterioIOError
 from rasterio.crs import CRS
 from rasterio.transform import Affine
@@ -44,6 +57,21 @@ docs/performance.md); every GIS that reads deflate reads them."""
 
 COUNT_NODATA = -1
 """Nodata value of int32 count bands (a count is never negative)."""
+
+COG_MIN_SIDE = 2 * BLOCK
+"""Grids this many cells or more on their longer side are written as COG with overviews
+(at least one overview level then exists); smaller grids are one or two tiles across and
+stay plain tiled GeoTIFFs."""
+
+WRITE_CACHE_MB = 64
+"""GDAL block cache (MB) while a product is written. The overviews and the COG copy read
+every block of the intermediate file again; with GDAL's default cache (5 % of the RAM) its
+blocks would stay resident, about 1.5 times the raster's size (measured in
+benchmarks/bench_cog.py; docs/performance.md, "GIS-ready rasters")."""
+
+OVERVIEW_RESAMPLING = ("average", "nearest")
+"""How overviews may be computed: the mean of the valid cells (measured values) or one
+cell's value (classes, ids, counts and flags, whose mean would be no class at all)."""
 
 _FOOT = 0.3048
 _US_SURVEY_FOOT = 1200.0 / 3937.0
@@ -274,14 +302,36 @@ def _short(exc) -> str:
     return text if len(text) < 160 else text[:157] + "..."
 
 
+def overview_factors(shape, block: int = BLOCK) -> list[int]:
+    """Decimation factors of the overviews of a grid: 2, 4, 8, ... until one tile holds it.
+
+    The last level is the first whose longer side fits in one ``block``-cell
+    tile (GDAL's COG driver stops at the same level for its own overviews).
+
+    Examples
+    --------
+    >>> overview_factors((4000, 3000)), overview_factors((512, 100)), overview_factors((256, 256))
+    ([2, 4, 8, 16], [2], [])
+    """
+    longer, factor, factors = max(int(n) for n in shape), 1, []
+    while -(-longer // factor) > block:
+        factor *= 2
+        factors.append(factor)
+    return factors
+
+
 def write_raster(path, array, grid: Grid, *, description: str, units: str, caution: str,
-                 tags: dict | None = None) -> Path:
+                 tags: dict | None = None, classes=None, resampling: str | None = None) -> Path:
     """Write one product band on the DEM grid, atomically.
 
     float arrays are written as float32 with nodata :data:`NODATA` (NaN and
     cells outside ``grid.valid`` become nodata); uint8 arrays (class codes)
     are written as uint8 with nodata :data:`CODE_NODATA`, int32 arrays (counts)
-    as int32 with nodata :data:`COUNT_NODATA`.
+    as int32 with nodata :data:`COUNT_NODATA`. A grid of :data:`COG_MIN_SIDE`
+    cells or more on its longer side is written as a Cloud-Optimized GeoTIFF
+    with the overviews of :func:`overview_factors`; a smaller one as a tiled
+    GeoTIFF. Both are deflate-compressed with a predictor, and two writes of
+    the same array give the same bytes.
 
     Parameters
     ----------
@@ -294,6 +344,14 @@ def write_raster(path, array, grid: Grid, *, description: str, units: str, cauti
         the screening caution stored in the dataset metadata.
     tags : dict, optional
         Extra dataset metadata.
+    classes : mapping, optional
+        ``code -> (label, colour)`` of a uint8 class band: written as the
+        band's colour table (:func:`colour_table`; ``colour`` a ``#rrggbb``
+        string or None). The labels are kept in the dataset metadata by the
+        caller's ``tags`` and in the sidecar of :func:`category_names_xml`.
+    resampling : {"average", "nearest"}, optional
+        How the overviews are computed. Default: ``"average"`` for float
+        bands, ``"nearest"`` for uint8 and int32 bands.
 
     Returns
     -------
@@ -303,7 +361,19 @@ def write_raster(path, array, grid: Grid, *, description: str, units: str, cauti
     Raises
     ------
     ValueError
-        Shape mismatch (rasterio would otherwise resample silently).
+        Shape mismatch (rasterio would otherwise resample silently), a colour
+        table on a band that is not uint8, or an unknown resampling.
+
+    Examples
+    --------
+    >>> import tempfile, numpy as np, rasterio
+    >>> g = Grid.regular((600, 300), west=0.0, north=6000.0, cell_m=10.0)
+    >>> with tempfile.TemporaryDirectory() as d:
+    ...     out = write_raster(f"{d}/p.tif", np.ones(g.shape, np.float32), g,
+    ...                        description="ones", units="1", caution="screening only")
+    ...     with rasterio.open(out) as src:
+    ...         src.tags(ns="IMAGE_STRUCTURE")["LAYOUT"], src.overviews(1)
+    ('COG', [2, 4])
     """
     path = Path(path)
     array = np.asarray(array)
@@ -315,19 +385,28 @@ def write_raster(path, array, grid: Grid, *, description: str, units: str, cauti
         dtype, nodata, predictor = "int32", COUNT_NODATA, 2
     else:
         dtype, nodata, predictor = "float32", float(NODATA), 3
+    if classes and dtype != "uint8":
+        raise ValueError(f"{path.name}: a colour table needs a uint8 class band, not {dtype}")
+    resampling = resampling or ("average" if dtype == "float32" else "nearest")
+    if resampling not in OVERVIEW_RESAMPLING:
+        raise ValueError(f"{path.name}: overview resampling {resampling!r} is not one of "
+                         f"{', '.join(OVERVIEW_RESAMPLING)}")
+    factors = overview_factors(grid.shape) if max(grid.shape) >= COG_MIN_SIDE else []
     profile = {
         "driver": "GTiff", "height": grid.shape[0], "width": grid.shape[1], "count": 1,
         "dtype": dtype, "crs": grid.crs, "transform": grid.transform, "nodata": nodata,
-        "tiled": True, "blockxsize": BLOCK, "blockysize": BLOCK, "compress": "deflate",
-        "zlevel": DEFLATE_LEVEL, "predictor": predictor, "BIGTIFF": "IF_SAFER",
-        "NUM_THREADS": "ALL_CPUS",
+        "tiled": True, "blockxsize": BLOCK, "blockysize": BLOCK, "BIGTIFF": "IF_SAFER",
     }
+    if not factors:  # the product itself; a COG's tiles are compressed by the copy
+        profile |= {"compress": "deflate", "zlevel": DEFLATE_LEVEL, "predictor": predictor,
+                    "NUM_THREADS": "ALL_CPUS"}
     tmp = path.with_name(f".{path.name}.partial")
+    tiles = path.with_name(f".{path.name}.tiles") if factors else tmp
     try:
-        with warnings.catch_warnings():
+        with warnings.catch_warnings(), rasterio.Env(GDAL_CACHEMAX=WRITE_CACHE_MB):
             # GDAL warns when the tile is larger than a small raster; harmless.
             warnings.simplefilter("ignore", rasterio.errors.NotGeoreferencedWarning)
-            with rasterio.open(tmp, "w", **profile) as dst:
+            with rasterio.open(tiles, "w", **profile) as dst:
                 if dst.shape != array.shape:
                     raise ValueError(f"{path.name}: writer shape {dst.shape} != data {array.shape}")
                 for r0 in range(0, grid.shape[0], BLOCK):  # one row of tiles at a time
@@ -337,11 +416,80 @@ def write_raster(path, array, grid: Grid, *, description: str, units: str, cauti
                 dst.set_band_description(1, description)
                 dst.update_tags(1, units=units)
                 dst.update_tags(CAUTION=caution, units=units, **(tags or {}))
+                if classes:
+                    dst.write_colormap(1, colour_table(classes))
+                if factors:
+                    dst.build_overviews(factors, Resampling[resampling])
+                    dst.update_tags(OVERVIEW_RESAMPLING=resampling)
+            if factors:
+                rasterio.shutil.copy(
+                    tiles, tmp, driver="COG", COMPRESS="DEFLATE", LEVEL=DEFLATE_LEVEL,
+                    PREDICTOR="YES", BLOCKSIZE=BLOCK, BIGTIFF="IF_SAFER",
+                    OVERVIEWS="FORCE_USE_EXISTING", NUM_THREADS="ALL_CPUS")
         os.replace(tmp, path)
     finally:
-        if tmp.exists():
-            tmp.unlink()
+        for left in {tmp, tiles}:
+            if left.exists():
+                left.unlink()
     return path
+
+
+def colour_table(classes) -> dict:
+    """The GDAL colour table of ``code -> (label, colour)``: RGBA per code.
+
+    A GeoTIFF colour table holds no transparency (TIFF palettes are RGB), so
+    a class without a colour (None: not coloured on the maps) is white, the
+    patch the maps' legends show for it; its SLD sidecar leaves it
+    transparent, and the nodata code is transparent by the band's nodata.
+
+    Examples
+    --------
+    >>> colour_table({0: ("nodata", None), 1: ("wet", "#24517f")})
+    {0: (255, 255, 255, 255), 1: (36, 81, 127, 255)}
+    """
+    table = {}
+    for code, (_label, colour) in sorted(classes.items()):
+        code = int(code)
+        if not 0 <= code <= 255:
+            raise ValueError(f"class code {code} does not fit a uint8 band (0 to 255)")
+        if colour is None:
+            table[code] = (255, 255, 255, 255)
+            continue
+        text = str(colour).lstrip("#")
+        if len(text) != 6:
+            raise ValueError(f"class {code}: colour {colour!r} is not of the form #rrggbb")
+        table[code] = (int(text[0:2], 16), int(text[2:4], 16), int(text[4:6], 16), 255)
+    return table
+
+
+def category_names_xml(classes) -> bytes:
+    """GDAL PAM sidecar (``KEY.tif.aux.xml``) naming the categories of a class band.
+
+    GDAL's GeoTIFF driver keeps a band's category names (what
+    ``GDALGetRasterCategoryNames`` returns, and what GIS legends of paletted
+    rasters show) only in this sidecar; entry ``i`` names value ``i``, codes
+    without a class get an empty name.
+
+    Examples
+    --------
+    >>> print(category_names_xml({0: ("nodata", None), 2: ("wet & weak", "#24517f")}).decode())
+    <PAMDataset>
+      <PAMRasterBand band="1">
+        <CategoryNames>
+          <Category>nodata</Category>
+          <Category></Category>
+          <Category>wet &amp; weak</Category>
+        </CategoryNames>
+      </PAMRasterBand>
+    </PAMDataset>
+    <BLANKLINE>
+    """
+    names = {int(code): label for code, (label, _colour) in classes.items()}
+    lines = ["<PAMDataset>", '  <PAMRasterBand band="1">', "    <CategoryNames>"]
+    lines += [f"      <Category>{escape(names.get(code, ''))}</Category>"
+              for code in range(max(names) + 1)]
+    lines += ["    </CategoryNames>", "  </PAMRasterBand>", "</PAMDataset>", ""]
+    return "\n".join(lines).encode("utf-8")
 
 
 def _encoded(block, valid, dtype, nodata):

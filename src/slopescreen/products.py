@@ -17,12 +17,13 @@ from dataclasses import dataclass, field
 from types import MappingProxyType
 
 from .report.styles import (
-    CLUSTER_BOUND_STYLE, FS_STYLE, PROBABILITY_STYLE, RECHARGE_STYLE, RUNOUT_STYLE, SCA_STYLE,
-    SLOPE_STYLE, WETNESS_STYLE, Style,
+    CLUSTER_BOUND_STYLE, FS_BANDS, FS_STYLE, PROBABILITY_STYLE, RECHARGE_STYLE, RUNOUT_STYLE,
+    SCA_STYLE, SLOPE_STYLE, WETNESS_STYLE, Style,
 )
 from .stability import CLASS_LABELS
 
-__all__ = ["ProductSpec", "PRODUCTS", "REGISTRY", "STYLES", "STORM_FLAGS", "spec", "title", "products_of_section"]
+__all__ = ["ProductSpec", "PRODUCTS", "REGISTRY", "STYLES", "STORM_FLAGS", "RECHARGE_CLASSES", "spec",
+           "title", "products_of_section"]
 
 STORM_FLAGS = MappingProxyType({
     1: "pressure head reached its cap (saturated to the surface)",
@@ -72,7 +73,19 @@ class ProductSpec:
         Metadata written with every copy of the product.
     extra_kinds : tuple of str
         Other kinds the same product is also written as (``"csv"``: the
-        table of a vector product), each its own manifest entry.
+        table of a vector product), each its own manifest entry. A raster
+        with a ``style`` or ``classes`` also gets ``"sld"`` (its OGC SLD
+        sidecar, ``KEY.sld``), one with ``classes`` ``"pam"`` (the GDAL PAM
+        sidecar naming its categories, ``KEY.tif.aux.xml``); both are added
+        here, not listed by the entry.
+    classes : mapping or None
+        ``code -> (label, colour)`` of a class raster (uint8): its colour
+        table, category names and SLD entries (colour ``#rrggbb``, or None
+        for a class the maps leave uncoloured).
+    resampling : str or None
+        How a raster's overviews are computed (``"average"`` or
+        ``"nearest"``); None: average for float32, nearest for classes,
+        flags and counts (see :attr:`overview_resampling`).
     """
 
     key: str
@@ -89,26 +102,74 @@ class ProductSpec:
     file: str | None = None
     tags: MappingProxyType = field(default_factory=lambda: MappingProxyType({}))
     extra_kinds: tuple = ()
+    classes: MappingProxyType | None = None
+    resampling: str | None = None
+
+    def __post_init__(self):
+        sidecars = []
+        if self.kind == "raster" and (self.style is not None or self.classes):
+            sidecars.append("sld")
+        if self.kind == "raster" and self.classes:
+            sidecars.append("pam")
+        extra = tuple(self.extra_kinds) + tuple(k for k in sidecars if k not in self.extra_kinds)
+        object.__setattr__(self, "extra_kinds", extra)
+
+    @property
+    def overview_resampling(self) -> str:
+        """How the overviews of this raster are computed.
+
+        Examples
+        --------
+        >>> spec("slope").overview_resampling, spec("cluster_labels").overview_resampling
+        ('average', 'nearest')
+        """
+        if self.resampling is not None:
+            return self.resampling
+        return "average" if self.dtype == "float32" else "nearest"
 
     def file_name(self, rain_slug: str | None = None, *, kind: str | None = None) -> str:
         """File name of this product (per rain case: ``KEY_RAIN.tif``).
 
-        ``kind`` ``"csv"`` names the table copy of a vector product (``KEY.csv``).
+        ``kind`` ``"csv"`` names the table copy of a vector product (``KEY.csv``),
+        ``"sld"`` and ``"pam"`` the style and category sidecars of a raster.
 
         Examples
         --------
         >>> spec("corridor_segments").file_name(kind="csv")
         'corridor_segments.csv'
+        >>> spec("factor_of_safety").file_name("wet", kind="sld")
+        'factor_of_safety_wet.sld'
+        >>> spec("critical_recharge_class").file_name(kind="pam")
+        'critical_recharge_class.tif.aux.xml'
         """
         kind = kind or self.kind
         ext = {"raster": "tif", "vector": "gpkg", "json": "json", "png": "png", "html": "html",
-               "csv": "csv"}[kind]
+               "csv": "csv", "sld": "sld", "pam": "tif.aux.xml"}[kind]
         if self.file is not None:
             return self.file if kind == self.kind else f"{self.file.rsplit('.', 1)[0]}.{ext}"
         return f"{self.key}_{rain_slug}.{ext}" if rain_slug else f"{self.key}.{ext}"
 
 
 _TERRAIN = "none (terrain product)"
+
+
+def _ramp_middle(style: Style) -> str:
+    """The colour a ramp style gives the middle of its range (``#rrggbb``)."""
+    from matplotlib.colors import to_hex
+
+    return to_hex(style.cmap()(0.5), keep_alpha=False)
+
+
+RECHARGE_CLASSES = MappingProxyType({
+    0: (CLASS_LABELS[0], None),
+    1: (CLASS_LABELS[1], FS_BANDS[0][2]),
+    2: (CLASS_LABELS[2], _ramp_middle(RECHARGE_STYLE)),
+    3: (CLASS_LABELS[3], None),
+})
+"""Classes of ``critical_recharge_class`` as the critical-recharge map draws them: fails
+even when dry in the colour of the lowest FS band, fails under enough recharge in the
+colour of the recharge ramp at its middle (the map shows the rate itself), stable even
+when saturated not coloured."""
 
 PRODUCTS = (
     ProductSpec("slope", "raster", "degrees", "Slope",
@@ -126,7 +187,8 @@ PRODUCTS = (
     ProductSpec("critical_recharge_class", "raster", "class", "Steady rain needed to fail: class",
                 "Stability class of the critical-recharge balance", "critical recharge",
                 dtype="uint8",
-                tags=MappingProxyType({f"CLASS_{k}": v for k, v in CLASS_LABELS.items()})),
+                tags=MappingProxyType({f"CLASS_{k}": v for k, v in CLASS_LABELS.items()}),
+                classes=RECHARGE_CLASSES),
     ProductSpec("wetness", "raster", "1", "Wetness",
                 "Wetness h_w/z (saturated fraction of the soil column)", "stability",
                 per_rain=True, dtype="float32", style=WETNESS_STYLE),
@@ -154,7 +216,8 @@ PRODUCTS = (
                 style=CLUSTER_BOUND_STYLE, section="clusters"),
     ProductSpec("cluster_labels", "raster", "id", "Failure clusters",
                 "Id of the failing cluster holding the cell (0 = none); see clusters.gpkg",
-                "clusters", per_rain=True, dtype="float32", section="clusters"),
+                "clusters", per_rain=True, dtype="float32", section="clusters",
+                resampling="nearest"),
     ProductSpec("clusters", "vector", "attributes carry their units in their names",
                 "Failure clusters", "Failing multi-cell clusters and the size-resolved search",
                 "clusters", section="clusters", file="clusters.gpkg"),

@@ -8,7 +8,9 @@ rasters for the report's pan-and-zoom map: reduced by blocks to at most
 :data:`~slopescreen.report.explorer.MAX_CELLS` cells, quantised and packed
 into a PNG (:func:`~slopescreen.report.explorer.explorer_copy`; about 11
 bytes per embedded cell while it is made, on the writer thread, and only
-the PNG, 0.1 to 1.5 bytes per embedded cell, kept). :mod:`slopescreen.pipeline.commit` moves the
+the PNG, 0.1 to 1.5 bytes per embedded cell, kept). A styled or class raster gets its
+sidecars at once (``KEY.sld``, and ``KEY.tif.aux.xml`` for class names), each
+its own manifest entry. :mod:`slopescreen.pipeline.commit` moves the
 staged files into the output folder as a whole.
 """
 
@@ -97,7 +99,31 @@ class _Writer:
         product = Product(key=emit.key, path=name, kind=kind, units=units,
                           rain=None if rain is None else rain.name)
         self.products.append(product)
+        if kind == "raster":
+            self._sidecars(entry, emit, name)
         return product
+
+    def _sidecars(self, entry, emit, name) -> None:
+        """The SLD style and the category names of a raster, beside it and in the manifest."""
+        from ..grid import category_names_xml
+        from ..sld import raster_sld
+
+        rain = emit.rain
+        slug = None if rain is None else rain.slug
+        for kind in ("sld", "pam"):
+            if kind not in entry.extra_kinds:
+                continue
+            if kind == "sld":
+                layer = name.rsplit(".", 1)[0]
+                heading = entry.title + ("" if rain is None else f": {rain.name}")
+                data = raster_sld(entry, layer=layer, title=heading, caution=SHORT,
+                                  extent_cells=emit.fields.get("extent"))
+            else:
+                data = category_names_xml(entry.classes)
+            side = entry.file_name(slug, kind=kind)
+            (self.staging / side).write_bytes(data)
+            self.products.append(Product(key=entry.key, path=side, kind=kind, units=entry.units,
+                                         rain=None if rain is None else rain.name))
 
     def _raster(self, entry, emit, name) -> None:
         data = emit.data
@@ -125,7 +151,8 @@ class _Writer:
         self._pending.append(self._pool.submit(
             write_raster, self.staging / name, data, self.grid,
             description=entry.description.format(**emit.fields), units=entry.units,
-            caution=SHORT, tags=(dict(entry.tags) | dict(emit.tags)) or None))
+            caution=SHORT, tags=(dict(entry.tags) | dict(emit.tags)) or None,
+            classes=entry.classes, resampling=entry.overview_resampling))
 
     def finish(self) -> None:
         """Wait for every background write; raise the first failure."""

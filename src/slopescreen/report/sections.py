@@ -388,32 +388,41 @@ def _products_section(ctx):
     if not any(p["key"] == "report" for p in products):
         products.append({"key": "report", "path": "report.html", "kind": "html", "units": "n/a"})
     groups: dict = {}
-    for p in products:     # one row per product: its files for every rain case together
-        groups.setdefault((p["key"], p["kind"]), []).append(p)
+    for p in products:     # one row per product: its files, kinds and rain cases together
+        groups.setdefault(p["key"], []).append(p)
     rows = []
-    for (key, kind), entries in groups.items():
+    for key, entries in groups.items():
         name = "Maps (one per mapped product and rain case)" if key == "map" else (
             "Report (this file)" if key == "report" else product_title(key))
-        rains = [e.get("rain") for e in entries if e.get("rain")]
-        files = ", ".join(e["path"] for e in entries)
+        rains = list(dict.fromkeys(e.get("rain") for e in entries if e.get("rain")))
+        kinds = list(dict.fromkeys(e["kind"] for e in entries))
         if key == "map":
             files = f"map_<product>[_<rain case>].png ({len(entries)} maps)"
-        elif key != "map" and len(rains) == len(entries) > 1:   # KEY_<rain case>.tif
-            from ..products import spec
-            from ..scenario import slugify
-
-            ext = entries[0]["path"].rsplit(".", 1)[-1]
-            if all(e["path"] == spec(key).file_name(slugify(e["rain"])) for e in entries):
-                files = f"{key}_<rain case>.{ext}"
-        rows.append([name, ", ".join(rains) if rains else "—", files, kind,
+        else:
+            files = ", ".join(_file_pattern(key, [e for e in entries if e["kind"] == k])
+                              for k in kinds)
+        rows.append([name, ", ".join(rains) if rains else "—", files, ", ".join(kinds),
                      "units of each product" if key == "map" else _units_text(entries[0]["units"])])
     return Section("products", "Products of this run", [
         para("Every product is listed in manifest.json beside this report, with its SHA-256; "
-             "rasters are GeoTIFF on the DEM grid with the caution in their metadata. A dash in "
-             "the rain-case column marks a product that does not depend on rain; <rain case> "
-             "in a file name stands for the case's name in lower case with dashes (“wet "
-             "season” → wet-season)."),
-        table("Products", ["product", "rain cases", "files", "kind", "units"], rows)])
+             "rasters are GeoTIFF on the DEM grid with the caution in their metadata, each "
+             "styled one with its SLD style (kind sld). A dash in the rain-case column marks a "
+             "product that does not depend on rain; <rain case> in a file name stands for the "
+             "case's name in lower case with dashes (“wet season” → wet-season)."),
+        table("Products", ["product", "rain cases", "files", "kinds", "units"], rows)])
+
+
+def _file_pattern(key, entries) -> str:
+    """The files of one product and kind: ``KEY_<rain case>.EXT`` when one per rain case."""
+    from ..scenario import slugify
+
+    if len(entries) > 1 and all(e.get("rain") for e in entries):
+        name = entries[0]["path"]
+        stem = f"{key}_{slugify(entries[0]['rain'])}"
+        if name.startswith(stem) and all(
+                e["path"] == f"{key}_{slugify(e['rain'])}{name[len(stem):]}" for e in entries):
+            return f"{key}_<rain case>{name[len(stem):]}"
+    return ", ".join(e["path"] for e in entries)
 
 
 def _provenance_section(ctx):

@@ -150,7 +150,7 @@ def _cluster_blocks(ctx: ReportContext, entries):
 def _runout_maps(ctx, entries):
     out = []
     for e in entries:
-        if e["key"] != "runout_count":
+        if e["key"] != "runout_count" or e.get("kind", "raster") != "raster":
             continue
         m = ctx.map_of(e["key"], e.get("rain"))
         if m is not None:
@@ -313,6 +313,8 @@ are the registry's entries of that section."""
 def _generic_stage_blocks(ctx: ReportContext, entries):
     blocks = []
     for e in entries:
+        if e.get("kind", "raster") != "raster":  # a raster's sidecars share its map
+            continue
         m = ctx.map_of(e["key"], e.get("rain"))
         if m is not None:
             blocks.append(figure(m.png, _map_alt(e), _map_caption(ctx, e)))
