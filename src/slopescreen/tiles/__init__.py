@@ -1,6 +1,29 @@
-"""Grid algorithms run tile by tile: depression filling across tiles and flats across tiles."""
+"""Grid algorithms run tile by tile: depression filling and drainage over flats across tiles."""
 
 from .fill import TileFill, TileSummary, fill_tile, fill_tiled, finish_tile, spill_levels, tile_windows
+from .flats import (
+    FlatSummary,
+    FlatTile,
+    flat_directions_tiled,
+    flat_groups,
+    flat_tile,
+    group_directions,
+    group_window,
+)
 
-__all__ = ["TileFill", "TileSummary", "fill_tile", "fill_tiled", "finish_tile", "spill_levels",
-           "tile_windows"]
+__all__ = [
+    "TileFill",
+    "TileSummary",
+    "fill_tile",
+    "spill_levels",
+    "finish_tile",
+    "fill_tiled",
+    "tile_windows",
+    "FlatSummary",
+    "FlatTile",
+    "flat_tile",
+    "flat_groups",
+    "group_window",
+    "group_directions",
+    "flat_directions_tiled",
+]

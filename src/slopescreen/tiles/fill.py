@@ -219,17 +219,18 @@ def fill_tile(z_tile, outside=(False, False, False, False)):
 
     Examples
     --------
-    A pit in a 3 x 4 tile whose east side touches another tile: the pit is
-    filled to its lowest edge cell (3 on the north side), and the cells on
-    the east edge keep their own watershed labels.
+    A pit in a 3 x 4 tile whose east side touches another tile: locally the
+    pit drains east over the 3 to the tile's edge cell at 2, which starts a
+    watershed of its own (label 2); the ring of 5 drains to the grid's
+    outside (label 1).
 
     >>> import numpy as np
-    >>> z = np.array([[5., 3., 5., 5.],
-    ...               [5., 1., 2., 6.],
-    ...               [5., 5., 5., 7.]])
+    >>> z = np.array([[5., 5., 5., 5.],
+    ...               [5., 1., 3., 2.],
+    ...               [5., 5., 5., 5.]])
     >>> t = fill_tile(z, outside=(True, True, True, False))
     >>> t.filled[1]
-    array([5., 3., 3., 6.])
+    array([5., 3., 3., 2.])
     >>> t.labels[:, 3].tolist(), t.summary.n_labels
     ([1, 2, 1], 3)
     """
@@ -392,21 +393,42 @@ def _check_layout(summaries, n_tile_rows, n_tile_cols):
                                  f"its column of tiles; tiles must form a grid")
 
 
-def _pairs(la, za, lb, zb, ga, gb, out):
-    """Spill-graph edges of the 8-neighbour pairs between two facing tile edges.
+def _facing_tiles(summaries, n_tile_rows, n_tile_cols):
+    """Every two tiles that touch (by a side or a corner), each pair once.
 
-    ``la``/``za`` and ``lb``/``zb`` are the labels and elevations of the two
-    facing lines (same length); cell ``t`` of one faces cells ``t - 1, t,
-    t + 1`` of the other. ``ga``/``gb`` map local labels to global ones.
+    Yields ``(t, u, side of t, side of u, pairs)`` with row-major tile
+    indices; the sides are the facing lines (``"east"``/``"west"`` or
+    ``"south"``/``"north"``) and ``pairs`` lists slices ``(of t's line, of
+    u's line)`` that put 8-neighbours face to face: across a side, cell k
+    faces cells k - 1, k and k + 1; tiles that meet at a corner face by
+    their corner cells only.
     """
-    n = la.shape[0]
+    for i in range(n_tile_rows):
+        for j in range(n_tile_cols):
+            t = i * n_tile_cols + j
+            if j + 1 < n_tile_cols:
+                yield t, t + 1, "east", "west", _shifts(summaries[t].shape[0])
+            if i + 1 < n_tile_rows:
+                u = t + n_tile_cols
+                yield t, u, "south", "north", _shifts(summaries[t].shape[1])
+                if j + 1 < n_tile_cols:  # south-east corner
+                    yield t, u + 1, "south", "north", [(slice(-1, None), slice(0, 1))]
+                if j > 0:  # south-west corner
+                    yield t, u - 1, "south", "north", [(slice(0, 1), slice(-1, None))]
+
+
+def _shifts(n):
+    """Slices of two facing lines of ``n`` cells that pair cell k with k + d, d = -1, 0, 1."""
+    out = []
     for d in (-1, 0, 1):
         lo, hi = max(0, -d), min(n, n - d)
         if lo < hi:
-            _edge_pairs(la[lo:hi], za[lo:hi], lb[lo + d:hi + d], zb[lo + d:hi + d], ga, gb, out)
+            out.append((slice(lo, hi), slice(lo + d, hi + d)))
+    return out
 
 
 def _edge_pairs(la, za, lb, zb, ga, gb, out):
+    """Spill-graph edges (global a, global b, weight) of cells facing one to one."""
     va = la != NODATA_LABEL
     vb = lb != NODATA_LABEL
     both = va & vb
@@ -457,11 +479,12 @@ def spill_levels(summaries, n_tile_rows, n_tile_cols):
     Examples
     --------
     Two 3 x 3 tiles side by side; the west tile's pit (1) can only spill
-    east, over the 4 on the shared boundary and the east tile's edge at 2.
+    east, over the 4 on the shared boundary, to the outlet at 0 on the grid's
+    east edge.
 
     >>> import numpy as np
     >>> z = np.array([[9., 9., 9., 9., 9., 9.],
-    ...               [9., 1., 4., 3., 2., 9.],
+    ...               [9., 1., 4., 3., 2., 0.],
     ...               [9., 9., 9., 9., 9., 9.]])
     >>> a = fill_tile(z[:, :3], outside=(True, True, True, False))
     >>> b = fill_tile(z[:, 3:], outside=(True, True, False, True))
@@ -470,7 +493,8 @@ def spill_levels(summaries, n_tile_rows, n_tile_cols):
     4.0
     """
     summaries = list(summaries)
-    _check_layout(summaries, int(n_tile_rows), int(n_tile_cols))
+    n_tile_rows, n_tile_cols = int(n_tile_rows), int(n_tile_cols)
+    _check_layout(summaries, n_tile_rows, n_tile_cols)
     gmaps = []
     base = 1  # global node 0 is the ocean
     for s in summaries:
@@ -483,24 +507,12 @@ def spill_levels(summaries, n_tile_rows, n_tile_cols):
     parts = []
     for s, g in zip(summaries, gmaps):
         parts.append((g[s.pass_a], g[s.pass_b], s.pass_z))
-    for i in range(n_tile_rows):
-        for j in range(n_tile_cols):
-            t = i * n_tile_cols + j
-            a, ga = summaries[t], gmaps[t]
-            if j + 1 < n_tile_cols:
-                b, gb = summaries[t + 1], gmaps[t + 1]
-                _pairs(a.east_labels, a.east_z, b.west_labels, b.west_z, ga, gb, parts)
-            if i + 1 < n_tile_rows:
-                b, gb = summaries[t + n_tile_cols], gmaps[t + n_tile_cols]
-                _pairs(a.south_labels, a.south_z, b.north_labels, b.north_z, ga, gb, parts)
-                if j + 1 < n_tile_cols:  # south-east corner
-                    b, gb = summaries[t + n_tile_cols + 1], gmaps[t + n_tile_cols + 1]
-                    _edge_pairs(a.south_labels[-1:], a.south_z[-1:], b.north_labels[:1],
-                                b.north_z[:1], ga, gb, parts)
-                if j > 0:  # south-west corner
-                    b, gb = summaries[t + n_tile_cols - 1], gmaps[t + n_tile_cols - 1]
-                    _edge_pairs(a.south_labels[:1], a.south_z[:1], b.north_labels[-1:],
-                                b.north_z[-1:], ga, gb, parts)
+    for t, u, side_a, side_b, shifts in _facing_tiles(summaries, n_tile_rows, n_tile_cols):
+        a, b = summaries[t], summaries[u]
+        la, za = getattr(a, side_a + "_labels"), getattr(a, side_a + "_z")
+        lb, zb = getattr(b, side_b + "_labels"), getattr(b, side_b + "_z")
+        for sa, sb in shifts:
+            _edge_pairs(la[sa], za[sa], lb[sb], zb[sb], gmaps[t], gmaps[u], parts)
     ea = np.concatenate([p[0] for p in parts]).astype(np.int64)
     eb = np.concatenate([p[1] for p in parts]).astype(np.int64)
     ew = np.concatenate([p[2] for p in parts]).astype(np.float64)
@@ -583,15 +595,18 @@ def finish_tile(tile, spill):
 
     Examples
     --------
+    The two tiles of :func:`spill_levels`' example, finished: the pit is
+    raised to its spill level, 4.
+
     >>> import numpy as np
     >>> z = np.array([[9., 9., 9., 9., 9., 9.],
-    ...               [9., 1., 4., 3., 2., 9.],
+    ...               [9., 1., 4., 3., 2., 0.],
     ...               [9., 9., 9., 9., 9., 9.]])
-    >>> a = fill_tile(z[:, :3], outside=(True, True, True, False))
-    >>> b = fill_tile(z[:, 3:], outside=(True, True, False, True))
-    >>> sa, sb = spill_levels([a.summary, b.summary], 1, 2)
-    >>> np.hstack([finish_tile(a, sa), finish_tile(b, sb)])[1]
-    array([9., 4., 4., 3., 2., 9.])
+    >>> tiles = [fill_tile(z[:, :3], (True, True, True, False)),
+    ...          fill_tile(z[:, 3:], (True, True, False, True))]
+    >>> spill = spill_levels([t.summary for t in tiles], 1, 2)
+    >>> np.hstack([finish_tile(t, s) for t, s in zip(tiles, spill)])[1]
+    array([9., 4., 4., 3., 2., 0.])
     """
     spill = np.asarray(spill, dtype=np.float64)
     if spill.ndim != 1 or spill.shape[0] < tile.summary.n_labels:
