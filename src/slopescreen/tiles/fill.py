@@ -58,7 +58,7 @@ from .. import _validate
 from .._neighbours import DCOL, DROW, linear_offsets, pad_nan, unpad
 from .._numba import njit
 from .._stoppable import POLL, call
-from ..errors import InputError
+from ..errors import InputError, SlopescreenError
 from ..terrain import (
     _heap_pop,
     _heap_push,
@@ -254,7 +254,7 @@ def fill_tile(z_tile, outside=(False, False, False, False)):
                                 sides[1], sides[2], sides[3], packed, bits, heap, keys, idx, pit,
                                 labels, DROW, DCOL, stop=True)
     if n_labels < 0:  # stopped by a signal; the caller's exception follows
-        raise InputError("fill_tile: stopped before the end")
+        raise SlopescreenError("fill_tile: stopped before the end (a stop signal)")
     lab = np.ascontiguousarray(unpad(labels.reshape(zp.shape)))
     filled = np.ascontiguousarray(unpad(zp))
     zf = filled.astype(np.float64)
@@ -528,7 +528,7 @@ def spill_levels(summaries, n_tile_rows, n_tile_cols):
     level = np.full(n_nodes, np.inf)
     done = call(_graph_flood_kernel, start, dst, wgt, level, stop=True)
     if done < 0:
-        raise InputError("spill_levels: stopped before the end")
+        raise SlopescreenError("spill_levels: stopped before the end (a stop signal)")
     out = []
     for g in gmaps:
         s = level[g]

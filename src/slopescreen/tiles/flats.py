@@ -46,7 +46,7 @@ from .. import _validate
 from .._neighbours import linear_offsets, pad_nan
 from .._numba import njit
 from .._stoppable import POLL, call
-from ..errors import InputError
+from ..errors import InputError, SlopescreenError
 from ..routing.flats import _FLAT, _flat_classes_kernel, _flat_directions_padded
 from .fill import _facing_tiles, tile_windows
 
@@ -159,7 +159,7 @@ def flat_tile(z_halo):
     out = call(_edge_flats_kernel, flat, cls, h, w, offsets, comp, cells, stop=True)
     n_flats, n_cells = int(out[0]), int(out[1])
     if n_flats < 0:
-        raise InputError("flat_tile: stopped before the end")
+        raise SlopescreenError("flat_tile: stopped before the end (a stop signal)")
     starts = out[2:2 + n_flats + 1].copy()
     comp2 = comp.reshape(zp.shape)[1:-1, 1:-1]
     zin = zp[1:-1, 1:-1].astype(np.float64)
