@@ -14,9 +14,10 @@ bounded width suffices. On a filled grid cut into tiles:
    whose edge cells are 8-neighbours of equal elevation are one flat
    (connected components over the tile-edge labels); each such gathered flat
    is returned as its list of cells in grid coordinates.
-3. :func:`group_directions`, per gathered flat, on the window of the filled
-   grid that holds the flat and its neighbours: the whole-grid method on that
-   window, whose directions on the flat's cells equal the whole grid's.
+3. :func:`group_directions`, over the gathered flats, each on the window of
+   the filled grid that holds the flat and its neighbours: the whole-grid
+   method on that window, whose directions on the flat's cells equal the
+   whole grid's.
 
 :func:`flat_directions_tiled` runs the three steps serially in memory.
 
@@ -341,41 +342,61 @@ def group_window(rows, cols, shape):
             max(int(cols.min()) - 1, 0), min(int(cols.max()) + 2, shape[1]))
 
 
-def group_directions(window, rows, cols):
-    """Flat directions of one gathered flat, from the window of the filled grid around it.
+def group_directions(items):
+    """Flat directions of gathered flats, from the windows of the filled grid around them.
 
     Parameters
     ----------
-    window : numpy.ndarray of float32 or float64
-        The filled grid over :func:`group_window`'s bounds.
-    rows, cols : numpy.ndarray of int
-        The flat's cells in window coordinates.
+    items : sequence of (window, rows, cols)
+        Per gathered flat: the filled grid over :func:`group_window`'s
+        bounds (float32 or float64, one dtype for all) and the flat's cells
+        in window coordinates.
 
     Returns
     -------
-    numpy.ndarray of uint8
-        The direction of each cell, equal to the whole grid's.
+    list of numpy.ndarray of uint8
+        Per flat, the direction of each of its cells, equal to the whole
+        grid's.
 
     Notes
     -----
-    The window holds every cell of the flat and all their neighbours, so
-    the classes of the flat's cells, its low and high edges and the
-    distances across it are those of the whole grid. Cells at the window's
-    border may change class (NaN beyond it), but only from "slope" to
-    "outlet", both of which count alike as low edge, and directions only
-    compare cells of one flat.
+    A window holds every cell of its flat and all their neighbours, so the
+    classes of the flat's cells, its low and high edges and the distances
+    across it are those of the whole grid. Cells at the window's border may
+    change class (NaN beyond it), but only from "slope" to "outlet", both of
+    which count alike as low edge, and directions only compare cells of one
+    flat. Windows are stacked, NaN rows between them, into one grid per
+    width class (widths within a factor of 2), so that a few calls of the
+    whole-grid method serve thousands of small flats.
 
     Examples
     --------
     >>> import numpy as np
     >>> z = np.full((3, 4), 2.0)
-    >>> z[1, 1:3] = 1.0
-    >>> z[1, 3] = 1.0
-    >>> group_directions(z, np.array([1, 1]), np.array([1, 2])).tolist()
-    [0, 0]
+    >>> z[1, 1:] = 1.0
+    >>> [d.tolist() for d in group_directions([(z, np.array([1, 1]), np.array([1, 2]))])]
+    [[0, 0]]
     """
-    dirs, _ = _flat_directions_padded(pad_nan(window))
-    return dirs[np.asarray(rows) + 1, np.asarray(cols) + 1]
+    items = list(items)
+    out = [None] * len(items)
+    if not items:
+        return out
+    dtype = np.asarray(items[0][0]).dtype
+    widths = np.array([np.asarray(w).shape[1] for w, _, _ in items])
+    width_class = np.ceil(np.log2(widths)).astype(np.int64)
+    for k in np.unique(width_class):
+        members = np.flatnonzero(width_class == k)
+        heights = np.array([np.asarray(items[m][0]).shape[0] for m in members])
+        offsets = np.concatenate([[0], np.cumsum(heights + 1)])
+        mosaic = np.full((int(offsets[-1]) - 1, int(widths[members].max())), np.nan, dtype=dtype)
+        for m, o in zip(members, offsets):
+            window = np.asarray(items[m][0], dtype=dtype)
+            mosaic[o:o + window.shape[0], :window.shape[1]] = window
+        dirs, _ = _flat_directions_padded(pad_nan(mosaic))
+        for m, o in zip(members, offsets):
+            _, rows, cols = items[m]
+            out[m] = dirs[np.asarray(rows) + o + 1, np.asarray(cols) + 1]
+    return out
 
 
 def flat_directions_tiled(z, tile_size):
@@ -420,8 +441,12 @@ def flat_directions_tiled(z, tile_size):
             out[r0:r1, c0:c1] = t.directions
             summaries.append(t.summary)
             origins.append((r0, c0))
-    for rows, cols in flat_groups(summaries, len(rows_b), len(cols_b), origins):
+    groups = flat_groups(summaries, len(rows_b), len(cols_b), origins)
+    items = []
+    for rows, cols in groups:
         r0, r1, c0, c1 = group_window(rows, cols, arr.shape)
-        out[rows, cols] = group_directions(zp[r0 + 1:r1 + 1, c0 + 1:c1 + 1], rows - r0, cols - c0)
+        items.append((zp[r0 + 1:r1 + 1, c0 + 1:c1 + 1], rows - r0, cols - c0))
+    for (rows, cols), dirs in zip(groups, group_directions(items)):
+        out[rows, cols] = dirs
     return out
 
