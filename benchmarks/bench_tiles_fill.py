@@ -7,7 +7,7 @@ equal bit for bit, and prints seconds, the ratio, the size of the spill graph an
 each step (tile floods, graph, finishing). With ``--flats`` it also times
 :func:`slopescreen.tiles.flat_directions_tiled` against
 :func:`slopescreen.routing.drainage_over_flats` on the filled grid. Peak resident memory is
-measured per method in a fresh child process (``ru_maxrss`` only grows within a process).
+measured per method in a fresh child process (Linux VmHWM, reset after the warm-up).
 
 Usage::
 
@@ -25,7 +25,7 @@ import time
 
 import numpy as np
 
-from bench_fill import best_of, fractal_dem, peak_rss_mb
+from bench_fill import best_of, fractal_dem, peak_rss_mb  # same folder
 from slopescreen.routing import drainage_over_flats
 from slopescreen.terrain import fill_depressions
 from slopescreen.tiles import (
@@ -60,19 +60,27 @@ def steps(dem, tile_size):
 
 
 def child_rss(path, method, tile_size):
-    """Peak RSS of a fresh process that loads the DEM and runs one method once (MB)."""
+    """Resident memory of a fresh process that loads the DEM and runs one method once (MB).
+
+    Returns (resident after loading and warming up, peak during the method). The peak is
+    Linux's VmHWM, reset after the warm-up (``/proc/self/clear_refs``), so that the memory
+    of compiling or loading the kernels does not hide the method's own peak.
+    """
     code = (
-        "import sys, numpy as np, resource\n"
-        "sys.path.insert(0, %r)\n"
-        "from bench_fill import peak_rss_mb\n"
+        "import numpy as np\n"
         "from slopescreen.terrain import fill_depressions\n"
         "from slopescreen.tiles import fill_tiled\n"
+        "def status(key):\n"
+        "    for line in open('/proc/self/status'):\n"
+        "        if line.startswith(key):\n"
+        "            return int(line.split()[1]) / 1024.0\n"
         "dem = np.load(%r)\n"
         "small = dem[:64, :64].copy(); fill_depressions(small); fill_tiled(small, 16)\n"
-        "before = peak_rss_mb()\n"
+        "open('/proc/self/clear_refs', 'w').write('5')\n"
+        "before = status('VmRSS')\n"
         "out = fill_depressions(dem) if %r == 'whole' else fill_tiled(dem, %d)\n"
-        "print(before, peak_rss_mb())\n"
-    ) % (os.path.dirname(os.path.abspath(__file__)), path, method, tile_size)
+        "print(before, status('VmHWM'))\n"
+    ) % (path, method, tile_size)
     out = subprocess.run([sys.executable, "-c", code], check=True, capture_output=True,
                          text=True).stdout.split()
     return float(out[0]), float(out[1])
@@ -105,8 +113,8 @@ def main(argv=None):
         t_whole, whole = best_of(lambda: fill_depressions(dem), args.repeat)
         print(f"whole-grid fill_depressions: {t_whole:.3f} s (best of {args.repeat})")
         b, a = child_rss(path, "whole", 0)
-        print(f"  peak RSS (child): {b:.0f} MB loaded, {a:.0f} MB after the fill "
-              f"(+{(a - b) * 2**20 / (n * n):.1f} B/cell)")
+        print(f"  peak RSS (child): {b:.0f} MB loaded, {a:.0f} MB peak during the fill "
+              f"(+{(a - b) * 2**20 / (n * n):.1f} B/cell, output included)")
         for ts in args.tiles:
             t_tiled, tiled = best_of(lambda: fill_tiled(dem, ts), args.repeat)
             equal = np.array_equal(tiled, whole)
@@ -118,8 +126,8 @@ def main(argv=None):
             print(f"  spill graph: {nodes:,} nodes (perimeter cells {perimeter:,}), "
                   f"{passes:,} passes inside tiles, {pairs:,} cell pairs across boundaries")
             b, a = child_rss(path, "tiled", ts)
-            print(f"  peak RSS (child): {b:.0f} MB loaded, {a:.0f} MB after the fill "
-                  f"(+{(a - b) * 2**20 / (n * n):.1f} B/cell)")
+            print(f"  peak RSS (child): {b:.0f} MB loaded, {a:.0f} MB peak during the fill "
+                  f"(+{(a - b) * 2**20 / (n * n):.1f} B/cell, output included)")
             if not equal:
                 raise SystemExit("results differ")
             del tiled
