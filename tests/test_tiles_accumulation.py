@@ -34,9 +34,9 @@ from slopescreen.tiles import (
     perimeter_cells,
     solve_perimeter,
     tile_flow_map,
-    tile_windows,
 )
 from slopescreen.tiles import accumulation as tiled
+from slopescreen.tiles.accumulation import tile_windows
 
 METHOD_CODE = {"dinf": 0, "d8": 2}
 

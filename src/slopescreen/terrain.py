@@ -169,12 +169,34 @@ def _fill_depressions_padded(zp, *, epsilon=False, return_heap_count=False):
 
     flat = zp.reshape(-1)
     ncols = zp.shape[1]
+    packed, bits, heap, keys, idx, pit = _flood_queues(zp)
+    up = zp.dtype.type(np.inf)
+    heap_count = call(_fill_kernel, flat, ncols, linear_offsets(ncols), bool(epsilon), up,
+                      packed, bits, heap, keys, idx, pit, DROW, DCOL, stop=True)
+    if return_heap_count:
+        return zp, int(heap_count)
+    return zp
+
+
+def _flood_queues(zp):
+    """Empty heap and pit queue for a Priority-Flood over the padded grid ``zp``.
+
+    float32 elevations and a 32-bit cell index pack into one uint64 heap key
+    (order-preserving bits of the elevation, then the index as tie-break):
+    one array and one integer comparison per heap step. Otherwise the heap
+    keeps elevation and index in two arrays.
+
+    Returns
+    -------
+    packed : bool
+        Whether the heap is ``heap`` (packed keys from ``bits``, the uint32
+        view of ``zp``) rather than the pair ``keys``/``idx``.
+    bits, heap, keys, idx, pit : numpy.ndarray
+        Storage (the unused ones one element long); all grow by doubling.
+    """
+    flat = zp.reshape(-1)
     index_dtype = np.int32 if flat.size <= np.iinfo(np.int32).max else np.int64
     capacity = _pow2_at_least(max(_HEAP_MIN_CAPACITY, 2 * (zp.shape[0] + zp.shape[1])))
-    # float32 elevations and a 32-bit cell index pack into one uint64 heap key
-    # (order-preserving bits of the elevation, then the index as tie-break):
-    # one array and one integer comparison per heap step. Otherwise the heap
-    # keeps elevation and index in two arrays.
     packed = zp.dtype == np.float32 and flat.size <= 2**32
     if packed:
         bits = flat.view(np.uint32)
@@ -187,12 +209,7 @@ def _fill_depressions_padded(zp, *, epsilon=False, return_heap_count=False):
         keys = np.empty(capacity, dtype=zp.dtype)
         idx = np.empty(capacity, dtype=index_dtype)
     pit = np.empty(_PIT_MIN_CAPACITY, dtype=index_dtype)
-    up = zp.dtype.type(np.inf)
-    heap_count = call(_fill_kernel, flat, ncols, linear_offsets(ncols), bool(epsilon), up,
-                      packed, bits, heap, keys, idx, pit, DROW, DCOL, stop=True)
-    if return_heap_count:
-        return zp, int(heap_count)
-    return zp
+    return packed, bits, heap, keys, idx, pit
 
 
 def _pow2_at_least(n):
