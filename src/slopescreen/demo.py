@@ -5,8 +5,15 @@ long and 1.5 km across, cut into a dissected upland:
 
 * two valley sides rising to ridge crests that run inside the grid, with the
   ground falling away again beyond them toward the neighbouring valleys;
-* convergent hollows every ~110-170 m down both sides, a larger tributary
-  valley on each side, and spurs between them;
+* branching hollows down both sides: main hollows at irregular spacing
+  (lognormal steps, median about 105 m) and of varied length, many of them
+  joined upslope of the valley floor by one to three tributary hollows;
+  spurs between them, with low convex spur noses in the wider gaps; a larger
+  tributary valley on each side;
+* a bench along the contour on each side, where the slope nearly levels out
+  over a band some 40 m wide, with steeper ground above and below it;
+* power-law (spectral-synthesis) roughness of a few metres over everything
+  but the floodplain;
 * a narrow floodplain with a meandering stream incised into it;
 * a forest road along the north-facing (south) valley side, benched into the
   slope with a cut slope above it and a short fill below it where it crosses
@@ -16,8 +23,9 @@ long and 1.5 km across, cut into a dissected upland:
   clear-cut harvest units, mapped as five soil units because root cohesion
   differs between forest and clear-cut;
 * a steady wet-season case and a storm case;
-* a small inventory of mapped landslides in hollows (GeoJSON polygons) and the
-  road centreline (GeoJSON line) for the corridor stage.
+* a small inventory of mapped landslides (GeoJSON polygons) on hollow axes
+  where the ground is concave and steep, and the road centreline (GeoJSON
+  line) for the corridor stage.
 
 Everything comes from fixed seeds, so every run sees the same valley. The
 parameter values are screening values in the ranges of common practice
@@ -174,8 +182,6 @@ class _Axis:
         Depth of the hollow (height of the spur) on its axis, m.
     width : numpy.ndarray of float64
         Gaussian half-width across the axis, m.
-    main : bool
-        A main hollow (its toe on the valley floor) rather than a tributary hollow.
     """
 
     north: bool
@@ -183,11 +189,10 @@ class _Axis:
     x: np.ndarray
     depth: np.ndarray
     width: np.ndarray
-    main: bool = True
 
 
 def _main_positions(rng, width_m, avoid):
-    """Eastings (m) of the main hollows of one side: irregular, lognormal steps of ~110 m.
+    """Eastings (m) of the main hollows of one side: irregular, lognormal steps (median 105 m).
 
     ``avoid`` lists (easting, half-width) of tributary valleys, where no hollow is put.
     """
@@ -231,7 +236,7 @@ def _tributary(rng, trunk, share, sign, reach):
     depth_j = float(np.interp(uj, trunk.u, trunk.depth)) * float(rng.uniform(0.6, 0.9))
     width_j = float(np.interp(uj, trunk.u, trunk.width)) * 0.8
     return _Axis(trunk.north, u, x, depth_j * np.cos(0.5 * np.pi * t) ** 0.6,
-                 width_j * (1.0 + 0.5 * t), main=False)
+                 width_j * (1.0 + 0.5 * t))
 
 
 def _spur(rng, north, x0):
@@ -435,7 +440,7 @@ def build_valley(rows=380, cols=560, cell_m=4.0, seed=DEMO_SEED) -> Valley:
     d = np.abs(Y - yc)
     plain = PLAIN_M
     crest = _crest_m(X, north, height_m)
-    relief = np.where(north, 240.0, 275.0) + 25.0 * np.sin(2 * np.pi * X / 1700.0 + 0.4)
+    relief = np.where(north, 230.0, 262.0) + 25.0 * np.sin(2 * np.pi * X / 1700.0 + 0.4)
     u = (d - plain) / (crest - plain)               # 0 at the valley toe, 1 at the crest
     floor = 205.0 - 0.022 * X + 0.015 * np.minimum(d, plain)
     beyond = np.clip(u - 1.0, 0.0, None) * (crest - plain) / 420.0
