@@ -6,7 +6,7 @@ long and 1.5 km across, cut into a dissected upland:
 * two valley sides rising to ridge crests that run inside the grid, with the
   ground falling away again beyond them toward the neighbouring valleys;
 * branching hollows down both sides: main hollows at irregular spacing
-  (lognormal steps, median about 105 m) and of varied length, many of them
+  (lognormal steps, median about 140 m) and of varied length, many of them
   joined upslope of the valley floor by one to three tributary hollows;
   spurs between them, with low convex spur noses in the wider gaps; a larger
   tributary valley on each side;
@@ -192,13 +192,13 @@ class _Axis:
 
 
 def _main_positions(rng, width_m, avoid):
-    """Eastings (m) of the main hollows of one side: irregular, lognormal steps (median 105 m).
+    """Eastings (m) of the main hollows of one side: irregular, lognormal steps (median 140 m).
 
     ``avoid`` lists (easting, half-width) of tributary valleys, where no hollow is put.
     """
     xs = [float(rng.uniform(15.0, 70.0))]
     while True:
-        step = float(np.clip(rng.lognormal(math.log(105.0), 0.6), 38.0, 330.0))
+        step = float(np.clip(rng.lognormal(math.log(140.0), 0.6), 45.0, 360.0))
         if xs[-1] + step > width_m - 15.0:
             break
         xs.append(xs[-1] + step)
