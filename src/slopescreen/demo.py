@@ -5,8 +5,15 @@ long and 1.5 km across, cut into a dissected upland:
 
 * two valley sides rising to ridge crests that run inside the grid, with the
   ground falling away again beyond them toward the neighbouring valleys;
-* convergent hollows every ~110-170 m down both sides, a larger tributary
-  valley on each side, and spurs between them;
+* branching hollows down both sides: main hollows at irregular spacing
+  (lognormal steps, median about 140 m) and of varied length, many of them
+  joined upslope of the valley floor by one to three tributary hollows;
+  spurs between them, with low convex spur noses in the wider gaps; a larger
+  tributary valley on each side;
+* a bench along the contour on each side, where the slope nearly levels out
+  over a band some 40 m wide, with steeper ground above and below it;
+* power-law (spectral-synthesis) roughness of a few metres over everything
+  but the floodplain;
 * a narrow floodplain with a meandering stream incised into it;
 * a forest road along the north-facing (south) valley side, benched into the
   slope with a cut slope above it and a short fill below it where it crosses
@@ -16,8 +23,9 @@ long and 1.5 km across, cut into a dissected upland:
   clear-cut harvest units, mapped as five soil units because root cohesion
   differs between forest and clear-cut;
 * a steady wet-season case and a storm case;
-* a small inventory of mapped landslides in hollows (GeoJSON polygons) and the
-  road centreline (GeoJSON line) for the corridor stage.
+* a small inventory of mapped landslides (GeoJSON polygons) on hollow axes
+  where the ground is concave and steep, and the road centreline (GeoJSON
+  line) for the corridor stage.
 
 Everything comes from fixed seeds, so every run sees the same valley. The
 parameter values are screening values in the ranges of common practice
@@ -83,6 +91,217 @@ def _s_curve(u):
     return 0.5 * (1.0 - np.cos(np.pi * np.clip(u, 0.0, 1.0)))
 
 
+PLAIN_M = 28.0
+"""Half-width of the demo floodplain, m."""
+
+
+def _stream_y(x, height_m):
+    """Stream line: metres south of the grid's north edge at eastings ``x`` (m from the west edge)."""
+    return (0.53 * height_m + 38.0 * np.sin(2 * np.pi * x / 1500.0 + 0.7)
+            + 12.0 * np.sin(2 * np.pi * x / 430.0 + 1.3))
+
+
+def _crest_m(x, north, height_m):
+    """Distance (m) from the stream to the ridge crest of the north (or south) side at ``x``."""
+    return np.where(north, 0.38 * height_m + 45.0 * np.sin(2 * np.pi * x / 900.0),
+                    0.36 * height_m + 35.0 * np.cos(2 * np.pi * x / 1100.0))
+
+
+def _side_y(x, u, north, height_m):
+    """Metres south of the north edge of the point at height fraction ``u`` of a valley side.
+
+    ``u`` is 0 at the foot of the side (the edge of the floodplain) and 1 at its crest.
+
+    Examples
+    --------
+    >>> y_toe = _side_y(np.array([500.0]), np.array([0.0]), True, 1520.0)
+    >>> bool(abs(_stream_y(500.0, 1520.0) - y_toe[0] - PLAIN_M) < 1e-9)
+    True
+    """
+    dist = PLAIN_M + u * (_crest_m(x, north, height_m) - PLAIN_M)
+    stream = _stream_y(x, height_m)
+    return stream - dist if north else stream + dist
+
+
+def _bench_u(u, strength):
+    """Height fraction ``u`` warped so that a valley side levels out into a bench.
+
+    The gradient of the warped fraction along ``u`` is proportional to
+    ``1 - strength * exp(-((u - BENCH_U) / BENCH_W) ** 2)``: a band of low slope along the
+    contour at ``BENCH_U``, with slightly steeper ground above and below it. The warp keeps
+    0 at the toe and 1 at the crest, so the side's relief is unchanged; ``strength`` 0 leaves
+    ``u`` as it is.
+
+    Parameters
+    ----------
+    u : numpy.ndarray of float64
+        Height fraction of each cell (0 toe, 1 crest; outside [0, 1] left unchanged).
+    strength : numpy.ndarray of float64
+        0 (no bench) to below 1 (nearly level), per cell.
+
+    Examples
+    --------
+    >>> u = np.array([0.0, 0.3, BENCH_U, 1.0])
+    >>> w = _bench_u(u, np.full(4, 0.85))
+    >>> bool(w[0] == 0.0 and abs(w[-1] - 1.0) < 1e-12 and np.all(np.diff(w) > 0))
+    True
+    """
+    from scipy.special import erf
+
+    half = 0.5 * math.sqrt(math.pi) * BENCH_W
+    uc = np.clip(u, 0.0, 1.0)
+    lowered = erf((uc - BENCH_U) / BENCH_W) + erf(BENCH_U / BENCH_W)
+    whole = math.erf((1.0 - BENCH_U) / BENCH_W) + math.erf(BENCH_U / BENCH_W)
+    warped = (uc - strength * half * lowered) / (1.0 - strength * half * whole)
+    return np.where((u >= 0.0) & (u <= 1.0), warped, u)
+
+
+BENCH_U = 0.6
+"""Height fraction of the demo's benches (0 toe, 1 crest)."""
+
+BENCH_W = 0.05
+"""Half-width of a bench in height fraction (about 25 m on the ground)."""
+
+BENCHES = ((True, 0.33, 0.60, 0.85), (False, 0.74, 1.05, 0.8))
+"""Benches: (north side?, west end, east end as fractions of the valley length, strength)."""
+
+
+@dataclass(frozen=True)
+class _Axis:
+    """The axis of one hollow (or spur) on a valley side, sampled along the height fraction.
+
+    Attributes
+    ----------
+    north : bool
+        On the north valley side (else the south).
+    u : numpy.ndarray of float64
+        Height fractions along the axis, increasing (0 toe, 1 crest).
+    x : numpy.ndarray of float64
+        Easting of the axis at each ``u``, m from the west edge.
+    depth : numpy.ndarray of float64
+        Depth of the hollow (height of the spur) on its axis, m.
+    width : numpy.ndarray of float64
+        Gaussian half-width across the axis, m.
+    """
+
+    north: bool
+    u: np.ndarray
+    x: np.ndarray
+    depth: np.ndarray
+    width: np.ndarray
+
+
+def _main_positions(rng, width_m, avoid):
+    """Eastings (m) of the main hollows of one side: irregular, lognormal steps (median 140 m).
+
+    ``avoid`` lists (easting, half-width) of tributary valleys, where no hollow is put.
+    """
+    xs = [float(rng.uniform(15.0, 70.0))]
+    while True:
+        step = float(np.clip(rng.lognormal(math.log(140.0), 0.6), 45.0, 360.0))
+        if xs[-1] + step > width_m - 15.0:
+            break
+        xs.append(xs[-1] + step)
+    return np.array([x for x in xs if all(abs(x - a) > h for a, h in avoid)], dtype=np.float64)
+
+
+def _main_hollow(rng, north, x0, room):
+    """One main hollow from the valley floor up to a head at a random height fraction.
+
+    ``room`` is the smaller distance (m) to the neighbouring hollows, which bounds its bend.
+    """
+    top = 0.42 + 0.55 * float(rng.beta(2.2, 1.3))            # varied lengths
+    depth = float(rng.uniform(4.0, 9.0))
+    half = float(rng.uniform(16.0, 26.0))
+    bend = float(rng.uniform(-1.0, 1.0)) * min(60.0, 0.35 * room)
+    wiggle, wave, phase = rng.uniform(2.0, 8.0), rng.uniform(0.25, 0.6), rng.uniform(0.0, 2 * np.pi)
+    u = np.linspace(0.03, top, 64)
+    t = (u - u[0]) / (top - u[0])
+    x = x0 + bend * t ** 1.5 + wiggle * np.sin(2 * np.pi * u / wave + phase) * np.sin(np.pi * t)
+    return _Axis(north, u, x, depth * np.sin(np.pi * t) ** 0.6, half * (0.7 + 0.8 * t))
+
+
+def _tributary(rng, trunk, share, sign, reach):
+    """A tributary hollow leaving ``trunk`` at ``share`` of its length, diverging upslope.
+
+    It bends ``sign`` (+1 east) by up to ``reach`` m into the gap beside the trunk, quickly
+    at first and then more nearly downslope, and heads somewhat above the junction.
+    """
+    foot, top = trunk.u[0], trunk.u[-1]
+    uj = foot + share * (top - foot)
+    head = min(0.97, uj + float(rng.uniform(0.22, 0.5)))
+    u = np.linspace(uj, head, 48)
+    t = (u - uj) / (head - uj)
+    x = np.interp(u, trunk.u, trunk.x) + sign * reach * t ** 0.45
+    depth_j = float(np.interp(uj, trunk.u, trunk.depth)) * float(rng.uniform(0.6, 0.9))
+    width_j = float(np.interp(uj, trunk.u, trunk.width)) * 0.8
+    return _Axis(trunk.north, u, x, depth_j * np.cos(0.5 * np.pi * t) ** 0.6,
+                 width_j * (1.0 + 0.5 * t))
+
+
+def _spur(rng, north, x0):
+    """A spur nose: a low convex ridge down the middle of a wide gap between hollows."""
+    top = float(rng.uniform(0.6, 0.9))
+    u = np.linspace(0.06, top, 32)
+    t = (u - u[0]) / (top - u[0])
+    x = x0 + float(rng.uniform(-10.0, 10.0)) * t
+    return _Axis(north, u, x, float(rng.uniform(2.0, 4.5)) * np.sin(np.pi * t) ** 0.8,
+                 np.full(u.shape, float(rng.uniform(22.0, 35.0))))
+
+
+def _side_network(rng, north, width_m, avoid):
+    """Hollows (main ones, some branching) and spur noses of one valley side.
+
+    Main hollows sit at irregular spacing (:func:`_main_positions`) with varied lengths;
+    a long one sends one or two tributary hollows upslope into the wider gaps beside it;
+    a wide gap that no tributary takes gets a spur nose.
+
+    Returns
+    -------
+    hollows, spurs : list of _Axis
+    """
+    xs = _main_positions(rng, width_m, avoid)
+    edges = np.concatenate([[0.0], xs, [width_m]])
+    gaps = np.diff(edges)                                      # gaps[i] west of xs[i], gaps[i+1] east
+    taken = np.zeros(gaps.size, dtype=bool)
+    hollows = []
+    for i, x0 in enumerate(xs):
+        trunk = _main_hollow(rng, north, x0, min(gaps[i], gaps[i + 1]))
+        hollows.append(trunk)
+        if trunk.u[-1] < 0.5:
+            continue
+        wanted = int(rng.choice(4, p=[0.15, 0.35, 0.35, 0.15]))
+        shares = np.sort(rng.uniform(0.15, 0.6, wanted))       # junctions, lowest first
+        east = gaps[i + 1] >= gaps[i]                          # the wider gap first, then alternate
+        used = {True: 0, False: 0}
+        for share in shares:
+            gap = gaps[i + 1] if east else gaps[i]
+            if gap >= 75.0:
+                # a lower tributary reaches farther, so branches on one side never cross
+                reach = min(120.0, 0.42 * gap) * (1.0 - 0.35 * used[east]) * float(rng.uniform(0.75, 1.0))
+                hollows.append(_tributary(rng, trunk, float(share), 1.0 if east else -1.0, reach))
+                taken[i + 1 if east else i] = True
+                used[east] += 1
+            east = not east
+    spurs = [_spur(rng, north, 0.5 * (edges[j] + edges[j + 1]))
+             for j in range(1, gaps.size - 1) if gaps[j] > 150.0 and not taken[j]]
+    return hollows, spurs
+
+
+def _axis_relief(X, u, on, axis):
+    """Depth (m) of one hollow, or height of one spur, at every cell of its valley side.
+
+    Across the axis the profile is Gaussian in easting; along it, the axis's own depth and
+    width, interpolated at each cell's height fraction.
+    """
+    inside = on & (u >= axis.u[0]) & (u <= axis.u[-1])
+    uu = u[inside]
+    off = (X[inside] - np.interp(uu, axis.u, axis.x)) / np.interp(uu, axis.u, axis.width)
+    out = np.zeros(X.shape, dtype=np.float64)
+    out[inside] = np.interp(uu, axis.u, axis.depth) * np.exp(-off * off)
+    return out
+
+
 @dataclass
 class Valley:
     """The generated demo valley and its map layers (arrays on the demo grid).
@@ -112,6 +331,77 @@ class Valley:
     cleared: np.ndarray | None = None
 
 
+def _bench_strength(X, north, width_m):
+    """Strength of the benches (:data:`BENCHES`) at every cell, tapered at their ends."""
+    strength = np.zeros(X.shape, dtype=np.float64)
+    ramp = 150.0
+    for side, west, east, peak in BENCHES:
+        on = north if side else ~north
+        taper = _s_curve((X - west * width_m) / ramp) * _s_curve((east * width_m - X) / ramp)
+        strength += on * peak * taper
+    return strength
+
+
+def _roughness(shape, rng, u):
+    """Ground roughness, m: a broad swell and power-law (spectral-synthesis) relief.
+
+    Calmer on the floodplain (``u`` < 0) than on the valley sides.
+    """
+    swell = _smooth_field(shape, rng, 35.0)
+    fine = 1.5 * _fractal_noise(shape, rng, beta=3.0) + 0.4 * _fractal_noise(shape, rng, beta=2.3)
+    return np.clip((u + 0.1) / 0.25, 0.15, 1.0) * (3.5 * swell + fine)
+
+
+def _inventory(rng, hollows, z, cleared, cell_m, height_m, count=9):
+    """Mapped landslide scars: ellipses on hollow axes, most of them in clear-cuts.
+
+    A scar centre is drawn on a hollow axis between 0.3 and 0.8 of the side's height and kept
+    where the smoothed ground is concave (the colluvium rule of the soil map) and steep
+    (28-42 degrees), at least 80 m from the scars already kept; the ellipse's long axis runs
+    down the hollow.
+
+    Returns
+    -------
+    list of numpy.ndarray, shape (17, 2)
+        Closed rings (x east, y south, m from the north-west corner).
+    """
+    from scipy import ndimage
+
+    smooth = ndimage.gaussian_filter(z.astype(np.float64), 3.0)
+    concave = ndimage.laplace(smooth) / cell_m ** 2
+    gy, gx = np.gradient(smooth, cell_m)
+    slope = np.degrees(np.arctan(np.hypot(gx, gy)))
+    rows, cols = z.shape
+    rings, centres = [], []
+    for i in rng.permutation(len(hollows)):
+        axis = hollows[i]
+        lo, hi = max(0.3, axis.u[0]), min(0.8, axis.u[-1] - 0.05)
+        if len(rings) >= count or hi <= lo:
+            continue
+        uu = np.array([rng.uniform(lo, hi), 0.0])
+        uu[1] = uu[0] - 0.02                                   # a step downslope along the axis
+        xs = np.interp(uu, axis.u, axis.x)
+        ys = _side_y(xs, uu, axis.north, height_m)
+        r, c = int(ys[0] // cell_m), int(xs[0] // cell_m)
+        if not (0 <= r < rows and 0 <= c < cols):
+            continue
+        if concave[r, c] < 0.0025 or not 28.0 <= slope[r, c] <= 42.0:
+            continue
+        if not cleared[r, c] and rng.uniform() < 0.6:
+            continue
+        if any(math.hypot(xs[0] - px, ys[0] - py) < 80.0 for px, py in centres):
+            continue
+        down = np.array([xs[1] - xs[0], ys[1] - ys[0]])
+        down /= np.hypot(*down)
+        across = np.array([-down[1], down[0]])
+        length, wide = rng.uniform(35.0, 70.0), rng.uniform(14.0, 24.0)
+        t = np.linspace(0.0, 2 * np.pi, 17)[:, None]
+        rings.append(np.array([xs[0], ys[0]]) + 0.5 * length * np.cos(t) * down
+                     + 0.5 * wide * np.sin(t) * across)
+        centres.append((xs[0], ys[0]))
+    return rings
+
+
 def build_valley(rows=380, cols=560, cell_m=4.0, seed=DEMO_SEED) -> Valley:
     """Generate the fictional Verrow valley.
 
@@ -122,11 +412,19 @@ def build_valley(rows=380, cols=560, cell_m=4.0, seed=DEMO_SEED) -> Valley:
     cell_m : float
         Square cell size, m.
     seed : int
-        Seed of the roughness, hollow placement, harvest units and inventory.
+        Seed of the hollow network, roughness, harvest units and inventory.
 
     Returns
     -------
     Valley
+
+    Examples
+    --------
+    >>> v = build_valley(rows=120, cols=160, cell_m=8.0)
+    >>> v.z.shape, v.z.dtype, v.soil.dtype
+    ((120, 160), dtype('float32'), dtype('uint8'))
+    >>> bool(np.array_equal(v.z, build_valley(rows=120, cols=160, cell_m=8.0).z))
+    True
     """
     from scipy import ndimage
 
@@ -136,59 +434,51 @@ def build_valley(rows=380, cols=560, cell_m=4.0, seed=DEMO_SEED) -> Valley:
     y = (np.arange(rows) + 0.5) * cell_m            # southward, m
     X, Y = np.meshgrid(x, y)
 
-    # stream line and the distance of every cell from it, per valley side
-    def stream_y(xx):
-        return (0.53 * height_m + 38.0 * np.sin(2 * np.pi * xx / 1500.0 + 0.7)
-                + 12.0 * np.sin(2 * np.pi * xx / 430.0 + 1.3))
-
-    yc = stream_y(X)
+    # the two valley sides about the stream line, with benches along the contour
+    yc = _stream_y(X, height_m)
     north = Y < yc
     d = np.abs(Y - yc)
-    plain = 28.0                                    # floodplain half-width, m
-    crest = np.where(north, 0.38 * height_m + 45.0 * np.sin(2 * np.pi * X / 900.0),
-                     0.36 * height_m + 35.0 * np.cos(2 * np.pi * X / 1100.0))
-    relief = np.where(north, 250.0, 290.0) + 25.0 * np.sin(2 * np.pi * X / 1700.0 + 0.4)
+    plain = PLAIN_M
+    crest = _crest_m(X, north, height_m)
+    relief = np.where(north, 230.0, 262.0) + 25.0 * np.sin(2 * np.pi * X / 1700.0 + 0.4)
     u = (d - plain) / (crest - plain)               # 0 at the valley toe, 1 at the crest
     floor = 205.0 - 0.022 * X + 0.015 * np.minimum(d, plain)
     beyond = np.clip(u - 1.0, 0.0, None) * (crest - plain) / 420.0
-    z = floor + relief * _s_curve(u) - 150.0 * _s_curve(beyond)
+    rise = relief * _s_curve(_bench_u(u, _bench_strength(X, north, width_m)))
+    z = floor + rise - 150.0 * _s_curve(beyond)
 
     # tributary valleys: one on each side, graded to the main valley floor
+    avoid = {True: [], False: []}
     for side, xt, depth, half in ((True, 0.27 * width_m, 30.0, 80.0), (False, 0.66 * width_m, 38.0, 90.0)):
         on = north if side else ~north
         wander = xt + 35.0 * np.sin(2 * np.pi * d / 650.0)
-        above_floor = relief * _s_curve(u)
-        a, b = depth * np.clip((0.92 - u) / 0.3, 0.0, 1.0), 0.6 * above_floor
+        a, b = depth * np.clip((0.92 - u) / 0.3, 0.0, 1.0), 0.6 * rise
         cut = -5.0 * np.logaddexp(-a / 5.0, -b / 5.0)                 # soft minimum of a and b
         cut = np.clip(cut, 0.0, None)
         z -= on * cut * np.exp(-((X - wander) / (half * (0.55 + 0.5 * np.clip(u, 0, 1)))) ** 2)
+        avoid[side].append((xt, 1.1 * half))
 
-    # convergent hollows down both sides; remember their axes for the inventory
+    # branching hollows of varied spacing and length, spur noses in the wide gaps between them
     hollows = []
     for side in (True, False):
         on = north if side else ~north
-        xc = rng.uniform(20.0, 80.0)
-        while xc < width_m - 20.0:
-            depth = rng.uniform(3.5, 8.0)
-            half = rng.uniform(16.0, 26.0)
-            bend = rng.uniform(-45.0, 45.0)
-            axis = xc + bend * np.sin(np.pi * np.clip(u, 0, 1))
-            width = half * (0.7 + 0.9 * np.clip(u, 0.0, 1.0))      # broad hollow heads
-            top = rng.uniform(0.75, 0.97)                           # where the hollow head starts
-            along = np.sin(np.pi * np.clip((u - 0.05) / (top - 0.05), 0.0, 1.0)) ** 0.6
-            z -= on * depth * along * np.exp(-((X - axis) / width) ** 2)
-            hollows.append((side, xc, bend, depth))
-            xc += rng.uniform(110.0, 170.0)
+        side_hollows, spurs = _side_network(rng, side, width_m, avoid[side])
+        carve = np.zeros(z.shape, dtype=np.float64)
+        for axis in side_hollows:
+            np.maximum(carve, _axis_relief(X, u, on, axis), out=carve)
+        z -= carve
+        for axis in spurs:
+            z += _axis_relief(X, u, on, axis)
+        hollows += side_hollows
 
     # roughness, then the stream channel incised into the floodplain
-    swell = _smooth_field(z.shape, rng, 35.0) * np.clip(u / 0.2, 0.0, 1.0)
-    z += 7.0 * swell + 1.3 * _fractal_noise(z.shape, rng, beta=3.2) + 0.12 * _fractal_noise(z.shape, rng, beta=2.0)
+    z += _roughness(z.shape, rng, u)
     z -= 1.8 * np.exp(-((Y - yc) / 5.0) ** 2)
 
     # forest road benched into the south (north-facing) side
     road_x = np.arange(0.0, width_m + cell_m, 10.0)
-    road_y = stream_y(road_x) + plain + 95.0 + 12.0 * np.sin(2 * np.pi * road_x / 700.0)
-    road_y_cells = stream_y(X) + plain + 95.0 + 12.0 * np.sin(2 * np.pi * X / 700.0)
+    road_y = _stream_y(road_x, height_m) + plain + 95.0 + 12.0 * np.sin(2 * np.pi * road_x / 700.0)
+    road_y_cells = yc + plain + 95.0 + 12.0 * np.sin(2 * np.pi * X / 700.0)
     rr = np.clip(np.round(road_y_cells / cell_m - 0.5).astype(int), 0, rows - 1)
     natural_on_line = z[rr[0], np.arange(cols)]
     grade = ndimage.gaussian_filter1d(natural_on_line.astype(np.float64), 20.0 / cell_m, mode="nearest")
@@ -220,28 +510,7 @@ def build_valley(rows=380, cols=560, cell_m=4.0, seed=DEMO_SEED) -> Valley:
     soil = np.where(alluvium, 5, soil).astype(np.uint8)
 
     # mapped landslides: scars in hollows at mid-slope, most of them in clear-cuts
-    landslides = []
-    order = rng.permutation(len(hollows))
-    for i in order:
-        side, xc, bend, depth = hollows[i]
-        if depth < 5.0 or len(landslides) >= 9:
-            continue
-        uu = rng.uniform(0.35, 0.65)
-        xi = xc + bend * math.sin(math.pi * uu)
-        ci = int(np.clip(xi / cell_m, 0, cols - 1))
-        col_crest = crest[:, ci]
-        col_yc = yc[0, ci]
-        cr = float(col_crest[0] if side else col_crest[-1])
-        dist = plain + uu * (cr - plain)
-        yi = col_yc - dist if side else col_yc + dist
-        ri = int(np.clip(yi / cell_m, 0, rows - 1))
-        if not cleared[ri, ci] and rng.uniform() < 0.6:
-            continue
-        length = rng.uniform(35.0, 70.0)
-        wide = rng.uniform(14.0, 24.0)
-        t = np.linspace(0.0, 2 * np.pi, 17)
-        ring = np.column_stack([xi + 0.5 * wide * np.sin(t), yi + 0.5 * length * np.cos(t)])
-        landslides.append(ring)
+    landslides = _inventory(rng, hollows, z, cleared, cell_m, height_m)
     return Valley(z=z.astype(np.float32), soil=soil, cell_m=cell_m, road=road,
                   landslides=landslides, cleared=cleared)
 
