@@ -34,7 +34,6 @@ Check
 """
 
 import argparse
-import os
 import shutil
 import statistics
 import subprocess
